@@ -27,8 +27,9 @@ while the corresponding-states CORK stays within ~16 %, so CORK is kept.
 
 Measured against CoolProp 8.0 (tests/test_eos.py, 873-1273 K, 1-5000 bar):
 H2O (IAPWS-95) max |dev| 2.7 %, CO2 (Span-Wagner, <= 1100 K) max 2.3 %,
-H2 (Leachman, <= 1000 K) max 4.9 %; CH4 +16 % at 2-5 kbar (Setzmann-Wagner,
-500-625 K).
+H2 (Leachman, <= 1000 K) max 4.9 %, O2 (Schmidt-Wagner, <= 800 bar) 4.9 %;
+CH4 +16 % at 2-5 kbar (Setzmann-Wagner, 500-625 K); in-box comparisons against
+extrapolated references: CH4 15 %, CO 13 %, H2S 10 %, SO2 9 %.
 """
 import math
 
