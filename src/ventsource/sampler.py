@@ -1,0 +1,177 @@
+"""Posterior sampling with emcee's affine-invariant ensemble sampler.
+
+Generic over a prior object (sample, log_prob, full, free_names) and a forward object
+(ratios(theta_full) -> (n, m), NaN rows for failures).  Sampling happens in the prior's
+own free-parameter space; emcee handles bounded supports because log_prob is -inf
+outside (Foreman-Mackey et al. 2013, PASP 125:306).  The stretch move is affine
+invariant (Goodman and Weare 2010, CAMCoS 5:65), so no rescaling is needed.
+
+Run length: the chain grows in chunks; after each chunk the integrated
+autocorrelation time tau is estimated (emcee.autocorr, Sokal 1997 windowing).  Burn-in
+is burn_factor * tau; sampling stops when the post-burn ensemble holds target_ess
+effective draws (n_walkers * n_kept / tau) and the chain is at least min_tau_factor
+* tau long (a shorter chain cannot estimate tau reliably, emcee documentation), or
+when max_steps is reached (then converged = False).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import emcee
+import numpy as np
+
+from .likelihood import Likelihood
+
+__all__ = ["SampleResult", "LogPosterior", "sample_posterior", "initial_walkers",
+           "SamplerError"]
+
+
+class SamplerError(RuntimeError):
+    """The sampler could not start or run; one-line message."""
+
+
+class LogPosterior:
+    """Vectorised unnormalised log posterior log p(theta) + log L(theta).
+
+    Counts forward evaluations and failed states (rows whose predictions contain NaN,
+    i.e. no gas or solver failure).  __call__ returns an (n, 2 + m) array: column 0 the
+    log posterior, column 1 the log-likelihood, then the m predicted ratios, so emcee
+    stores likelihood and predictions as blobs (no recomputation afterwards).
+    """
+
+    def __init__(self, prior, forward, likelihood: Likelihood):
+        self.prior = prior
+        self.forward = forward
+        self.likelihood = likelihood
+        self.n_forward_evals = 0
+        self.n_failed = 0
+        self.m = likelihood.n_predicted
+
+    def evaluate(self, theta):
+        theta = np.atleast_2d(np.asarray(theta, dtype=float))
+        n = theta.shape[0]
+        lp = np.asarray(self.prior.log_prob(theta), dtype=float).reshape(n)
+        ll = np.full(n, -np.inf)
+        pred = np.full((n, self.m), np.nan)
+        ok = np.isfinite(lp)
+        if ok.any():
+            full = self.prior.full(theta[ok])
+            p = np.asarray(self.forward.ratios(full), dtype=float).reshape(ok.sum(), self.m)
+            self.n_forward_evals += int(ok.sum())
+            self.n_failed += int(np.isnan(p).any(axis=1).sum())
+            pred[ok] = p
+            ll[ok] = self.likelihood(p)
+        post = lp + ll
+        post[~np.isfinite(post)] = -np.inf
+        return post, ll, pred
+
+    def __call__(self, theta):
+        post, ll, pred = self.evaluate(theta)
+        return np.column_stack([post, ll, pred])
+
+
+@dataclass
+class SampleResult:
+    """Post-burn-in ensemble draws and run statistics."""
+
+    free_names: tuple
+    chain: np.ndarray          # (n_walkers, n_draws, d) free parameters
+    log_posterior: np.ndarray  # (n_walkers, n_draws)
+    log_likelihood: np.ndarray  # (n_walkers, n_draws)
+    predictions: np.ndarray    # (n_walkers, n_draws, m)
+    tau: np.ndarray            # (d,) integrated autocorrelation time, steps
+    burn: int
+    n_steps: int
+    thin: int
+    converged: bool
+    acceptance_fraction: np.ndarray
+    n_forward_evals: int
+    n_failed_states: int
+    n_init_failed: int
+    stats: dict = field(default_factory=dict)
+
+    @property
+    def flat(self) -> np.ndarray:
+        return self.chain.reshape(-1, self.chain.shape[-1])
+
+
+def initial_walkers(prior, logpost: LogPosterior, n_walkers: int, rng: np.random.Generator,
+                    max_draws: int = 200_000):
+    """Prior draws with finite posterior; failures are redrawn and counted."""
+    keep, n_bad, n_drawn = [], 0, 0
+    batch = max(4 * n_walkers, 64)
+    while sum(len(k) for k in keep) < n_walkers:
+        if n_drawn >= max_draws:
+            raise SamplerError(
+                f"only {sum(len(k) for k in keep)} of {n_drawn} prior draws have a finite likelihood "
+                f"(need {n_walkers} walkers); the measurement is outside what this prior and model can produce")
+        th = np.asarray(prior.sample(rng, batch), dtype=float)
+        post, _, _ = logpost.evaluate(th)
+        good = np.isfinite(post)
+        n_bad += int((~good).sum())
+        n_drawn += batch
+        keep.append(th[good])
+    th = np.concatenate(keep)
+    return th[:n_walkers], n_bad
+
+
+def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_walkers: int | None = None,
+                     target_ess: float = 2000.0, max_steps: int = 20000, chunk: int = 200,
+                     burn_factor: float = 3.0, min_tau_factor: float = 30.0, moves=None,
+                     init_from_posterior_fraction: float = 0.0) -> SampleResult:
+    """Run emcee until the target ESS is reached (or max_steps).
+
+    seed seeds both the initial positions (numpy Generator) and emcee's own RandomState.
+    """
+    rng = np.random.default_rng(seed)
+    d = len(prior.free_names)
+    if d == 0:
+        raise SamplerError("prior has no free parameters to sample")
+    if n_walkers is None:
+        n_walkers = max(32, 4 * d)
+    n_walkers = int(n_walkers) + int(n_walkers) % 2
+    if n_walkers < 2 * d:
+        raise SamplerError(f"n_walkers={n_walkers} must be at least twice the number of free parameters ({d})")
+    logpost = LogPosterior(prior, forward, likelihood)
+    p0, n_init_bad = initial_walkers(prior, logpost, n_walkers, rng)
+    m = likelihood.n_predicted
+    sampler = emcee.EnsembleSampler(n_walkers, d, logpost, vectorize=True, moves=moves)
+    # emcee draws its proposals from its own RandomState: seed it from our Generator
+    sampler.random_state = np.random.RandomState(int(rng.integers(2**32 - 1))).get_state()
+    state = p0
+    converged = False
+    tau = np.full(d, np.nan)
+    n_steps = 0
+    while n_steps < max_steps:
+        step = min(chunk, max_steps - n_steps)
+        state = sampler.run_mcmc(state, step, progress=False)
+        n_steps += step
+        tau = sampler.get_autocorr_time(tol=0, quiet=True)
+        tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else np.inf
+        if not np.isfinite(tmax):
+            continue
+        burn = int(np.ceil(burn_factor * tmax))
+        ess = n_walkers * max(n_steps - burn, 0) / tmax
+        if ess >= target_ess and n_steps >= min_tau_factor * tmax:
+            converged = True
+            break
+        # grow the chunk with the chain so the autocorrelation FFT cost stays modest
+        chunk = max(chunk, n_steps // 4)
+    tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else float(n_steps) / 10.0
+    burn = min(int(np.ceil(burn_factor * tmax)), n_steps // 2)
+    chain = np.swapaxes(sampler.get_chain(discard=burn), 0, 1)
+    lpost = sampler.get_log_prob(discard=burn).T
+    blobs = np.asarray(sampler.get_blobs(discard=burn), dtype=float).reshape(-1, n_walkers, 1 + m)
+    ll = blobs[:, :, 0].T
+    pred = np.swapaxes(blobs[:, :, 1:], 0, 1)
+    ess_est = n_walkers * (n_steps - burn) / tmax
+    stats = {"n_forward_evals": logpost.n_forward_evals, "n_failed_states": logpost.n_failed,
+             "n_init_failed": n_init_bad, "tau_max": tmax, "burn": burn, "n_steps": n_steps,
+             "n_walkers": n_walkers, "ess_estimate": ess_est, "converged": converged,
+             "mean_acceptance": float(np.mean(sampler.acceptance_fraction)), "seed": seed}
+    return SampleResult(free_names=tuple(prior.free_names), chain=chain, log_posterior=lpost,
+                        log_likelihood=ll, predictions=pred, tau=np.asarray(tau), burn=burn,
+                        n_steps=n_steps, thin=1, converged=converged,
+                        acceptance_fraction=np.asarray(sampler.acceptance_fraction),
+                        n_forward_evals=logpost.n_forward_evals, n_failed_states=logpost.n_failed,
+                        n_init_failed=n_init_bad, stats=stats)
