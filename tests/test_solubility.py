@@ -198,5 +198,5 @@ def test_capacity_requires_constants():
         reg.prepare_sulfur("sulfide_capacity", MORB)
     assert "ln_cs_a" in str(err.value) and "\n" not in str(err.value)
     with pytest.raises(ValueError):
-        reg.prepare_sulfur("sulfur_x", MORB)
+        reg.prepare_sulfur("no_such_option", MORB)
     assert reg.prepare_sulfur("partition", MORB).dtype == np.float64
