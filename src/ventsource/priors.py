@@ -76,13 +76,15 @@ OPTIONAL_OXIDES = ("MnO", "P2O5", "Cr2O3", "NiO")
 OXIDE_TOTAL_RANGE = (95.0, 102.0)
 
 MODEL_CHOICES: dict[str, tuple[str, ...]] = {
-    "h2o_solubility": ("moore1998", "liu2005"),
+    "h2o_solubility": ("power_law", "liu2005", "moore1998"),
     "co2_solubility": ("shishkina2014", "liu2005"),
-    "sulfur": ("partition", "sulfide_capacity"),
+    "sulfur": ("partition",),
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
 }
+
+POWER_LAW_KEYS = ("h2o_power_coefficient", "h2o_power_exponent")
 
 # distribution -> (required keys, optional keys) besides "distribution"/"source"/"description"
 DISTRIBUTIONS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
@@ -308,13 +310,22 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> "PriorSpec":
 
     # [models] (read before parameters: some parameters depend on the choices)
     models_t = _table(file, data, "models", "models", True)
-    _no_unknown(file, models_t, tuple(MODEL_CHOICES), "models")
+    _no_unknown(file, models_t, tuple(MODEL_CHOICES) + POWER_LAW_KEYS, "models")
     models = {}
     for key, choices in MODEL_CHOICES.items():
         val = _string(file, models_t, key, f"models.{key}", True)
         if val not in choices:
             raise _err(file, f"models.{key}", f"unknown model {val!r} (allowed: {', '.join(choices)})")
         models[key] = val
+    # power-law H2O solubility, wt% = k * fH2O^n: its constants live beside the choice
+    for key in POWER_LAW_KEYS:
+        if models["h2o_solubility"] == "power_law":
+            val = _number(file, models_t, key, f"models.{key}", True)
+            if not (val > 0 and math.isfinite(val)) or (key.endswith("exponent") and val > 1.5):
+                raise _err(file, f"models.{key}", f"must be positive (exponent at most 1.5), got {val}")
+            models[key] = float(val)
+        elif key in models_t:
+            raise _err(file, f"models.{key}", "only allowed with h2o_solubility = \"power_law\"")
 
     # [parameters.<name>]
     params_t = _table(file, data, "parameters", "parameters", True)

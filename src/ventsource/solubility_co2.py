@@ -47,6 +47,9 @@ def prepare_liu2005(melt_oxides_wt):
     return np.array([m["SiO2"]], dtype=np.float64)
 
 
+LAW_INSOLUBLE = 9  # nothing dissolves: a limiting case for checks
+
+
 @njit(cache=True)
 def _shishkina2014(params, p_co2_bar):
     pc = p_co2_bar / _BAR_PER_MPA
@@ -74,6 +77,8 @@ def co2_ppm(law_id, params, p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, pressure
         return _shishkina2014(params, p_co2_bar)
     if law_id == LAW_LIU2005:
         return _liu2005(p_h2o_bar, p_co2_bar, temperature_k)
+    if law_id == LAW_INSOLUBLE:
+        return 0.0
     return math.nan
 
 

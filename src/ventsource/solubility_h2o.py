@@ -22,6 +22,8 @@ from . import melt as _melt
 
 LAW_MOORE1998 = 0
 LAW_LIU2005 = 1
+LAW_POWER = 2      # wt% = k * f_H2O^n (k, n given in the prior file)
+LAW_INSOLUBLE = 9  # nothing dissolves: a limiting case for checks
 
 # Moore et al. (1998) regression coefficients, from memory.
 MOORE1998_A = 2565.0
@@ -47,6 +49,11 @@ def prepare_moore1998(melt_oxides_wt):
     x = _melt.anhydrous_mole_fractions(melt_oxides_wt)
     bx = sum(b * x.get(k, 0.0) for k, b in MOORE1998_B.items())
     return np.array([bx, _melt.mean_molar_mass_g_mol(melt_oxides_wt)], dtype=np.float64)
+
+
+def prepare_power(melt_oxides_wt, coefficient, exponent):
+    """[k, n] for LAW_POWER: dissolved H2O (wt%) = k * f_H2O(bar)^n."""
+    return np.array([float(coefficient), float(exponent)], dtype=np.float64)
 
 
 def prepare_liu2005(melt_oxides_wt):
@@ -89,6 +96,14 @@ def h2o_wt_percent(law_id, params, p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, p
         return _moore1998(params, f_h2o_bar, pressure_bar, temperature_k)
     if law_id == LAW_LIU2005:
         return _liu2005(p_h2o_bar, p_co2_bar, temperature_k)
+    if law_id == LAW_POWER:
+        # Square-root (n = 0.5) dependence on fH2O: water dissolves mainly as OH
+        # pairs at low content (Stolper 1982, Contrib. Mineral. Petrol. 81:1-17).
+        if f_h2o_bar <= 0.0:
+            return 0.0
+        return params[0] * f_h2o_bar ** params[1]
+    if law_id == LAW_INSOLUBLE:
+        return 0.0
     return math.nan
 
 

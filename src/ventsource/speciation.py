@@ -312,18 +312,6 @@ class SpeciationResult:
         return {name: float(self.mole_fractions[i, k]) for k, name in enumerate(SPECIES)}
 
 
-def element_totals(species_moles):
-    """H, C, S moles of a parent-gas composition {species: moles}."""
-    from .species import ELEMENT_MATRIX
-    h = c = s = 0.0
-    for name, amount in species_moles.items():
-        row = ELEMENT_MATRIX[INDEX[name]]
-        h = h + row[0] * np.asarray(amount, dtype=float)
-        c = c + row[1] * np.asarray(amount, dtype=float)
-        s = s + row[3] * np.asarray(amount, dtype=float)
-    return h, c, s
-
-
 def speciate(temperature_k, pressure_bar, log10_fo2, h_moles, c_moles, s_moles, eos="real"):
     """Equilibrium gas speciation for arrays of states.
 

@@ -1,0 +1,97 @@
+"""The forward model: degassing conditions in, gas ratios out.
+
+One object configured from a prior file. Parameter arrays are (n, k) in the
+order of `parameter_names`; ratios come back as (n, m) with NaN rows where
+the magma releases no gas at P or the solver failed (see `status`).
+"""
+import numpy as np
+
+from . import degassing, observables
+from .errors import InputError
+from .modification import scrub
+from .solubility_registry import prepare_co2, prepare_h2o
+from .solubility_h2o import LAW_POWER, prepare_power
+from .species import SPECIES
+
+STATUS_OK = degassing.STATUS_GAS
+STATUS_NO_GAS = degassing.STATUS_NO_GAS
+STATUS_FAILED = degassing.STATUS_FAILED
+
+DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0}
+UNITS = {"pressure_bar": "bar", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
+         "scrubbed_so2": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by weight",
+         "s_ppm": "ppm by weight", "s_partition": "mass fraction ratio gas/melt",
+         "scrubbed_h2s": "fraction", "h2s_return": "fraction", "exsolved_gas_wt": "wt%"}
+
+
+class ForwardModel:
+    def __init__(self, spec, ratio_names=observables.DEFAULT_RATIOS, open_steps=20):
+        self.spec = spec
+        self.parameter_names = tuple(spec.parameter_names)
+        self.ratio_names = tuple(ratio_names)
+        for name in self.ratio_names:
+            observables.ratio_weights(name)  # validates
+        models = spec.models
+        melt = spec.melt_oxides_wt
+        if models["h2o_solubility"] == "power_law":
+            self.h2o_law = (LAW_POWER, prepare_power(melt, models["h2o_power_coefficient"],
+                                                     models["h2o_power_exponent"]))
+        else:
+            self.h2o_law = prepare_h2o(models["h2o_solubility"], melt)
+        self.co2_law = prepare_co2(models["co2_solubility"], melt)
+        if models["sulfur"] != "partition":
+            raise InputError(f"sulfur model '{models['sulfur']}' is not available; use 'partition'")
+        self.style = models["degassing"]
+        self.product = models["scrubbing_product"]
+        self.eos = models["eos"]
+        self.open_steps = open_steps
+        self._index = {name: i for i, name in enumerate(self.parameter_names)}
+
+    def _column(self, theta, name):
+        if name in self._index:
+            return theta[:, self._index[name]]
+        return np.full(theta.shape[0], DEFAULTS[name])
+
+    def _as_theta(self, theta_full):
+        theta = np.atleast_2d(np.asarray(theta_full, dtype=float))
+        if theta.shape[1] != len(self.parameter_names):
+            raise ValueError(f"parameter array has {theta.shape[1]} columns; expected "
+                             f"{len(self.parameter_names)} ({', '.join(self.parameter_names)})")
+        return theta
+
+    def state(self, theta_full, saturation=True):
+        """Full view for reports: dict of arrays (gas before and after scrubbing, melt, ...)."""
+        theta = self._as_theta(theta_full)
+        col = lambda name: self._column(theta, name)  # noqa: E731
+        if np.any(col("exsolved_gas_wt") != 0.0):
+            raise InputError("exsolved_gas_wt other than 0 is not modelled in this version")
+        res = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), col("h2o_wt"),
+                              col("co2_ppm"), col("s_ppm"), col("s_partition"), self.h2o_law,
+                              self.co2_law, style=self.style, eos=self.eos,
+                              saturation=saturation, open_steps=self.open_steps)
+        gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
+                    col("h2s_return"))
+        return {
+            "status": res.status,
+            "magmatic_gas": res.gas,
+            "gas": gas,
+            "gas_wt_fraction": res.gas_wt_fraction,
+            "melt_h2o_wt": res.melt_h2o_wt,
+            "melt_co2_ppm": res.melt_co2_ppm,
+            "melt_s_ppm": res.melt_s_ppm,
+            "saturation_pressure_bar": res.saturation_pressure_bar,
+            "ratios": observables.ratios(gas, self.ratio_names),
+        }
+
+    def ratios(self, theta_full):
+        return self.state(theta_full, saturation=self.style == "open")["ratios"]
+
+    def status(self, theta_full):
+        return self.state(theta_full, saturation=self.style == "open")["status"]
+
+    def ratios_and_status(self, theta_full):
+        s = self.state(theta_full, saturation=self.style == "open")
+        return s["ratios"], s["status"]
+
+
+__all__ = ["ForwardModel", "SPECIES", "UNITS"]
