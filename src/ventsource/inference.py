@@ -183,7 +183,7 @@ def _to_idata(run: ModelRun, lik: Likelihood, measurement: Measurement, rng, n_p
     pw = lik.pointwise(pred).reshape(W, T, -1)
     loglik = {v: pw[:, :, j] for j, v in enumerate(vars_)}
     observed = {v: np.array([np.exp(lik.y[j])]) for j, v in enumerate(vars_)}
-    stats = {"lp": s.log_posterior, "log_likelihood": s.log_likelihood}
+    stats = {"lp": s.log_posterior, "total_log_likelihood": s.log_likelihood}
     idata = az.from_dict(posterior=post, prior=prior_grp, posterior_predictive=pp,
                          log_likelihood=loglik, observed_data=observed, sample_stats=stats)
     units = {n: _units(n) for n in names}
