@@ -56,9 +56,29 @@ def build_parser():
     sp.add_argument("--json", action="store_true", help="print one JSON object")
     sp.set_defaults(handler=cmd_speciate)
 
+    fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
+    fp.add_argument("--prior", required=True, help="prior file (TOML) giving melt and model choices")
+    fp.add_argument("--set", nargs="+", default=[], metavar="NAME=VALUE",
+                    help="parameter values, e.g. pressure_bar=200 temperature_c=1100")
+    fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2")
+    fp.add_argument("--json", action="store_true")
+    fp.set_defaults(handler=cmd_forward)
+
+    pp = sub.add_parser("prior-predictive",
+                        help="draw the prior, run the model with and without scrubbing")
+    pp.add_argument("--prior", required=True)
+    pp.add_argument("-n", type=int, default=20000, help="number of prior draws")
+    pp.add_argument("--out", required=True, help="CSV of parameters and ratios")
+    pp.add_argument("--plot", help="PNG of the ratio-ratio plane")
+    pp.add_argument("--data", help="measurement CSV to overlay")
+    pp.add_argument("--x-ratio", default="H2S/SO2")
+    pp.add_argument("--y-ratio", default="SO2/CO2")
+    pp.add_argument("--seed", type=int, default=0)
+    pp.set_defaults(handler=cmd_prior_predictive)
+
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
     bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
-    bp.add_argument("--only", choices=["speciation"], action="append",
+    bp.add_argument("--only", choices=["speciation", "forward"], action="append",
                     help="run only the named benchmark sections")
     bp.set_defaults(handler=cmd_bench)
     return parser
@@ -117,6 +137,105 @@ def cmd_speciate(args):
     print(f"H2S/SO2 {x[SPECIES.index('H2S')] / x[SPECIES.index('SO2')]:.4g}   "
           f"SO2/CO2 {x[SPECIES.index('SO2')] / x[SPECIES.index('CO2')]:.4g}   "
           f"H2O/CO2 {x[SPECIES.index('H2O')] / x[SPECIES.index('CO2')]:.4g}")
+    return 0
+
+
+def _load_prior(path):
+    from .priors import PriorFileError, load_prior_file
+    try:
+        return load_prior_file(path)
+    except PriorFileError as exc:
+        raise InputError(str(exc)) from None
+
+
+def cmd_forward(args):
+    import numpy as np
+
+    from .forward import ForwardModel, UNITS
+    from .priors import PHYSICAL_LIMITS
+    from .species import SPECIES
+
+    spec = _load_prior(args.prior)
+    values = {}
+    for item in args.set:
+        if "=" not in item:
+            raise InputError(f"--set: '{item}' is not NAME=VALUE")
+        name, text = item.split("=", 1)
+        if name not in spec.parameter_names:
+            raise InputError(f"--set: unknown parameter '{name}' for {args.prior} "
+                             f"(parameters: {', '.join(spec.parameter_names)})")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputError(f"--set: {name} value '{text}' is not a number") from None
+        lo, hi, lo_open, hi_open = PHYSICAL_LIMITS[name]
+        if not math.isfinite(value) or value < lo or value > hi or (lo_open and value == lo) \
+                or (hi_open and value == hi):
+            raise InputError(f"--set: {name}={text} is unphysical or outside the supported range "
+                             f"{lo:g} to {hi:g} ({UNITS.get(name, '')})")
+        values[name] = value
+    fixed = getattr(spec, "fixed_values", {}) or {}
+    theta = []
+    for name in spec.parameter_names:
+        if name in values:
+            theta.append(values[name])
+        elif name in fixed:
+            theta.append(float(fixed[name]))
+        else:
+            raise InputError(f"--set: missing {name}; every free parameter of {args.prior} needs a "
+                             f"value ({', '.join(n for n in spec.free_names if n not in values)})")
+    ratio_names = tuple(r.strip() for r in args.ratios.split(",") if r.strip())
+    model = ForwardModel(spec, ratio_names)
+    state = model.state(np.array([theta]))
+    status = int(state["status"][0])
+    label = {0: "gas", 1: "no gas: the magma is undersaturated at this pressure",
+             2: "solver failure"}[status]
+    gas = state["gas"][0]
+    out = {
+        "prior": args.prior,
+        "parameters": dict(zip(spec.parameter_names, theta)),
+        "status": label,
+        "saturation_pressure_bar": _finite_or_none(state["saturation_pressure_bar"][0]),
+        "gas_wt_fraction": float(state["gas_wt_fraction"][0]),
+        "gas": {n: _finite_or_none(gas[i]) for i, n in enumerate(SPECIES)},
+        "magmatic_gas": {n: _finite_or_none(state["magmatic_gas"][0][i]) for i, n in enumerate(SPECIES)},
+        "melt": {"h2o_wt": float(state["melt_h2o_wt"][0]), "co2_ppm": float(state["melt_co2_ppm"][0]),
+                 "s_ppm": float(state["melt_s_ppm"][0])},
+        "ratios": {r: _finite_or_none(state["ratios"][0][k]) for k, r in enumerate(ratio_names)},
+        "models": dict(spec.models),
+    }
+    if args.json:
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"Forward model, prior {args.prior}")
+    print("  " + ", ".join(f"{k}={v:g}" for k, v in out["parameters"].items()))
+    print(f"  status: {label}")
+    psat = out["saturation_pressure_bar"]
+    print(f"  saturation pressure: {psat:.1f} bar" if psat is not None else
+          "  saturation pressure: above the model's 20 kbar search cap")
+    if status == 0:
+        print(f"  gas mass fraction: {out['gas_wt_fraction']:.4g}")
+        print(f"  melt: H2O {out['melt']['h2o_wt']:.3f} wt%, CO2 {out['melt']['co2_ppm']:.1f} ppm, "
+              f"S {out['melt']['s_ppm']:.1f} ppm")
+        print("  gas after scrubbing (mol %): " + ", ".join(
+            f"{n} {100 * gas[i]:.4g}" for i, n in enumerate(SPECIES) if gas[i] > 1e-6))
+        print("  ratios: " + ", ".join(f"{r} {v:.4g}" for r, v in out["ratios"].items()))
+    return 0
+
+
+def _finite_or_none(value):
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def cmd_prior_predictive(args):
+    from .prior_predictive import run_prior_predictive
+    if args.n < 1:
+        raise InputError("-n must be at least 1")
+    spec = _load_prior(args.prior)
+    run_prior_predictive(spec, args.n, args.out, plot_path=args.plot, data_path=args.data,
+                         x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
+    print(f"wrote {args.out}" + (f" and {args.plot}" if args.plot else ""))
     return 0
 
 

@@ -164,8 +164,7 @@ def _run_model(name, prior, forward, lik, seeds, opt) -> ModelRun:
     return ModelRun(name, prior, s, b, chk, b.log_z, b.log_z_error)
 
 
-def _to_idata(run: ModelRun, lik: Likelihood, measurement: Measurement, rng, n_prior_draws: int,
-              forward, opt):
+def _to_idata(run: ModelRun, lik: Likelihood, measurement: Measurement, rng, n_prior_draws: int):
     import arviz as az
     s = run.sample
     prior = run.prior
@@ -179,7 +178,6 @@ def _to_idata(run: ModelRun, lik: Likelihood, measurement: Measurement, rng, n_p
     pred = s.predictions.reshape(W * T, -1)
     y_rep = np.exp(lik.simulate_log(pred, rng)).reshape(W, T, -1)
     pp = {v: y_rep[:, :, j] for j, v in enumerate(vars_)}
-    mu_obs = lik.log_mu(pred).reshape(W, T, -1)
     pw = lik.pointwise(pred).reshape(W, T, -1)
     loglik = {v: pw[:, :, j] for j, v in enumerate(vars_)}
     observed = {v: np.array([np.exp(lik.y[j])]) for j, v in enumerate(vars_)}
@@ -269,10 +267,10 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
         runs["M0"] = run0
 
     rng = np.random.default_rng(seeds[6])
-    idata1 = _to_idata(run1, lik, measurement, rng, opt["n_prior_draws"], forward, opt)
+    idata1 = _to_idata(run1, lik, measurement, rng, opt["n_prior_draws"])
     idata0 = None
     if run0 is not None and run0.sample is not None:
-        idata0 = _to_idata(run0, lik, measurement, rng, opt["n_prior_draws"], forward, opt)
+        idata0 = _to_idata(run0, lik, measurement, rng, opt["n_prior_draws"])
 
     p_mag = p_err = p_below = p_below_err = None
     if do_choice:

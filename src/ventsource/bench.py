@@ -1,0 +1,108 @@
+"""`ventsource bench`: speeds as ratios to a reference measured in the same run.
+
+Reference: Cantera's `equilibrate('TP')` on an ideal gas of the same ten
+species from its bundled NASA Glenn data, started from our equilibrium
+composition (the most favourable start for Cantera: it only has to confirm
+the minimum). Absolute times on shared machines are noisy; the ratios are
+what to compare between runs.
+"""
+import time
+
+import numpy as np
+
+from .buffers import log10_fo2_from_dfmq
+from .species import SPECIES
+from .speciation import speciate
+
+
+def _box(n, seed=42):
+    rng = np.random.default_rng(seed)
+    t_k = rng.uniform(600, 1300, n) + 273.15
+    p = 10 ** rng.uniform(0, np.log10(5000), n)
+    dfmq = rng.uniform(-4, 4, n)
+    c_h = 10 ** rng.uniform(-4, 1, n)
+    s_h = 10 ** rng.uniform(-5, 0, n)
+    return t_k, p, log10_fo2_from_dfmq(dfmq, t_k, p), c_h, s_h
+
+
+def _cantera_seconds_per_state(t_k, p, x):
+    try:
+        import cantera as ct
+    except ImportError:
+        return None
+    species = []
+    for s in ct.Species.list_from_file("nasa_gas.yaml"):
+        if s.name in SPECIES:
+            d = s.thermo.input_data
+            t_low, t_mid, t_high = d["temperature-ranges"]
+            low, high = d["data"]
+            s.thermo = ct.NasaPoly2(t_low, t_high, 1e5, np.concatenate([[t_mid], high, low]))
+            species.append(s)
+    gas = ct.Solution(thermo="ideal-gas", species=species)
+    start = time.perf_counter()
+    for j in range(t_k.size):
+        gas.TPX = t_k[j], p[j] * 1e5, dict(zip(SPECIES, x[j]))
+        gas.equilibrate("TP")
+    return (time.perf_counter() - start) / t_k.size
+
+
+def _best_of(fn, repeats=3):
+    best = np.inf
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def bench_speciation(n=100_000, n_cantera=2000):
+    t_k, p, lf, c_h, s_h = _box(n)
+    speciate(t_k[:10], p[:10], lf[:10], 1.0, c_h[:10], s_h[:10], eos="ideal")  # compile/load
+    seconds = _best_of(lambda: speciate(t_k, p, lf, 1.0, c_h, s_h, eos="ideal"))
+    res = speciate(t_k, p, lf, 1.0, c_h, s_h, eos="ideal")
+    per_state = seconds / n
+    cantera = _cantera_seconds_per_state(t_k[:n_cantera], p[:n_cantera], res.mole_fractions[:n_cantera])
+    print(f"[speciation] {n} states (ideal gas, whole box): {n / seconds:,.0f} states/s "
+          f"({per_state * 1e6:.2f} us/state), {int((res.status != 0).sum())} not converged")
+    if cantera is not None:
+        print(f"[speciation] Cantera equilibrate('TP'), first {n_cantera} of the same states: "
+              f"{cantera * 1e6:.1f} us/state -> ventsource is {cantera / per_state:.1f}x faster "
+              "(target >= 30x)")
+    return per_state, cantera
+
+
+def bench_forward(cantera_per_state, quick=False):
+    from .forward import ForwardModel
+    from .priors import load_prior_file
+    from pathlib import Path
+    prior = Path(__file__).resolve().parents[2] / "priors" / "arc_basalt.toml"
+    if not prior.exists():
+        print("[forward] skipped: priors/arc_basalt.toml not found next to the package")
+        return
+    spec = load_prior_file(prior)
+    model = ForwardModel(spec)
+    rng = np.random.default_rng(7)
+    big = 2_000 if quick else 10_000
+    theta = spec.full(spec.sample(rng, big))
+    model.ratios(theta[:8])
+    for batch in (big, 32):
+        chunks = [theta[i:i + batch] for i in range(0, min(big, 200 * batch), batch)]
+        n_states = sum(c.shape[0] for c in chunks)
+        seconds = _best_of(lambda: [model.ratios(c) for c in chunks])
+        per_state = seconds / n_states
+        line = (f"[forward] batch {batch}: {1 / per_state:,.0f} evaluations/s "
+                f"({per_state * 1e6:.2f} us/evaluation, closed-system degassing + speciation + scrubbing)")
+        if cantera_per_state:
+            target = 10 if batch >= 1000 else 2
+            line += (f" -> {cantera_per_state / per_state:.1f}x Cantera's per-state time "
+                     f"(target >= {target}x)")
+        print(line)
+
+
+def run_benchmarks(quick=False, only=None):
+    sections = only or ["speciation", "forward"]
+    cantera = None
+    if "speciation" in sections or "forward" in sections:
+        _, cantera = bench_speciation(n=20_000 if quick else 100_000, n_cantera=300 if quick else 2000)
+    if "forward" in sections:
+        bench_forward(cantera, quick=quick)
