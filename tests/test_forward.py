@@ -1,0 +1,90 @@
+"""The forward model: parameter arrays in, gas ratios out."""
+import os
+
+import numpy as np
+import pytest
+
+from ventsource.errors import InputError
+from ventsource.forward import ForwardModel, STATUS_OK
+from ventsource.priors import load_prior_file
+from ventsource.species import INDEX
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+
+def _model(name, ratios=("SO2/CO2", "H2S/SO2", "H2O/CO2")):
+    spec = load_prior_file(os.path.join(ROOT, "priors", name))
+    return spec, ForwardModel(spec, ratios)
+
+
+@pytest.mark.parametrize("name", ["arc_basalt.toml", "rhyolite_silicic.toml",
+                                  "ocean_island_basalt.toml"])
+def test_ratio_shape_and_nan_rows_match_status(name):
+    spec, model = _model(name)
+    theta = spec.full(spec.sample(np.random.default_rng(21), 120))
+    r = model.ratios(theta)
+    st = model.status(theta)
+    assert r.shape == (120, 3)
+    bad = st != STATUS_OK
+    assert np.all(np.isnan(r[bad]))
+    assert np.all(np.isfinite(r[~bad]))
+    assert np.all(r[~bad] > 0)
+    assert model.parameter_names == spec.parameter_names
+    r2, st2 = model.ratios_and_status(theta)
+    np.testing.assert_array_equal(r2, r)
+    np.testing.assert_array_equal(st2, st)
+
+
+def test_states_without_gas_give_nan_rows():
+    # Rhyolite prior: a good share of states are undersaturated at P (status 1).
+    spec, model = _model("rhyolite_silicic.toml")
+    theta = spec.full(spec.sample(np.random.default_rng(22), 120))
+    st = model.status(theta)
+    assert np.any(st == 1)
+    assert np.all(np.isnan(model.ratios(theta)[st == 1]))
+
+
+def test_wrong_column_count_is_a_value_error():
+    spec, model = _model("arc_basalt.toml")
+    theta = spec.full(spec.sample(np.random.default_rng(23), 3))
+    with pytest.raises(ValueError, match="columns"):
+        model.ratios(theta[:, :-1])
+
+
+def test_unknown_ratio_name_is_a_one_line_input_error():
+    spec = load_prior_file(os.path.join(ROOT, "priors", "arc_basalt.toml"))
+    with pytest.raises(InputError) as err:
+        ForwardModel(spec, ("SO2/CO2", "SO2/XY3"))
+    msg = str(err.value)
+    assert "\n" not in msg and "XY3" in msg
+    with pytest.raises(InputError) as err:
+        ForwardModel(spec, ("SO2-CO2",))
+    assert "\n" not in str(err.value)
+
+
+def test_co2_over_total_sulfur():
+    # ST = SO2 + H2S (total sulfur as in-plume sensors see it; common practice, no source)
+    spec, model = _model("arc_basalt.toml", ("CO2/ST", "SO2/CO2"))
+    theta = spec.full(spec.sample(np.random.default_rng(24), 60))
+    state = model.state(theta)
+    gas = state["gas"]
+    ok = state["status"] == STATUS_OK
+    assert ok.sum() > 30
+    expected = gas[ok, INDEX["CO2"]] / (gas[ok, INDEX["SO2"]] + gas[ok, INDEX["H2S"]])
+    np.testing.assert_allclose(state["ratios"][ok, 0], expected, rtol=1e-12)
+    np.testing.assert_allclose(model.ratios(theta)[ok, 0], expected, rtol=1e-12)
+
+
+def test_scrubbing_parameter_acts_on_ratios():
+    # Same magma, more SO2 scrubbed: lower SO2/CO2 (common practice, no source).
+    spec, model = _model("arc_basalt.toml")
+    theta = spec.full(spec.sample(np.random.default_rng(25), 20))
+    col = spec.parameter_names.index("scrubbed_so2")
+    theta[:, col] = 0.0
+    clean = model.ratios(theta)
+    theta[:, col] = 0.8
+    scrubbed = model.ratios(theta)
+    ok = np.isfinite(clean[:, 0])
+    assert ok.sum() > 10
+    np.testing.assert_allclose(scrubbed[ok, 0], 0.2 * clean[ok, 0], rtol=1e-12)
+    assert np.all(scrubbed[ok, 1] > clean[ok, 1])
