@@ -108,8 +108,6 @@ def test_open_system_status_and_ratios(path):
     assert np.all(np.isfinite(h2o_co2)) and np.all(np.isfinite(so2_co2))
 
 
-@pytest.mark.xfail(strict=True, reason="src bug: degassing._degas_batch falls back to a "
-                   "closed-system solve when the saturation pressure comes back NaN")
 @pytest.mark.parametrize("path", [os.path.join(ROOT, "priors", "rhyolite_silicic.toml")],
                          ids=os.path.basename)
 def test_open_system_gas_has_a_saturation_pressure(path):
@@ -121,8 +119,6 @@ def test_open_system_gas_has_a_saturation_pressure(path):
     assert np.all(cols["pressure_bar"][ok] <= res.saturation_pressure_bar[ok] * (1 + 1e-6))
 
 
-@pytest.mark.xfail(strict=True, reason="src bug: undersaturated rhyolite states above the "
-                   "saturation pressure end as solver failures (status 2) instead of status 1")
 def test_undersaturated_rhyolite_reports_no_gas():
     # Liu et al. (2005) H2O law: ~5.8 wt% dissolves at 190 MPa, 850 C (rhyolite;
     # value noted in solubility_registry.LAW_NOTES), so 3.1 wt% H2O at 1900 bar is

@@ -229,6 +229,7 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess):
     """Closed-system equilibrium for one context; z = (u0, u1, u2, g) in/out. Returns status."""
     if use_guess:
         _initial_guess(ctx, h_law, h_par, c_law, c_par, z)
+    g_start = z[3]
     r = np.empty(4)
     rt = np.empty(4)
     jac = np.empty((4, 4))
@@ -283,6 +284,11 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess):
     if not converged and merit < 1e-20:
         converged = True
     if not converged:
+        # Well above saturation the 4-D iteration can stall at g < 0; the H2O-CO2
+        # start already shows the magma holds all its volatiles there.
+        if g_start < 0.0:
+            z[3] = g_start
+            return STATUS_NO_GAS
         return STATUS_FAILED
     # normalise away the last 1e-12 of the sum
     s = 0.0
@@ -355,8 +361,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         if open_system and math.isfinite(psat) and psat > pressure_bar[j]:
             st = _open_path(ctx, psat, pressure_bar[j], n_open_steps, h_law, h_par, c_law, c_par,
                             ideal, ln_k, ln_phi, z, x_out[j], mg)
-        elif open_system and math.isinf(psat):
-            st = STATUS_FAILED  # saturated beyond the cap: no defined path
+        elif open_system and (math.isinf(psat) or math.isnan(psat)):
+            st = STATUS_FAILED  # no defined open-system path without a saturation pressure
         else:
             _fill_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], n_h, n_c, n_s, d_s[j],
                           ideal, ln_k, ln_phi)
