@@ -76,6 +76,24 @@ def build_parser():
     pp.add_argument("--seed", type=int, default=0)
     pp.set_defaults(handler=cmd_prior_predictive)
 
+    rp = sub.add_parser("run", help="invert every row of a measurement file")
+    rp.add_argument("data", help="measurement CSV (see README)")
+    rp.add_argument("--prior", required=True)
+    rp.add_argument("--out", required=True, help="output directory")
+    rp.add_argument("--workers", type=int, default=1)
+    rp.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
+    rp.add_argument("--seed", type=int, default=0)
+    rp.add_argument("--sigma", type=float, default=None,
+                    help="default relative 1-sigma of every ratio (else the prior file's)")
+    rp.add_argument("--target-ess", type=float, default=1000.0)
+    rp.set_defaults(handler=cmd_run)
+
+    dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted")
+    dp.add_argument("--out", default="demo-output")
+    dp.add_argument("--rows", type=int, default=8)
+    dp.add_argument("--workers", type=int, default=2)
+    dp.set_defaults(handler=cmd_demo)
+
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
     bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
     bp.add_argument("--only", choices=["speciation", "forward"], action="append",
@@ -236,6 +254,32 @@ def cmd_prior_predictive(args):
     run_prior_predictive(spec, args.n, args.out, plot_path=args.plot, data_path=args.data,
                          x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
     print(f"wrote {args.out}" + (f" and {args.plot}" if args.plot else ""))
+    return 0
+
+
+def cmd_run(args):
+    from .caution import CAUTION
+    from .measurements import read_measurements
+    from .series import run_series
+    spec = _load_prior(args.prior)
+    if args.workers < 1:
+        raise InputError("--workers must be at least 1")
+    sigma = args.sigma if args.sigma is not None else float(spec.likelihood.get("relative_sigma", 0.15))
+    series = read_measurements(args.data, default_sigma=sigma)
+    run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
+               resume=args.resume, options=dict(target_ess=args.target_ess))
+    print(f"results in {args.out}/summary.csv and {args.out}/rows/*.nc")
+    print(f"Caution: {CAUTION}")
+    return 0
+
+
+def cmd_demo(args):
+    from .caution import CAUTION
+    from .demo import run_demo
+    out = run_demo(args.out, n_rows=args.rows, workers=args.workers)
+    print(f"demo outputs in {out}/: measurements.csv (synthetic), truth.csv, summary.csv, "
+          f"series.png, rows/*.nc")
+    print(f"Caution: {CAUTION}")
     return 0
 
 

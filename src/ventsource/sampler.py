@@ -67,7 +67,25 @@ class LogPosterior:
 
     def __call__(self, theta):
         post, ll, pred = self.evaluate(theta)
-        return np.column_stack([post, ll, pred])
+        return np.column_stack([post, post, ll, pred])
+
+
+class TransformedLogPosterior(LogPosterior):
+    """The same posterior in the unbounded space u = T(theta) (logit for two-sided bounds,
+    log for one-sided), density p(theta(u)) |d theta / d u|.  The stretch move is affine
+    invariant but not invariant under nonlinear maps; on [0, 1] fractions and log-uniform
+    nuisance parameters the unbounded space removes hard walls and long one-sided tails
+    (common practice, no source).  __call__ returns [log p_u, log p_theta, log L, pred]."""
+
+    def __init__(self, prior, forward, likelihood, transform):
+        super().__init__(prior, forward, likelihood)
+        self.transform = transform
+
+    def __call__(self, u):
+        u = np.atleast_2d(np.asarray(u, dtype=float))
+        theta, logj = self.transform.inverse(u)
+        post, ll, pred = self.evaluate(theta)
+        return np.column_stack([post + logj, post, ll, pred])
 
 
 @dataclass
@@ -118,11 +136,15 @@ def initial_walkers(prior, logpost: LogPosterior, n_walkers: int, rng: np.random
 def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_walkers: int | None = None,
                      target_ess: float = 2000.0, max_steps: int = 20000, chunk: int = 200,
                      burn_factor: float = 3.0, min_tau_factor: float = 30.0, moves=None,
-                     init_from_posterior_fraction: float = 0.0) -> SampleResult:
+                     space: str = "unbounded") -> SampleResult:
     """Run emcee until the target ESS is reached (or max_steps).
 
     seed seeds both the initial positions (numpy Generator) and emcee's own RandomState.
+    space: "unbounded" (walk in u = logit/log of the bounded parameters, bounds from
+    bridge.support_bounds; identity where unknown) or "prior" (walk in the prior's own
+    space, -inf outside the support).  Draws are always returned in the prior's space.
     """
+    from .bridge import Transform, support_bounds
     rng = np.random.default_rng(seed)
     d = len(prior.free_names)
     if d == 0:
@@ -132,8 +154,16 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     n_walkers = int(n_walkers) + int(n_walkers) % 2
     if n_walkers < 2 * d:
         raise SamplerError(f"n_walkers={n_walkers} must be at least twice the number of free parameters ({d})")
-    logpost = LogPosterior(prior, forward, likelihood)
+    if space not in ("unbounded", "prior"):
+        raise SamplerError(f"sampling space {space!r} unknown; use 'unbounded' or 'prior'")
+    tr = Transform(support_bounds(prior)) if space == "unbounded" else None
+    logpost = LogPosterior(prior, forward, likelihood) if tr is None else \
+        TransformedLogPosterior(prior, forward, likelihood, tr)
     p0, n_init_bad = initial_walkers(prior, logpost, n_walkers, rng)
+    if tr is not None:
+        p0 = tr.forward(p0)
+        if not np.all(np.isfinite(p0)):
+            raise SamplerError("a prior draw lies exactly on a support bound; cannot map it to the unbounded space")
     m = likelihood.n_predicted
     sampler = emcee.EnsembleSampler(n_walkers, d, logpost, vectorize=True, moves=moves)
     # emcee draws its proposals from its own RandomState: seed it from our Generator
@@ -160,15 +190,18 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else float(n_steps) / 10.0
     burn = min(int(np.ceil(burn_factor * tmax)), n_steps // 2)
     chain = np.swapaxes(sampler.get_chain(discard=burn), 0, 1)
-    lpost = sampler.get_log_prob(discard=burn).T
-    blobs = np.asarray(sampler.get_blobs(discard=burn), dtype=float).reshape(-1, n_walkers, 1 + m)
-    ll = blobs[:, :, 0].T
-    pred = np.swapaxes(blobs[:, :, 1:], 0, 1)
+    if tr is not None:
+        chain = tr.inverse(chain.reshape(-1, d))[0].reshape(chain.shape)
+    blobs = np.asarray(sampler.get_blobs(discard=burn), dtype=float).reshape(-1, n_walkers, 2 + m)
+    lpost = blobs[:, :, 0].T   # log posterior density in the prior's space
+    ll = blobs[:, :, 1].T
+    pred = np.swapaxes(blobs[:, :, 2:], 0, 1)
     ess_est = n_walkers * (n_steps - burn) / tmax
     stats = {"n_forward_evals": logpost.n_forward_evals, "n_failed_states": logpost.n_failed,
              "n_init_failed": n_init_bad, "tau_max": tmax, "burn": burn, "n_steps": n_steps,
              "n_walkers": n_walkers, "ess_estimate": ess_est, "converged": converged,
-             "mean_acceptance": float(np.mean(sampler.acceptance_fraction)), "seed": seed}
+             "mean_acceptance": float(np.mean(sampler.acceptance_fraction)), "seed": seed,
+             "space": space}
     return SampleResult(free_names=tuple(prior.free_names), chain=chain, log_posterior=lpost,
                         log_likelihood=ll, predictions=pred, tau=np.asarray(tau), burn=burn,
                         n_steps=n_steps, thin=1, converged=converged,

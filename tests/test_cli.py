@@ -1,0 +1,78 @@
+"""Command-line behaviour: public option names, JSON shape, one-line errors with exit 2."""
+import json
+import subprocess
+import sys
+
+import pytest
+
+from ventsource.cli import main
+
+
+def run(args, capsys):
+    code = main(args)
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_speciate_json_has_the_public_fields(capsys):
+    code, out, _ = run(["speciate", "--temperature-c", "1100", "--pressure-bar", "100", "--dfmq",
+                        "1", "--bulk", "H2O=90,CO2=8,SO2=2", "--json"], capsys)
+    assert code == 0
+    doc = json.loads(out)
+    assert set(doc["species"]) == {"H2O", "H2", "O2", "CO2", "CO", "CH4", "SO2", "H2S", "S2", "COS"}
+    assert abs(sum(doc["species"].values()) - 1.0) < 1e-12
+    assert set(doc["fugacity_coefficients"]) == set(doc["species"])
+    # Frost 1991 FMQ at 1373.15 K and 100 bar, plus 1
+    expected = -25096.3 / 1373.15 + 8.735 + 0.110 * 99 / 1373.15 + 1
+    assert abs(doc["log_fO2"] - expected) < 1e-9
+
+
+@pytest.mark.parametrize("args,needle", [
+    (["--temperature-c", "1500"], "outside the supported range"),
+    (["--pressure-bar", "0"], "outside the supported range"),
+    (["--dfmq", "7"], "outside the supported range"),
+    (["--bulk", "H2O=90,Xe=2"], "unknown species"),
+    (["--bulk", "H2O=-1,CO2=1,SO2=1"], "positive"),
+    (["--bulk", "H2O=0,CO2=1,SO2=1"], "positive"),
+    (["--bulk", "H2O90"], "NAME=AMOUNT"),
+    (["--bulk", "H2O=abc,CO2=1,SO2=1"], "not a number"),
+    (["--bulk", "H2O=90,CO2=8"], "no S"),
+])
+def test_speciate_bad_input_is_one_line_exit_2(args, needle, capsys):
+    base = {"--temperature-c": "1100", "--pressure-bar": "100", "--dfmq": "1",
+            "--bulk": "H2O=90,CO2=8,SO2=2"}
+    for k, v in zip(args[::2], args[1::2]):
+        base[k] = v
+    argv = ["speciate"] + [x for kv in base.items() for x in kv]
+    code, out, err = run(argv, capsys)
+    assert code == 2
+    assert needle in err
+    assert err.strip().count("\n") == 0 and "Traceback" not in err
+
+
+def test_forward_json(capsys):
+    code, out, _ = run(["forward", "--prior", "priors/arc_basalt.toml", "--set", "pressure_bar=200",
+                        "temperature_c=1100", "dfmq=1", "scrubbed_so2=0.3", "h2o_wt=4",
+                        "co2_ppm=2000", "s_ppm=2000", "s_partition=100", "--json"], capsys)
+    assert code == 0
+    doc = json.loads(out)
+    for key in ("ratios", "gas", "gas_wt_fraction", "saturation_pressure_bar"):
+        assert key in doc
+    assert doc["ratios"]["SO2/CO2"] > 0 and doc["saturation_pressure_bar"] > 200
+
+
+@pytest.mark.parametrize("extra,needle", [
+    (["nonsense=1"], "unknown parameter"),
+    (["pressure_bar=-5"], "unphysical"),
+    (["pressure_bar=abc"], "not a number"),
+])
+def test_forward_bad_set(extra, needle, capsys):
+    code, _, err = run(["forward", "--prior", "priors/arc_basalt.toml", "--set"] + extra, capsys)
+    assert code == 2 and needle in err and err.strip().count("\n") == 0
+
+
+def test_console_script_runs_without_traceback():
+    proc = subprocess.run([sys.executable, "-m", "ventsource.cli", "speciate", "--temperature-c",
+                           "abc"], capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr and "not a number" in proc.stderr
