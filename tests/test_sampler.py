@@ -141,3 +141,24 @@ def test_sbc_full():
         k = cover[:, j].sum()
         lo, hi = stats.binom.ppf([0.0005, 0.9995], n, 0.9)
         assert lo <= k <= hi, k
+
+
+@pytest.mark.parametrize("space", ["unbounded", "prior"])
+def test_bounded_posterior_matches_weighted_prior_draws(space):
+    # reference: posterior moments by likelihood weighting of 400 000 prior draws
+    # (self-normalised importance sampling with the prior as proposal)
+    pr = scrub_toy_prior()
+    fw = ScrubToyForward(pr)
+    m = Measurement(fw.ratio_names, [1.1, 0.22, 17.0], 0.15, [0, -1, 0])
+    lik = Likelihood(m, prediction_names=fw.ratio_names)
+    rng = np.random.default_rng(8)
+    th = pr.sample(rng, 400_000)
+    ll = lik(fw.ratios(pr.full(th)))
+    w = np.exp(ll - ll.max())
+    w /= w.sum()
+    mean = w @ th
+    sd = np.sqrt(w @ (th - mean) ** 2)
+    r = sample_posterior(pr, fw, lik, seed=4, target_ess=2000, space=space)
+    assert r.stats["space"] == space
+    np.testing.assert_allclose(r.flat.mean(axis=0), mean, atol=0.1 * sd.max())
+    np.testing.assert_allclose(r.flat.std(axis=0), sd, rtol=0.08)
