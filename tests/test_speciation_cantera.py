@@ -11,23 +11,14 @@ import pytest
 
 from ventsource.buffers import log10_fo2_from_dfmq
 from ventsource.species import SPECIES
+from ventsource.bench import cantera_reference_gas
 from ventsource.speciation import speciate, STATUS_OK
 
 ct = pytest.importorskip("cantera")
 
 
 def cantera_gas():
-    species = []
-    for s in ct.Species.list_from_file("nasa_gas.yaml"):
-        if s.name in SPECIES:
-            d = s.thermo.input_data
-            t_low, t_mid, t_high = d["temperature-ranges"]
-            low, high = d["data"]
-            coeffs = np.concatenate([[t_mid], high, low])
-            s.thermo = ct.NasaPoly2(t_low, t_high, 1e5, coeffs)
-            species.append(s)
-    gas = ct.Solution(thermo="ideal-gas", species=species)
-    return gas
+    return cantera_reference_gas()
 
 
 def box_states(n, seed):

@@ -25,11 +25,10 @@ def _box(n, seed=42):
     return t_k, p, log10_fo2_from_dfmq(dfmq, t_k, p), c_h, s_h
 
 
-def _cantera_seconds_per_state(t_k, p, x):
-    try:
-        import cantera as ct
-    except ImportError:
-        return None
+def cantera_reference_gas():
+    """Cantera ideal gas of SPECIES from its bundled NASA Glenn data, rebuilt with
+    the 1 bar reference pressure of McBride et al. (2002) (Cantera stores 1 atm)."""
+    import cantera as ct
     species = []
     for s in ct.Species.list_from_file("nasa_gas.yaml"):
         if s.name in SPECIES:
@@ -38,7 +37,14 @@ def _cantera_seconds_per_state(t_k, p, x):
             low, high = d["data"]
             s.thermo = ct.NasaPoly2(t_low, t_high, 1e5, np.concatenate([[t_mid], high, low]))
             species.append(s)
-    gas = ct.Solution(thermo="ideal-gas", species=species)
+    return ct.Solution(thermo="ideal-gas", species=species)
+
+
+def _cantera_seconds_per_state(t_k, p, x):
+    try:
+        gas = cantera_reference_gas()
+    except ImportError:
+        return None
     start = time.perf_counter()
     for j in range(t_k.size):
         gas.TPX = t_k[j], p[j] * 1e5, dict(zip(SPECIES, x[j]))
