@@ -1,0 +1,82 @@
+"""Measurement CSV files: good files parse; malformed ones give one line naming file, row, column."""
+import numpy as np
+import pytest
+
+from ventsource.errors import InputError
+from ventsource.measurements import read_measurements
+
+GOOD = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2,sigma SO2/CO2\n"
+        "A-1,2026-03-14T10:20:00Z,0.61,0.21,25.0,\n"
+        "A-2,2026-03-15,0.35,<0.05,31.2,0.25\n"
+        "A-3,2026-03-16T11:45:00,0.28,0.40,,\n")
+
+
+def write(tmp_path, text, name="m.csv", raw=None):
+    p = tmp_path / name
+    if raw is not None:
+        p.write_bytes(raw)
+    else:
+        p.write_text(text, encoding="utf-8")
+    return str(p)
+
+
+def test_good_file(tmp_path):
+    s = read_measurements(write(tmp_path, GOOD), default_sigma=0.15)
+    assert s.ids == ["A-1", "A-2", "A-3"]
+    assert s.ratio_names == ("SO2/CO2", "H2S/SO2", "H2O/CO2")
+    m2 = s.measurements[1]
+    assert m2.censoring.tolist() == [0, -1, 0]           # "<0.05" is an upper limit
+    assert m2.values[1] == 0.05                           # kept as the limit of a censored term
+    assert m2.relative_sigma.tolist() == [0.25, 0.15, 0.15]
+    assert np.isnan(s.measurements[2].values[2])          # missing stays missing
+
+
+def test_bom_is_accepted(tmp_path):
+    s = read_measurements(write(tmp_path, None, raw=b"\xef\xbb\xbf" + GOOD.encode()))
+    assert len(s) == 3
+
+
+BAD = {
+    "empty": ("", "empty"),
+    "header only": ("id,time,SO2/CO2\n", "no data rows"),
+    "no id column": ("time,SO2/CO2\n2026-01-01,0.5\n", "column 'id'"),
+    "no time column": ("id,SO2/CO2\nA,0.5\n", "column 'time'"),
+    "no ratio column": ("id,time\nA,2026-01-01\n", "no ratio columns"),
+    "unknown species": ("id,time,SO2/XX\nA,2026-01-01,0.5\n", "column 'SO2/XX'"),
+    "text in number": ("id,time,SO2/CO2\nA,2026-01-01,abc\n", "row 2, column 'SO2/CO2'"),
+    "negative ratio": ("id,time,SO2/CO2\nA,2026-01-01,-0.5\n", "positive"),
+    "zero ratio": ("id,time,SO2/CO2\nA,2026-01-01,0\n", "positive"),
+    "bad time": ("id,time,SO2/CO2\nA,yesterday,0.5\n", "column 'time'"),
+    "duplicate id": ("id,time,SO2/CO2\nA,2026-01-01,0.5\nA,2026-01-02,0.6\n", "duplicate identifier"),
+    "semicolon delimiter": ("id;time;SO2/CO2\nA;2026-01-01;0.5\n", "delimiter"),
+    "tab delimiter": ("id\ttime\tSO2/CO2\nA\t2026-01-01\t0.5\n", "delimiter"),
+    "short row": ("id,time,SO2/CO2,H2S/SO2\nA,2026-01-01,0.5\n", "row 2"),
+    "all missing": ("id,time,SO2/CO2\nA,2026-01-01,\n", "every ratio is missing"),
+    "empty id": ("id,time,SO2/CO2\n,2026-01-01,0.5\n", "column 'id'"),
+    "bad sigma": ("id,time,SO2/CO2,sigma SO2/CO2\nA,2026-01-01,0.5,x\n", "column 'sigma SO2/CO2'"),
+    "negative sigma": ("id,time,SO2/CO2,sigma SO2/CO2\nA,2026-01-01,0.5,-1\n", "relative 1-sigma"),
+    "sigma for absent ratio": ("id,time,SO2/CO2,sigma H2S/SO2\nA,2026-01-01,0.5,0.1\n", "not a ratio column"),
+    "duplicate column": ("id,time,SO2/CO2,SO2/CO2\nA,2026-01-01,0.5,0.5\n", "appears twice"),
+    "time offset": ("id,time,SO2/CO2\nA,2026-01-01T10:00:00+02:00,0.5\n", "UTC"),
+    "infinite ratio": ("id,time,SO2/CO2\nA,2026-01-01,inf\n", "positive finite"),
+    "censor without number": ("id,time,SO2/CO2\nA,2026-01-01,<\n", "not a number"),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD))
+def test_malformed_files_give_one_line(tmp_path, case):
+    text, needle = BAD[case]
+    path = write(tmp_path, text)
+    with pytest.raises(InputError) as err:
+        read_measurements(path)
+    msg = str(err.value)
+    assert msg.startswith(path + ":"), msg
+    assert needle in msg, msg
+    assert "\n" not in msg
+
+
+def test_not_utf8_and_missing_file(tmp_path):
+    with pytest.raises(InputError, match="not UTF-8"):
+        read_measurements(write(tmp_path, None, raw=b"id,time,SO2/CO2\nA,2026,\xff\xfe\n"))
+    with pytest.raises(InputError, match="file not found"):
+        read_measurements(str(tmp_path / "nope.csv"))
