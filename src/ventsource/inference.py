@@ -35,7 +35,7 @@ PARAMETER_UNITS = {
 
 _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, target_ess=2000.0,
                  max_steps=20000, alpha=0.01, n_prior_draws=2000, scrub_name="scrubbed_so2",
-                 n_proposal=None, model_choice=True, burn_factor=3.0, min_tau_factor=30.0,
+                 n_proposal=20000, model_choice=True, space="unbounded", burn_factor=3.0, min_tau_factor=30.0,
                  chunk=200, max_error_p=0.05, rhat_max=1.05)
 
 
@@ -154,7 +154,8 @@ def _run_model(name, prior, forward, lik, seeds, opt) -> ModelRun:
         return ModelRun(name, prior, None, None, chk, ll, 0.0)
     s = sample_posterior(prior, forward, lik, seed=seeds[0], n_walkers=opt["n_walkers"],
                          target_ess=opt["target_ess"], max_steps=opt["max_steps"], chunk=opt["chunk"],
-                         burn_factor=opt["burn_factor"], min_tau_factor=opt["min_tau_factor"])
+                         burn_factor=opt["burn_factor"], min_tau_factor=opt["min_tau_factor"],
+                         space=opt["space"])
     lp = LogPosterior(prior, forward, lik)
     b = bridge_sampling(s.chain, lambda th: lp.evaluate(th)[0], support_bounds(prior), seed=seeds[1],
                         n_proposal=opt["n_proposal"], log_target_chain=s.log_posterior)
@@ -224,7 +225,8 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     options (defaults): kind/dof (from prior.likelihood, else "normal"/4), epsilon=0.05
     (threshold for P(scrubbed < epsilon | data, M1)), pi0 (prior.p_magmatic, else 0.5),
     n_walkers, target_ess=2000, max_steps=20000, alpha=0.01 (predictive check level),
-    n_prior_draws=2000, scrub_name="scrubbed_so2", n_proposal (bridge), model_choice=True,
+    n_prior_draws=2000, scrub_name="scrubbed_so2", n_proposal=20000 (bridge proposal draws),
+    model_choice=True, space="unbounded" (sampler space, see sampler.sample_posterior),
     burn_factor=3, min_tau_factor=30, chunk=200, max_error_p=0.05 and rhat_max=1.05 (flag
     thresholds).
     """
@@ -254,6 +256,8 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
         run1 = _run_model("M1", prior, forward, lik, seeds[0:3], opt)
     except SamplerError as e:
         raise InferenceError(f"infer: model M1: {e}") from None
+    except ValueError as e:  # e.g. bridge sampling with too few usable draws
+        raise InferenceError(f"infer: model M1: {str(e).splitlines()[0]}") from None
     runs = {"M1": run1}
     run0 = None
     if do_choice:
