@@ -105,10 +105,19 @@ def bench_forward(cantera_per_state, quick=False):
         print(line)
 
 
+SECTIONS = ("speciation", "forward", "inference", "series")
+
+
 def run_benchmarks(quick=False, only=None):
-    sections = only or ["speciation", "forward"]
+    sections = only or list(SECTIONS)
     cantera = None
     if "speciation" in sections or "forward" in sections:
         _, cantera = bench_speciation(n=20_000 if quick else 100_000, n_cantera=300 if quick else 2000)
     if "forward" in sections:
         bench_forward(cantera, quick=quick)
+    if "inference" in sections:
+        from .bench_inference import bench_inference
+        bench_inference(quick=quick)
+    if "series" in sections:
+        from .bench_series import bench_series
+        bench_series(quick=quick)
