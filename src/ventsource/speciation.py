@@ -15,6 +15,8 @@ fugacities use the Lewis-Randall rule, f_i = x_i phi_i(T, P) P, so the
 fugacity coefficients are constants for a state and the solver is the same
 for ideal and real gas.
 """
+import math
+
 import numpy as np
 from numba import njit
 
@@ -171,12 +173,12 @@ def new_scratch():
     return np.empty(SCRATCH_SIZE)
 
 
-SCRATCH_SIZE = 3 * 10 + 6 * 3 + 2 * 9 + 6 * 4
+SCRATCH_SIZE = 3 * 10 + 6 * 3 + 2 * 9 + 6 * 4 + 10
 
 
 @njit(cache=True)
-def speciate_state(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w, x_out, scratch):
-    """Solve one state; fills mole fractions x_out; returns (status, iterations, u).
+def _speciate_state_logspace(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w, x_out, scratch):
+    """Log-space solver (fallback of speciate_state); fills x_out; returns (status, iterations).
 
     ln_phi: ln fugacity coefficients; ln_p: ln total pressure (bar);
     b_h, b_c, b_s: moles of H, C, S in any common unit (only ratios matter).
@@ -271,6 +273,186 @@ def speciate_state(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_
         for i in range(n):
             if i != 2:
                 x_out[i] *= f
+    return status, it
+
+
+@njit(cache=True, fastmath={'contract', 'arcp'})
+def _poly_residual(u0, u1, u2, c, ln_scale_c, ln_scale_s):
+    """Residuals and Jacobian of the three equations in monomial form.
+
+    With a = e^u0, b = e^u1, r = e^(u2/2) every mole fraction is a monomial
+    x_i = c_i a^p b^q r^s (c_i = e^offset_i, computed once per state), so one
+    evaluation costs three exponentials and three logarithms instead of one
+    exponential per species. Returns (merit, r0, r1, r2, J00, ..., J22);
+    merit is inf where a sum is not a positive finite number.
+    """
+    a = math.exp(u0)
+    b = math.exp(u1)
+    r = math.exp(0.5 * u2)
+    x0 = c[0] * a
+    x1 = c[1] * a
+    x3 = c[3] * b
+    x4 = c[4] * b
+    x5 = c[5] * a * a * b
+    x6 = c[6] * r
+    x7 = c[7] * a * r
+    x8 = c[8] * r * r
+    x9 = c[9] * b * r
+    # sums and their derivatives in u (exponent-weighted sums)
+    h2 = x0 + x1
+    c2 = x3 + x4
+    total = h2 + c[2] + c2 + x5 + x6 + x7 + x8 + x9
+    t0 = h2 + 2.0 * x5 + x7
+    t1 = c2 + x5 + x9
+    t2 = 0.5 * (x6 + x7 + x9) + x8
+    hs = 2.0 * h2 + 4.0 * x5 + 2.0 * x7
+    h0 = 2.0 * h2 + 8.0 * x5 + 2.0 * x7
+    h1 = 4.0 * x5
+    h2d = x7
+    cs = t1
+    c0 = 2.0 * x5
+    c2d = 0.5 * x9
+    ss = x6 + x7 + 2.0 * x8 + x9
+    s0 = x7
+    s1 = x9
+    s2 = 0.5 * (x6 + x7 + x9) + 2.0 * x8
+    if not (total > 0.0 and hs > 0.0 and cs > 0.0 and ss > 0.0
+            and total < 1e300 and hs < 1e300 and cs < 1e300 and ss < 1e300):
+        return (math.inf, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0)
+    inv_t = 1.0 / total
+    inv_h = 1.0 / hs
+    inv_c = 1.0 / cs
+    inv_s = 1.0 / ss
+    res0 = math.log(total)
+    res1 = math.log(cs * inv_h) - ln_scale_c
+    res2 = math.log(ss * inv_h) - ln_scale_s
+    dh0 = h0 * inv_h
+    dh1 = h1 * inv_h
+    dh2 = h2d * inv_h
+    return (res0 * res0 + res1 * res1 + res2 * res2, res0, res1, res2,
+            t0 * inv_t, t1 * inv_t, t2 * inv_t,
+            c0 * inv_c - dh0, 1.0 - dh1, c2d * inv_c - dh2,
+            s0 * inv_s - dh0, s1 * inv_s - dh1, s2 * inv_s - dh2)
+
+
+@njit(cache=True)
+def _poly_fractions(u0, u1, u2, c, x_out):
+    a = math.exp(u0)
+    b = math.exp(u1)
+    r = math.exp(0.5 * u2)
+    x_out[0] = c[0] * a
+    x_out[1] = c[1] * a
+    x_out[2] = c[2]
+    x_out[3] = c[3] * b
+    x_out[4] = c[4] * b
+    x_out[5] = c[5] * a * a * b
+    x_out[6] = c[6] * r
+    x_out[7] = c[7] * a * r
+    x_out[8] = c[8] * r * r
+    x_out[9] = c[9] * b * r
+
+
+@njit(cache=True)
+def _start(offsets, b_h, b_c, b_s):
+    """Safe start: H as H2O + H2, C as CO2 + CO, S as SO2 + H2S, ratios set by fO2."""
+    r_h2 = math.exp(offsets[1] - offsets[0])
+    r_co = math.exp(offsets[4] - offsets[3])
+    n_h2o = 0.5 * b_h / (1.0 + r_h2)
+    n_co2 = b_c / (1.0 + r_co)
+    tot = 0.5 * b_h + b_c + b_s
+    u0 = math.log(n_h2o / tot) - offsets[0]
+    u1 = math.log(n_co2 / tot) - offsets[3]
+    # split S between SO2 and H2S: ln(x_SO2/x_H2S) = off6 - off7 - u0 (the S2 terms cancel)
+    ln_r = offsets[6] - offsets[7] - u0
+    if ln_r > 0:
+        frac_so2 = 1.0 / (1.0 + math.exp(-ln_r))
+    else:
+        er = math.exp(ln_r)
+        frac_so2 = er / (1.0 + er)
+    x_s = max(frac_so2, 1e-300) * b_s / tot
+    u2 = 2.0 * (math.log(x_s) - offsets[6])
+    return u0, u1, u2
+
+
+@njit(cache=True)
+def _speciate_monomial(offsets, b_h, b_c, b_s, x_out, c):
+    """Damped Newton on the monomial form; returns (status, iterations)."""
+    for i in range(10):
+        c[i] = math.exp(offsets[i])
+    ln_c_h = math.log(b_c / b_h)
+    ln_s_h = math.log(b_s / b_h)
+    u0, u1, u2 = _start(offsets, b_h, b_c, b_s)
+    (merit, r0, r1, r2, j00, j01, j02, j10, j11, j12, j20, j21, j22) = _poly_residual(
+        u0, u1, u2, c, ln_c_h, ln_s_h)
+    tol2 = TOLERANCE * TOLERANCE
+    if not merit < math.inf:
+        return STATUS_NOT_CONVERGED, 0
+    it = 0
+    while it < MAX_ITERATIONS:
+        if merit < tol2:
+            _poly_fractions(u0, u1, u2, c, x_out)
+            return STATUS_OK, it
+        it += 1
+        # Newton step by Cramer's rule
+        m00 = j11 * j22 - j12 * j21
+        m01 = j10 * j22 - j12 * j20
+        m02 = j10 * j21 - j11 * j20
+        det = j00 * m00 - j01 * m01 + j02 * m02
+        if not (abs(det) > 1e-300 and abs(det) < math.inf):
+            break
+        inv = -1.0 / det
+        d0 = (r0 * m00 - j01 * (r1 * j22 - j12 * r2) + j02 * (r1 * j21 - j11 * r2)) * inv
+        d1 = (j00 * (r1 * j22 - j12 * r2) - r0 * m01 + j02 * (j10 * r2 - r1 * j20)) * inv
+        d2 = (j00 * (j11 * r2 - r1 * j21) - j01 * (j10 * r2 - r1 * j20) + r0 * m02) * inv
+        # limit the step to 10 natural-log units, then backtrack on the merit
+        biggest = max(abs(d0), abs(d1), abs(d2))
+        scale = 1.0 if biggest < 10.0 else 10.0 / biggest
+        accepted = False
+        for _ in range(40):
+            t = _poly_residual(u0 + scale * d0, u1 + scale * d1, u2 + scale * d2, c,
+                               ln_c_h, ln_s_h)
+            if t[0] < merit * (1.0 - 1e-4 * scale) or t[0] < tol2:
+                accepted = True
+                break
+            scale *= 0.5
+        if not accepted:
+            break
+        u0 += scale * d0
+        u1 += scale * d1
+        u2 += scale * d2
+        (merit, r0, r1, r2, j00, j01, j02, j10, j11, j12, j20, j21, j22) = t
+    return STATUS_NOT_CONVERGED, it
+
+
+@njit(cache=True)
+def speciate_state(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w, x_out, scratch):
+    """Solve one state; fills mole fractions x_out; returns (status, iterations).
+
+    ln_phi: ln fugacity coefficients; ln_p: ln total pressure (bar);
+    b_h, b_c, b_s: moles of H, C, S in any common unit (only ratios matter).
+    scratch: float64 work array of SCRATCH_SIZE (no allocation per state).
+    The monomial-form Newton iteration is tried first; a state it cannot
+    finish is solved again by the log-sum-exp iteration.
+    """
+    n = ln_phi.shape[0]
+    offsets = scratch[0:10]
+    log_fugacity_offsets(ln_k, ln_fo2, offsets)
+    for i in range(n):
+        offsets[i] -= ln_phi[i] + ln_p  # ln x = ln f - ln phi - ln P
+    status, it = _speciate_monomial(offsets, b_h, b_c, b_s, x_out, scratch[90:100])
+    if status != STATUS_OK:
+        st2, it2 = _speciate_state_logspace(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w,
+                                            c_w, s_w, x_out, scratch)
+        return st2, it + it2
+    # Close the sum exactly; a common factor on every species but O2 keeps the
+    # element ratios and fO2 exact and moves the equilibria by < 1e-12.
+    s = 0.0
+    for i in range(n):
+        s += x_out[i]
+    f = (1.0 - x_out[2]) / (s - x_out[2])
+    for i in range(n):
+        if i != 2:
+            x_out[i] *= f
     return status, it
 
 
