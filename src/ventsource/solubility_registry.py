@@ -23,7 +23,9 @@ SULFUR_OPTIONS = {
 # Coefficient status, for reports: False where the recalled coefficients failed
 # or were not checked against the source paper's own tables.
 LAW_NOTES = {
-    ("h2o", "moore1998"): "coefficients from memory; FAILS magnitude check (~2.8x too much H2O in MORB at 100 MPa)",
+    ("h2o", "moore1998"): ("coefficients from memory, squared-mole-fraction form ln X^2 (c=1.171, d=-14.21); "
+                           "passes magnitude checks (MORB ~3.3 wt% at 1200 C/100 MPa, rhyolite ~6.0 wt% at "
+                           "850 C/200 MPa); not checked against the paper's own table; calibrated to 3 kbar"),
     ("h2o", "liu2005"): "coefficients from memory; rhyolite only; matches 5.5-6.0 wt% at 850 C, 200 MPa",
     ("co2", "shishkina2014"): "coefficients from memory; basaltic melts",
     ("co2", "liu2005"): "coefficients from memory; rhyolite only",
