@@ -5,6 +5,7 @@ Every user error is printed as one line on stderr with exit status 2.
 import argparse
 import json
 import math
+import os
 import sys
 
 from . import __version__
@@ -80,18 +81,24 @@ def build_parser():
     rp.add_argument("data", help="measurement CSV (see README)")
     rp.add_argument("--prior", required=True)
     rp.add_argument("--out", required=True, help="output directory")
-    rp.add_argument("--workers", type=int, default=1)
-    rp.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
-    rp.add_argument("--seed", type=int, default=0)
-    rp.add_argument("--sigma", type=float, default=None,
-                    help="default relative 1-sigma of every ratio (else the prior file's)")
-    rp.add_argument("--target-ess", type=float, default=1000.0)
+    _series_options(rp)
+    rp.add_argument("--corner", nargs="+", default=[], metavar="ID",
+                    help="row identifiers to draw corner plots for")
+    rp.add_argument("--no-figures", action="store_true", help="tables and netCDF only")
     rp.set_defaults(handler=cmd_run)
+
+    cp = sub.add_parser("compare", help="the same data under several prior files")
+    cp.add_argument("data", help="measurement CSV (see README)")
+    cp.add_argument("--prior", required=True, action="append", help="prior file; give two or more")
+    cp.add_argument("--out", required=True, help="output directory")
+    _series_options(cp)
+    cp.set_defaults(handler=cmd_compare)
 
     dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted")
     dp.add_argument("--out", default="demo-output")
-    dp.add_argument("--rows", type=int, default=8)
+    dp.add_argument("--rows", type=int, default=60)
     dp.add_argument("--workers", type=int, default=2)
+    dp.add_argument("--resume", action="store_true")
     dp.set_defaults(handler=cmd_demo)
 
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
@@ -257,28 +264,107 @@ def cmd_prior_predictive(args):
     return 0
 
 
+def _series_options(p):
+    p.add_argument("--workers", type=int, default=1, help="local worker processes")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--dask-scheduler", metavar="ADDRESS",
+                       help="run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786")
+    where.add_argument("--dask-local", action="store_true",
+                       help="run on a local dask.distributed cluster of --workers processes")
+    p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--sigma", type=float, default=None,
+                   help="default relative 1-sigma of every ratio (else the prior file's)")
+    p.add_argument("--target-ess", type=float, default=None,
+                   help="effective sample size the sampler aims for (default: infer's, 2000)")
+    p.add_argument("--max-steps", type=int, default=None, help="cap on MCMC steps per model")
+
+
+def _inference_options(args):
+    opts = {}
+    if args.target_ess is not None:
+        if not args.target_ess > 0:
+            raise InputError("--target-ess must be positive")
+        opts["target_ess"] = float(args.target_ess)
+    if args.max_steps is not None:
+        if args.max_steps < 1:
+            raise InputError("--max-steps must be at least 1")
+        opts["max_steps"] = int(args.max_steps)
+    return opts
+
+
+def _check_series_args(args):
+    if args.workers < 1:
+        raise InputError("--workers must be at least 1")
+    if args.sigma is not None and not (math.isfinite(args.sigma) and 0 < args.sigma <= 5):
+        raise InputError(f"--sigma must be in (0, 5], got {args.sigma}")
+
+
 def cmd_run(args):
     from .caution import CAUTION
     from .measurements import read_measurements
     from .series import run_series
+    _check_series_args(args)
     spec = _load_prior(args.prior)
-    if args.workers < 1:
-        raise InputError("--workers must be at least 1")
+    options = _inference_options(args)
     sigma = args.sigma if args.sigma is not None else float(spec.likelihood.get("relative_sigma", 0.15))
-    series = read_measurements(args.data, default_sigma=sigma)
+    series = read_measurements(args.data, default_sigma=sigma)  # every check before any output
+    for rid in args.corner:
+        if rid not in series.ids:
+            raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
-               resume=args.resume, options=dict(target_ess=args.target_ess))
-    print(f"results in {args.out}/summary.csv and {args.out}/rows/*.nc")
+               resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
+               dask_local=args.dask_local)
+    figs = []
+    if not args.no_figures:
+        from .figures import run_figures
+        figs = run_figures(args.out, series, spec, corner_ids=args.corner, title=spec.name)
+    print(f"results in {args.out}/: summary.csv, hazard.json, rows/*.nc"
+          + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
+    print(f"Caution: {CAUTION}")
+    return 0
+
+
+def cmd_compare(args):
+    from .caution import CAUTION
+    from .compare import run_compare
+    from .measurements import read_measurements
+    _check_series_args(args)
+    if len(args.prior) < 2:
+        raise InputError("compare: give at least two --prior files")
+    specs = [_load_prior(p) for p in args.prior]
+    names = [s.name for s in specs]
+    if len(set(names)) != len(names):
+        raise InputError(f"compare: prior files share a name ({', '.join(names)}); "
+                         "each needs its own metadata.name")
+    sigma = args.sigma if args.sigma is not None else 0.15
+    series = {}
+    for path, spec in zip(args.prior, specs):
+        s = args.sigma if args.sigma is not None else float(spec.likelihood.get("relative_sigma", sigma))
+        series[path] = read_measurements(args.data, default_sigma=s)
+    out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
+                      resume=args.resume, options=_inference_options(args),
+                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local)
+    print(f"comparison in {args.out}/: {', '.join(os.path.relpath(p, args.out) for p in out)}")
     print(f"Caution: {CAUTION}")
     return 0
 
 
 def cmd_demo(args):
+    import time
     from .caution import CAUTION
     from .demo import run_demo
-    out = run_demo(args.out, n_rows=args.rows, workers=args.workers)
-    print(f"demo outputs in {out}/: measurements.csv (synthetic), truth.csv, summary.csv, "
-          f"series.png, rows/*.nc")
+    if args.rows < 2:
+        raise InputError("--rows must be at least 2")
+    if args.workers < 1:
+        raise InputError("--workers must be at least 1")
+    t0 = time.monotonic()
+    out = run_demo(args.out, n_rows=args.rows, workers=args.workers, resume=args.resume)
+    print(f"demo finished in {time.monotonic() - t0:.0f} s; outputs in {os.path.abspath(args.out)}/:")
+    print(f"  measurements.csv (synthetic data), truth.csv (true parameters), summary.csv, "
+          f"hazard.json, rows/*.nc")
+    for f in out["figures"]:
+        print(f"  {os.path.relpath(f, args.out)}")
     print(f"Caution: {CAUTION}")
     return 0
 
