@@ -7,9 +7,11 @@ Two options, chosen by name in the registry:
                      S2- (wt%) = C_S * (fS2 / fO2)^0.5  (fugacities in bar), then total S
                      from the sulfate/sulfide split of Jugo, Wilke & Botcharnikov (2010),
                      Geochim. Cosmochim. Acta 74:5926-5938: S6+/ST = 1/(1 + 10^(2.1 - 2 dFMQ)).
-                     No composition law for C_S is built in: a published parametrisation
-                     could not be recalled with confidence, so ln C_S = a + b/T must be
-                     supplied by the caller (prepare_sulfide_capacity).
+                     The definition C_S = [S] (fO2/fS2)^0.5 is that of O'Neill & Mavrogenes
+                     (2002), J. Petrol. 43:1049-1087 (abstract). No composition law for C_S
+                     is built in: their fitted equation and its coefficients could not be
+                     read from any source at hand, so ln C_S = a + b/T must be supplied by
+                     the caller (prepare_sulfide_capacity).
 """
 import math
 
