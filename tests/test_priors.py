@@ -165,7 +165,7 @@ def test_shipped_file_loads_and_is_complete(path):
 def test_magma_types_use_the_intended_solubility_laws():
     by = {p.stem: load_prior_file(p) for p in SHIPPED}
     for name in ("arc_basalt", "arc_andesite", "ocean_island_basalt", "demo_mount_kerrow"):
-        assert by[name].models["h2o_solubility"] == "power_law"
+        assert by[name].models["h2o_solubility"] == "moore1998"
         assert by[name].models["co2_solubility"] == "shishkina2014"
     assert by["rhyolite_silicic"].models["h2o_solubility"] == "liu2005"
     assert by["rhyolite_silicic"].models["co2_solubility"] == "liu2005"
