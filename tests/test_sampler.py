@@ -70,11 +70,13 @@ def test_forward_evaluations_and_failed_states_are_counted():
     assert r.n_failed_states == fw.nan_rows
     assert r.n_failed_states > 0
     assert r.n_init_failed > 0          # about 20 % of prior draws have no gas
-    # vectorised: after the start (prior draws, then the whole ensemble once) the forward
-    # model gets half the ensemble per emcee half-step, minus proposals outside the prior
+    # vectorised: after the start (2000 prior draws for the likelihood-weighted start, then
+    # the whole ensemble once) the forward model gets half the ensemble per emcee
+    # half-step, minus proposals outside the prior
     steps = np.array(fw.batches)
     big = steps[steps > 16]
-    assert set(big.tolist()) <= {32, 128}, set(big.tolist())
+    assert set(big.tolist()) <= {32, 128, 2000}, set(big.tolist())
+    assert steps[0] == 2000
     assert steps[steps <= 16].max() == 16 and np.median(steps) > 8
     assert np.all(r.chain[:, :, 0] <= 0.8)  # no posterior draw in the no-gas region
 

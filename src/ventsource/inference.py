@@ -33,10 +33,11 @@ PARAMETER_UNITS = {
     "exsolved_gas_wt": "wt%",
 }
 
-_DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, target_ess=2000.0,
+_DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, target_ess=1000.0,
                  max_steps=20000, alpha=0.01, n_prior_draws=2000, scrub_name="scrubbed_so2",
                  n_proposal=20000, model_choice=True, space="unbounded", burn_factor=3.0, min_tau_factor=30.0,
-                 chunk=200, max_error_p=0.05, rhat_max=1.05)
+                 chunk=200, max_error_p=0.05, rhat_max=1.05, moves="de", init="importance",
+                 n_init_draws=None, rhat_target=1.01)
 
 
 class InferenceError(ValueError):
@@ -155,7 +156,8 @@ def _run_model(name, prior, forward, lik, seeds, opt) -> ModelRun:
     s = sample_posterior(prior, forward, lik, seed=seeds[0], n_walkers=opt["n_walkers"],
                          target_ess=opt["target_ess"], max_steps=opt["max_steps"], chunk=opt["chunk"],
                          burn_factor=opt["burn_factor"], min_tau_factor=opt["min_tau_factor"],
-                         space=opt["space"])
+                         space=opt["space"], moves=opt["moves"], init=opt["init"],
+                         n_init_draws=opt["n_init_draws"], rhat_target=opt["rhat_target"])
     lp = LogPosterior(prior, forward, lik)
     b = bridge_sampling(s.chain, lambda th: lp.evaluate(th)[0], support_bounds(prior), seed=seeds[1],
                         n_proposal=opt["n_proposal"], log_target_chain=s.log_posterior)
@@ -224,11 +226,18 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
 
     options (defaults): kind/dof (from prior.likelihood, else "normal"/4), epsilon=0.05
     (threshold for P(scrubbed < epsilon | data, M1)), pi0 (prior.p_magmatic, else 0.5),
-    n_walkers, target_ess=2000, max_steps=20000, alpha=0.01 (predictive check level),
+    n_walkers (default 32 per free parameter), target_ess=1000 (ArviZ bulk ESS of every
+    parameter), rhat_target=1.01 (split R-hat stop criterion), moves="de" (DE + snooker;
+    "stretch", "kde" or an emcee moves list), init="importance" (likelihood-weighted prior
+    draws; or "prior"), n_init_draws (default 20 per walker), max_steps=20000, alpha=0.01 (predictive check level),
     n_prior_draws=2000, scrub_name="scrubbed_so2", n_proposal=20000 (bridge proposal draws),
     model_choice=True, space="unbounded" (sampler space, see sampler.sample_posterior),
     burn_factor=3, min_tau_factor=30, chunk=200, max_error_p=0.05 and rhat_max=1.05 (flag
     thresholds).
+
+    The measurement carries its own relative 1-sigma per ratio (Measurement defaults to
+    0.15); the prior file's likelihood.relative_sigma is not applied here - readers of
+    measurement files use it when a file gives no uncertainty.
     """
     if not isinstance(measurement, Measurement):
         raise InferenceError(f"infer: measurement must be a ventsource.likelihood.Measurement, got {type(measurement).__name__}")
