@@ -278,6 +278,8 @@ def _series_options(p):
     p.add_argument("--target-ess", type=float, default=None,
                    help="effective sample size the sampler aims for (default: infer's, 2000)")
     p.add_argument("--max-steps", type=int, default=None, help="cap on MCMC steps per model")
+    p.add_argument("--infer-option", action="append", default=[], metavar="NAME=VALUE",
+                   help="any other option of ventsource.infer, e.g. n_proposal=5000 (repeatable)")
 
 
 def _inference_options(args):
@@ -290,6 +292,17 @@ def _inference_options(args):
         if args.max_steps < 1:
             raise InputError("--max-steps must be at least 1")
         opts["max_steps"] = int(args.max_steps)
+    from .inference import _DEFAULTS
+    for item in args.infer_option:
+        name, sep, text = item.partition("=")
+        if not sep or name not in _DEFAULTS:
+            raise InputError(f"--infer-option '{item}': expected NAME=VALUE with NAME one of "
+                             f"{', '.join(sorted(_DEFAULTS))}")
+        try:
+            value = json.loads(text)
+        except ValueError:
+            value = text
+        opts[name] = value
     return opts
 
 

@@ -46,17 +46,17 @@ def plot_time_series(summary_csv, path, series=None, truth_csv=None, title=""):
             v = np.array([m.values[j] for m in series.measurements])
             c = np.array([m.censoring[j] for m in series.measurements])
             ok = np.isfinite(v)
-            ax.plot(t[ok & (c == 0)], v[ok & (c == 0)], "o", ms=3.5, color=INK, label="measured")
-            ax.plot(t[ok & (c < 0)], v[ok & (c < 0)], "v", ms=5, mfc="none", color=INK,
-                    label="below detection limit")
-            ax.plot(t[ok & (c > 0)], v[ok & (c > 0)], "^", ms=5, mfc="none", color=INK,
-                    label="above range")
+            for sel, mk, lab in ((c == 0, "o", "measured"), (c < 0, "v", "below detection limit"),
+                                 (c > 0, "^", "above range")):
+                if np.any(ok & sel):
+                    ax.plot(t[ok & sel], v[ok & sel], mk, ms=3.5 if mk == "o" else 5,
+                            mfc=INK if mk == "o" else "none", color=INK, label=lab)
         if truth is not None and f"true {r}" in truth:
             ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth[f"true {r}"], "x",
                     ms=4, color="#777777", label="synthetic truth (noise-free)")
         ax.set_yscale("log")
         ax.set_ylabel(r, fontsize=9)
-    axes[0].legend(fontsize=7, frameon=False, ncol=4, loc="upper left")
+    axes[0].legend(fontsize=7, frameon=False, ncol=4, loc="lower left")
     ax = axes[-2]
     err = s["p_magmatic_error"].astype(float).fillna(0.0)
     ax.errorbar(times, s["p_magmatic"].astype(float), yerr=err, fmt="s", ms=3.5, color=INK,
