@@ -76,3 +76,77 @@ def test_console_script_runs_without_traceback():
                            "abc"], capture_output=True, text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr and "not a number" in proc.stderr
+
+
+# --- `ventsource run`: malformed inputs give one line, exit 2 and no output directory ---
+
+import os  # noqa: E402
+import pathlib  # noqa: E402
+
+from test_measurements import BAD as BAD_MEASUREMENTS  # noqa: E402
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+GOOD_DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"
+             "KRW-001,2025-01-10T00:00:00Z,0.70148,0.28677,36.329\n")
+BAD_PRIORS = sorted((ROOT / "tests" / "data" / "bad_priors").glob("*.toml"))
+
+
+def one_line_exit_2(code, out, err):
+    assert code == 2, (code, err)
+    assert err.startswith("error: ") and err.strip().count("\n") == 0, err
+    assert "Traceback" not in err
+
+
+@pytest.mark.parametrize("case", sorted(BAD_MEASUREMENTS))
+def test_run_with_malformed_measurements(case, tmp_path, capsys):
+    text, needle = BAD_MEASUREMENTS[case]
+    data = tmp_path / "m.csv"
+    data.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    code, o, err = run(["run", str(data), "--prior", str(ROOT / "examples" / "demo_mount_kerrow_fast.toml"),
+                        "--out", str(out)], capsys)
+    one_line_exit_2(code, o, err)
+    assert needle in err and str(data) in err
+    assert not out.exists()   # nothing written, so nothing that could look complete
+
+
+def test_bad_prior_corpus_has_at_least_ten_files():
+    assert len(BAD_PRIORS) >= 10
+
+
+@pytest.mark.parametrize("prior", BAD_PRIORS, ids=lambda p: p.stem)
+def test_run_with_malformed_prior(prior, tmp_path, capsys):
+    data = tmp_path / "m.csv"
+    data.write_text(GOOD_DATA)
+    out = tmp_path / "out"
+    code, o, err = run(["run", str(data), "--prior", str(prior), "--out", str(out)], capsys)
+    one_line_exit_2(code, o, err)
+    assert prior.name in err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("extra,needle", [
+    (["--workers", "0"], "--workers"),
+    (["--corner", "NOPE"], "--corner"),
+    (["--infer-option", "nonsense=1"], "--infer-option"),
+    (["--dask-local", "--dask-scheduler", "tcp://x:1"], "not allowed with"),
+    (["--sigma", "-1"], "--sigma"),
+])
+def test_run_bad_options(extra, needle, tmp_path, capsys):
+    data = tmp_path / "m.csv"
+    data.write_text(GOOD_DATA)
+    out = tmp_path / "out"
+    code, o, err = run(["run", str(data), "--prior", str(ROOT / "examples" / "demo_mount_kerrow_fast.toml"),
+                        "--out", str(out)] + extra, capsys)
+    one_line_exit_2(code, o, err)
+    assert needle in err
+    assert not out.exists()
+
+
+def test_compare_needs_two_priors(tmp_path, capsys):
+    data = tmp_path / "m.csv"
+    data.write_text(GOOD_DATA)
+    code, o, err = run(["compare", str(data), "--prior", "priors/arc_basalt.toml", "--out",
+                        str(tmp_path / "o")], capsys)
+    one_line_exit_2(code, o, err)
+    assert "two" in err
