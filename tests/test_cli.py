@@ -131,6 +131,7 @@ def test_run_with_malformed_prior(prior, tmp_path, capsys):
     (["--infer-option", "nonsense=1"], "--infer-option"),
     (["--dask-local", "--dask-scheduler", "tcp://x:1"], "not allowed with"),
     (["--sigma", "-1"], "--sigma"),
+    (["--sigma", "CO/CO2=0.2"], "not a ratio column"),
 ])
 def test_run_bad_options(extra, needle, tmp_path, capsys):
     data = tmp_path / "m.csv"

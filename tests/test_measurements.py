@@ -80,3 +80,12 @@ def test_not_utf8_and_missing_file(tmp_path):
         read_measurements(write(tmp_path, None, raw=b"id,time,SO2/CO2\nA,2026,\xff\xfe\n"))
     with pytest.raises(InputError, match="file not found"):
         read_measurements(str(tmp_path / "nope.csv"))
+
+
+def test_per_column_default_sigma(tmp_path):
+    # precedence: sigma cell > per-column default > fallback "*"
+    s = read_measurements(write(tmp_path, GOOD), default_sigma={"H2O/CO2": 0.3, "*": 0.1})
+    assert s.measurements[0].relative_sigma.tolist() == [0.1, 0.1, 0.3]
+    assert s.measurements[1].relative_sigma.tolist() == [0.25, 0.1, 0.3]
+    with pytest.raises(InputError, match="not a ratio column"):
+        read_measurements(write(tmp_path, GOOD), default_sigma={"CO/CO2": 0.3})

@@ -1,5 +1,39 @@
-"""`ventsource bench` section: series (to be filled in)."""
+"""`ventsource bench` section: series runs with 1 and 2 local workers.
+
+Rows: the synthetic Mount Kerrow series (fictional), n rows; prior and inference
+settings: the demo's (examples/demo_mount_kerrow_fast.toml, demo.DEMO_OPTIONS).
+Reports seconds per measurement per core (wall time x workers / rows) and the
+speed-up of 2 workers over 1 (targets: <= 1.5 s, >= 1.8x). Wall times on a shared
+machine are noisy; the two runs' numbers are also checked to be identical.
+"""
+import io
+import os
+import tempfile
+import time
 
 
-def bench_series(quick=False):
-    print("[series] not implemented yet")
+def bench_series(quick=False, n_rows=None, workers=(1, 2)):
+    from .demo import DEMO_FAST_PRIOR, DEMO_OPTIONS, make_demo_data, RELATIVE_SIGMA
+    from .measurements import read_measurements
+    from .series import run_series
+    n = int(n_rows or (20 if quick else 200))
+    with tempfile.TemporaryDirectory() as tmp:
+        data = make_demo_data(os.path.join(tmp, "data"), n_rows=n)
+        series = read_measurements(data, default_sigma=RELATIVE_SIGMA)
+        seconds, summaries = {}, {}
+        for w in workers:
+            out = os.path.join(tmp, f"w{w}")
+            start = time.perf_counter()
+            run_series(series, str(DEMO_FAST_PRIOR), out, seed=1, workers=w, options=dict(DEMO_OPTIONS),
+                       progress_stream=io.StringIO())
+            seconds[w] = time.perf_counter() - start
+            with open(os.path.join(out, "summary.csv")) as fh:
+                summaries[w] = fh.read()
+            per = seconds[w] * w / n
+            print(f"[series] {n} measurements, {w} worker(s): {seconds[w]:.1f} s wall, "
+                  f"{per:.2f} s per measurement per core (target <= 1.5 s; demo settings)")
+    if len(workers) >= 2:
+        a, b = workers[0], workers[1]
+        print(f"[series] speed-up {b} workers over {a}: {seconds[a] / seconds[b]:.2f}x "
+              f"(target >= 1.8x); summaries identical: {summaries[a] == summaries[b]}")
+    return seconds

@@ -273,8 +273,9 @@ def _series_options(p):
                        help="run on a local dask.distributed cluster of --workers processes")
     p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
     p.add_argument("--seed", type=int, default=0)
-    p.add_argument("--sigma", type=float, default=None,
-                   help="default relative 1-sigma of every ratio (else the prior file's)")
+    p.add_argument("--sigma", action="append", default=None, metavar="[RATIO=]VALUE",
+                   help="default relative 1-sigma: a number for every ratio and/or RATIO=VALUE "
+                        "per column, repeatable (else the prior file's likelihood.relative_sigma)")
     p.add_argument("--target-ess", type=float, default=None,
                    help="effective sample size the sampler aims for (default: infer's, 2000)")
     p.add_argument("--max-steps", type=int, default=None, help="cap on MCMC steps per model")
@@ -309,8 +310,24 @@ def _inference_options(args):
 def _check_series_args(args):
     if args.workers < 1:
         raise InputError("--workers must be at least 1")
-    if args.sigma is not None and not (math.isfinite(args.sigma) and 0 < args.sigma <= 5):
-        raise InputError(f"--sigma must be in (0, 5], got {args.sigma}")
+
+
+def _default_sigma(args, spec):
+    """--sigma items -> float or {ratio: sigma, "*": fallback} for read_measurements."""
+    fallback = float(spec.likelihood.get("relative_sigma", 0.15))
+    if not args.sigma:
+        return fallback
+    out = {"*": fallback}
+    for item in args.sigma:
+        name, sep, text = item.rpartition("=")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputError(f"--sigma '{item}': '{text}' is not a number") from None
+        if not (math.isfinite(value) and 0 < value <= 5):
+            raise InputError(f"--sigma '{item}': a relative 1-sigma must be in (0, 5]")
+        out[name.strip() if sep else "*"] = value
+    return out
 
 
 def cmd_run(args):
@@ -320,8 +337,7 @@ def cmd_run(args):
     _check_series_args(args)
     spec = _load_prior(args.prior)
     options = _inference_options(args)
-    sigma = args.sigma if args.sigma is not None else float(spec.likelihood.get("relative_sigma", 0.15))
-    series = read_measurements(args.data, default_sigma=sigma)  # every check before any output
+    series = read_measurements(args.data, default_sigma=_default_sigma(args, spec))  # checks first
     for rid in args.corner:
         if rid not in series.ids:
             raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
@@ -350,11 +366,8 @@ def cmd_compare(args):
     if len(set(names)) != len(names):
         raise InputError(f"compare: prior files share a name ({', '.join(names)}); "
                          "each needs its own metadata.name")
-    sigma = args.sigma if args.sigma is not None else 0.15
-    series = {}
-    for path, spec in zip(args.prior, specs):
-        s = args.sigma if args.sigma is not None else float(spec.likelihood.get("relative_sigma", sigma))
-        series[path] = read_measurements(args.data, default_sigma=s)
+    series = {path: read_measurements(args.data, default_sigma=_default_sigma(args, spec))
+              for path, spec in zip(args.prior, specs)}
     out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                       resume=args.resume, options=_inference_options(args),
                       dask_scheduler=args.dask_scheduler, dask_local=args.dask_local)

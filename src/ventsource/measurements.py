@@ -86,7 +86,17 @@ def _parse_cell(text, path, row, column):
 
 
 def read_measurements(path, default_sigma=0.15):
-    """Read and check a measurement CSV; returns a MeasurementSeries."""
+    """Read and check a measurement CSV; returns a MeasurementSeries.
+
+    default_sigma: relative 1-sigma for cells without their own `sigma RATIO` value;
+    a number for every ratio, or a dict {ratio: sigma} with an optional "*" entry
+    for the ratios it does not name (per-column defaults).
+    """
+    if isinstance(default_sigma, dict):
+        per_column = dict(default_sigma)
+        fallback = float(per_column.pop("*", 0.15))
+    else:
+        per_column, fallback = {}, float(default_sigma)
     try:
         with open(path, "r", encoding="utf-8-sig", newline="") as fh:
             text = fh.read()
@@ -127,6 +137,10 @@ def read_measurements(path, default_sigma=0.15):
         ratio_cols.append(col)
     if not ratio_cols:
         _fail(path, 1, None, "no ratio columns (e.g. SO2/CO2, H2S/SO2)")
+    for name in per_column:
+        if name not in ratio_cols:
+            raise InputError(f"{path}: a default sigma is given for '{name}', which is not a "
+                             f"ratio column ({', '.join(ratio_cols)})")
     for name in sigma_cols:
         if name not in ratio_cols:
             _fail(path, 1, SIGMA_PREFIX + name, f"uncertainty column for '{name}', which is not a ratio column")
@@ -149,7 +163,7 @@ def read_measurements(path, default_sigma=0.15):
             v, flag = _parse_cell(cells[header.index(col)], path, r, col)
             values.append(v)
             flags.append(flag)
-            sig = default_sigma
+            sig = float(per_column.get(col, fallback))
             if col in sigma_cols:
                 raw = cells[sigma_cols[col]].strip()
                 if raw:

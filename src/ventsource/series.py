@@ -19,6 +19,7 @@ import json
 import os
 import sys
 import time
+import warnings
 from concurrent.futures import ProcessPoolExecutor, as_completed
 
 import numpy as np
@@ -82,7 +83,10 @@ def _invert_row(args):
     spec = load_prior_file(prior_path)
     opts = dict(options)
     opts.setdefault("epsilon", float(getattr(spec, "epsilon", 0.05)))
-    result = infer(measurement, spec, seed=seed, **opts)
+    with warnings.catch_warnings():
+        # arviz warns when a short ensemble has more walkers than draws; not a user problem
+        warnings.filterwarnings("ignore", message="More chains", category=UserWarning)
+        result = infer(measurement, spec, seed=seed, **opts)
     key = row_key(row_id)
     nc_path = os.path.join(out_dir, "rows", f"{key}.nc")
     result.idata.to_netcdf(nc_path + ".part")
