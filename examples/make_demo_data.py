@@ -1,13 +1,23 @@
 """Regenerate the synthetic Mount Kerrow series (fictional volcano) with its truth.
 
-    python examples/make_demo_data.py examples/
+    python examples/make_demo_data.py
 
-writes measurements.csv and truth.csv: made by ventsource's own forward model
-from the true parameters in ventsource.demo.truth_table plus 15 % log-normal noise.
+writes examples/mount_kerrow_synthetic.csv (60 noisy measurements) and
+examples/mount_kerrow_truth.csv (true parameters, episode and noise-free ratios of
+every row), made by ventsource's own forward model from the true parameters in
+ventsource.demo.truth_table plus 15 % log-normal noise (seeded).
 """
-import sys
+import os
+import shutil
+import tempfile
 
 from ventsource.demo import make_demo_data
 
+HERE = os.path.dirname(os.path.abspath(__file__))
+
 if __name__ == "__main__":
-    print(make_demo_data(sys.argv[1] if len(sys.argv) > 1 else "."))
+    with tempfile.TemporaryDirectory() as tmp:
+        make_demo_data(tmp)
+        shutil.copy(os.path.join(tmp, "measurements.csv"), os.path.join(HERE, "mount_kerrow_synthetic.csv"))
+        shutil.copy(os.path.join(tmp, "truth.csv"), os.path.join(HERE, "mount_kerrow_truth.csv"))
+    print(f"wrote {HERE}/mount_kerrow_synthetic.csv and {HERE}/mount_kerrow_truth.csv")
