@@ -39,7 +39,7 @@ M_CO2 = 44.009
 M_S = 32.06
 P_SAT_CAP_BAR = 20000.0
 
-# Context vector layout (one per state), filled by _context.
+# Context vector layout (one per state), filled by _fill_context.
 _C_OFF = 0        # 10 ln x offsets
 _C_P = 10
 _C_T = 11
@@ -49,7 +49,44 @@ _C_NC = 23
 _C_NS = 24
 _C_DS = 25
 _C_DFMQ = 26
-CTX_SIZE = 27
+_C_MONO = 27      # 10 exp(offsets): x_i = c_i a^p b^q r^s (see speciation)
+_C_PHIH = 37      # fugacity coefficient of H2O
+_C_PHIC = 38      # fugacity coefficient of CO2
+CTX_SIZE = 39
+
+# Bulk amounts below this (mol per gram of magma) are raised to it on the
+# open-system path: an element stripped from the melt keeps a vanishing but
+# non-zero amount, so its balance (and gas ratios) stay defined.
+VANISHING_MOL_PER_G = 1e-200
+
+# Balance residuals are ln(q) with q = (g n_gas + (1-g) n_melt) / n_bulk, so a
+# trace element is as well conditioned as a major one; below Q_LINEAR the log
+# is continued linearly (C1) so that q <= 0 stays defined for the line search.
+Q_LINEAR = 1e-8
+_LN_Q_LINEAR = math.log(Q_LINEAR)
+# Relative step for the derivatives of the solubility laws (forward difference).
+LAW_STEP = 1e-7
+
+# mg vector: (nH_g, nC_g, nS_g, nH_m, nC_m, nS_m, sum_x) and the elasticities
+# d ln(law)/d ln x of the H2O law in x_H2O, x_CO2 and of the CO2 law in x_H2O, x_CO2.
+MG_SIZE = 11
+
+# Work array layout for solve_closed (no allocation per state).
+_W_R = 0                      # 4 residuals
+_W_RT = 4                     # 4 trial residuals
+_W_JAC = 8                    # 16 Jacobian
+_W_JACT = 24                  # 16 trial Jacobian
+_W_STEP = 40                  # 4
+_W_TRIAL = 44                 # 4
+_W_XT = 48                    # 10 trial mole fractions
+_W_MGT = 58                   # MG_SIZE trial gas/melt amounts
+_W_M = _W_MGT + MG_SIZE       # 20 elimination matrix (4 x 5)
+_W_Z = _W_M + 20              # 4 spare z (saturation pressure)
+_W_X = _W_Z + 4               # 10 spare x (saturation pressure)
+_W_MG = _W_X + 10             # MG_SIZE spare mg (saturation pressure)
+_W_CTX = _W_MG + MG_SIZE      # CTX_SIZE copy of a context (saturation pressure)
+_W_ITER = _W_CTX + CTX_SIZE   # Newton iterations of the last solve (diagnostics)
+WORK_SIZE = _W_ITER + 1
 
 
 @njit(cache=True)
@@ -67,6 +104,9 @@ def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, id
     for i in range(10):
         ctx[_C_OFF + i] -= ln_phi[i] + lnp
         ctx[_C_LNPHI + i] = ln_phi[i]
+        ctx[_C_MONO + i] = math.exp(ctx[_C_OFF + i])
+    ctx[_C_PHIH] = math.exp(ln_phi[0])
+    ctx[_C_PHIC] = math.exp(ln_phi[3])
     ctx[_C_P] = pressure_bar
     ctx[_C_T] = temperature_k
     ctx[_C_NH] = n_h
@@ -76,115 +116,362 @@ def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, id
     ctx[_C_DFMQ] = dfmq
 
 
-@njit(cache=True)
-def _melt_and_gas(z, ctx, h_law, h_par, c_law, c_par, x, out):
-    """Gas mole fractions x for u = z[:3]; out = (nH_g, nC_g, nS_g, nH_m, nC_m, nS_m, sum_x)."""
-    p = ctx[_C_P]
-    t = ctx[_C_T]
-    total = 0.0
-    mbar = 0.0
-    nh = 0.0
-    nc = 0.0
-    ns = 0.0
-    for i in range(10):
-        lx = (ctx[_C_OFF + i] + UNKNOWN_EXPONENTS_C[i, 0] * z[0] + UNKNOWN_EXPONENTS_C[i, 1] * z[1]
-              + UNKNOWN_EXPONENTS_C[i, 2] * z[2])
-        if lx > 700.0:
-            lx = 700.0
-        xi = math.exp(lx)
-        x[i] = xi
-        total += xi
-        mbar += xi * MOLAR_MASS_C[i]
-        nh += xi * H_C[i]
-        nc += xi * C_C[i]
-        ns += xi * S_C[i]
-    # per gram of gas (composition normalised so the balance uses a physical gas)
-    out[0] = nh / mbar
-    out[1] = nc / mbar
-    out[2] = ns / mbar
-    p_h2o = x[0] * p
-    p_co2 = x[3] * p
-    f_h2o = p_h2o * math.exp(ctx[_C_LNPHI + 0])
-    f_co2 = p_co2 * math.exp(ctx[_C_LNPHI + 3])
-    h2o_m = h2o_wt_percent(h_law, h_par, p_h2o, p_co2, f_h2o, f_co2, p, t)
-    co2_m = co2_ppm(c_law, c_par, p_h2o, p_co2, f_h2o, f_co2, p, t)
-    s_gas_mass_fraction = out[2] * M_S
-    d_s = ctx[_C_DS]
-    s_m = 1e6 * s_gas_mass_fraction / d_s if d_s > 0 else 0.0
-    out[3] = 2.0 * h2o_m / 100.0 / M_H2O
-    out[4] = co2_m * 1e-6 / M_CO2
-    out[5] = s_m * 1e-6 / M_S
-    out[6] = total
-
-
 UNKNOWN_EXPONENTS_C = UNKNOWN_EXPONENTS.copy()
 MOLAR_MASS_C = MOLAR_MASS_G_MOL.copy()
 H_C = H_ATOMS.copy()
 C_C = C_ATOMS.copy()
 S_C = S_ATOMS.copy()
+_M0, _M1, _M2, _M3, _M4, _M5, _M6, _M7, _M8, _M9 = (float(m) for m in MOLAR_MASS_G_MOL)
+_H2O_MOL_PER_WT_PERCENT = 2.0 / 100.0 / M_H2O   # mol H per g melt per wt% H2O
+_CO2_MOL_PER_PPM = 1e-6 / M_CO2                 # mol C per g melt per ppm CO2
 
 
 @njit(cache=True)
-def _residual(z, ctx, h_law, h_par, c_law, c_par, x, mg, r):
-    _melt_and_gas(z, ctx, h_law, h_par, c_law, c_par, x, mg)
+def _log_balance(q):
+    """(residual, d residual / d q) of one element balance, see Q_LINEAR."""
+    if q >= Q_LINEAR:
+        return math.log(q), 1.0 / q
+    return _LN_Q_LINEAR + (q - Q_LINEAR) / Q_LINEAR, 1.0 / Q_LINEAR
+
+
+@njit(cache=True, fastmath={'contract', 'arcp'})
+def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
+    """Residuals r (4) and analytic Jacobian jac (4 x 4, row-major) at z; returns the merit.
+
+    x: gas mole fractions; mg (MG_SIZE) = (nH_g, nC_g, nS_g, nH_m, nC_m, nS_m, sum_x,
+    law elasticities), gas amounts per gram of gas, melt amounts per gram of melt.
+    The gas part is differentiated exactly; the solubility laws through their
+    elasticities, by a forward difference when refresh is set.
+    """
+    p = ctx[_C_P]
+    t = ctx[_C_T]
+    a = math.exp(z[0])
+    b = math.exp(z[1])
+    rr = math.exp(0.5 * z[2])
+    x0 = ctx[_C_MONO + 0] * a
+    x1 = ctx[_C_MONO + 1] * a
+    x2 = ctx[_C_MONO + 2]
+    x3 = ctx[_C_MONO + 3] * b
+    x4 = ctx[_C_MONO + 4] * b
+    x5 = ctx[_C_MONO + 5] * a * a * b
+    x6 = ctx[_C_MONO + 6] * rr
+    x7 = ctx[_C_MONO + 7] * a * rr
+    x8 = ctx[_C_MONO + 8] * rr * rr
+    x9 = ctx[_C_MONO + 9] * b * rr
+    x[0] = x0
+    x[1] = x1
+    x[2] = x2
+    x[3] = x3
+    x[4] = x4
+    x[5] = x5
+    x[6] = x6
+    x[7] = x7
+    x[8] = x8
+    x[9] = x9
+    # sums over species and their derivatives in u (exponents of UNKNOWN_EXPONENTS)
+    total = x0 + x1 + x2 + x3 + x4 + x5 + x6 + x7 + x8 + x9
+    dt0 = x0 + x1 + 2.0 * x5 + x7
+    dt1 = x3 + x4 + x5 + x9
+    dt2 = 0.5 * (x6 + x7 + x9) + x8
+    m0 = _M0 * x0
+    m1 = _M1 * x1
+    m3 = _M3 * x3
+    m4 = _M4 * x4
+    m5 = _M5 * x5
+    m6 = _M6 * x6
+    m7 = _M7 * x7
+    m8 = _M8 * x8
+    m9 = _M9 * x9
+    mbar = m0 + m1 + _M2 * x2 + m3 + m4 + m5 + m6 + m7 + m8 + m9
+    dm0 = m0 + m1 + 2.0 * m5 + m7
+    dm1 = m3 + m4 + m5 + m9
+    dm2 = 0.5 * (m6 + m7 + m9) + m8
+    nh = 2.0 * (x0 + x1 + x7) + 4.0 * x5
+    dh0 = 2.0 * (x0 + x1 + x7) + 8.0 * x5
+    dh1 = 4.0 * x5
+    dh2 = x7
+    nc = x3 + x4 + x5 + x9
+    dc0 = 2.0 * x5
+    dc1 = nc
+    dc2 = 0.5 * x9
+    ns = x6 + x7 + 2.0 * x8 + x9
+    ds0 = x7
+    ds1 = x9
+    ds2 = 0.5 * (x6 + x7 + x9) + 2.0 * x8
+    if not (total > 0.0 and total < 1e300 and mbar < 1e300):
+        return math.inf
+    inv_m = 1.0 / mbar
+    # per gram of gas (composition normalised so the balance uses a physical gas)
+    gh = nh * inv_m
+    gc = nc * inv_m
+    gs = ns * inv_m
+    mg[0] = gh
+    mg[1] = gc
+    mg[2] = gs
+    mg[6] = total
+    # d(n_E / mbar)/du_k = (dN_E,k - n_E,g dM_k) / mbar
+    gh0 = (dh0 - gh * dm0) * inv_m
+    gh1 = (dh1 - gh * dm1) * inv_m
+    gh2 = (dh2 - gh * dm2) * inv_m
+    gc0 = (dc0 - gc * dm0) * inv_m
+    gc1 = (dc1 - gc * dm1) * inv_m
+    gc2 = (dc2 - gc * dm2) * inv_m
+    gs0 = (ds0 - gs * dm0) * inv_m
+    gs1 = (ds1 - gs * dm1) * inv_m
+    gs2 = (ds2 - gs * dm2) * inv_m
+    # melt: H2O and CO2 laws depend on x_H2O (u0 only) and x_CO2 (u1 only)
+    phi_h = ctx[_C_PHIH]
+    phi_c = ctx[_C_PHIC]
+    p_h2o = x[0] * p
+    p_co2 = x[3] * p
+    f_h2o = p_h2o * phi_h
+    f_co2 = p_co2 * phi_c
+    h2o_m = h2o_wt_percent(h_law, h_par, p_h2o, p_co2, f_h2o, f_co2, p, t)
+    co2_m = co2_ppm(c_law, c_par, p_h2o, p_co2, f_h2o, f_co2, p, t)
+    if refresh:
+        # elasticities d ln(law) / d ln x_k by a forward difference (p and f move
+        # together); between refreshes they are reused, which keeps the Jacobian
+        # exact for power laws and nearly so otherwise (Newton only needs it close)
+        e = 1.0 + LAW_STEP
+        inv_h = 1.0 / (h2o_m * LAW_STEP) if h2o_m != 0.0 else 0.0
+        inv_c = 1.0 / (co2_m * LAW_STEP) if co2_m != 0.0 else 0.0
+        mg[7] = (h2o_wt_percent(h_law, h_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t) - h2o_m) * inv_h
+        mg[8] = (h2o_wt_percent(h_law, h_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t) - h2o_m) * inv_h
+        mg[9] = (co2_ppm(c_law, c_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t) - co2_m) * inv_c
+        mg[10] = (co2_ppm(c_law, c_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t) - co2_m) * inv_c
+    h2o_0 = mg[7] * h2o_m
+    h2o_1 = mg[8] * h2o_m
+    co2_0 = mg[9] * co2_m
+    co2_1 = mg[10] * co2_m
+    mh = h2o_m * _H2O_MOL_PER_WT_PERCENT
+    mc = co2_m * _CO2_MOL_PER_PPM
+    d_s = ctx[_C_DS]
+    inv_d = 1.0 / d_s if d_s > 0 else 0.0
+    ms = gs * inv_d
+    mg[3] = mh
+    mg[4] = mc
+    mg[5] = ms
     g = z[3]
-    r[0] = math.log(mg[6]) if mg[6] > 0 else -1e3
-    for k in range(3):
-        nb = ctx[_C_NH + k]
-        r[1 + k] = (g * mg[k] + (1.0 - g) * mg[3 + k] - nb) / nb
+    g1 = 1.0 - g
+    r[0] = math.log(total)
+    inv_t = 1.0 / total
+    jac[0] = dt0 * inv_t
+    jac[1] = dt1 * inv_t
+    jac[2] = dt2 * inv_t
+    jac[3] = 0.0
+    # H
+    inv_b = 1.0 / ctx[_C_NH]
+    res, dq = _log_balance((g * gh + g1 * mh) * inv_b)
+    dq *= inv_b
+    r[1] = res
+    jac[4] = dq * (g * gh0 + g1 * h2o_0 * _H2O_MOL_PER_WT_PERCENT)
+    jac[5] = dq * (g * gh1 + g1 * h2o_1 * _H2O_MOL_PER_WT_PERCENT)
+    jac[6] = dq * g * gh2
+    jac[7] = dq * (gh - mh)
+    # C
+    inv_b = 1.0 / ctx[_C_NC]
+    res, dq = _log_balance((g * gc + g1 * mc) * inv_b)
+    dq *= inv_b
+    r[2] = res
+    jac[8] = dq * (g * gc0 + g1 * co2_0 * _CO2_MOL_PER_PPM)
+    jac[9] = dq * (g * gc1 + g1 * co2_1 * _CO2_MOL_PER_PPM)
+    jac[10] = dq * g * gc2
+    jac[11] = dq * (gc - mc)
+    # S (melt S = gas S / D_S)
+    inv_b = 1.0 / ctx[_C_NS]
+    res, dq = _log_balance((g * gs + g1 * ms) * inv_b)
+    dq *= inv_b
+    w = g + g1 * inv_d
+    r[3] = res
+    jac[12] = dq * w * gs0
+    jac[13] = dq * w * gs1
+    jac[14] = dq * w * gs2
+    jac[15] = dq * (gs - ms)
     s = 0.0
     for k in range(4):
-        if not math.isfinite(r[k]):
-            return 1e300
         s += r[k] * r[k]
+    if not math.isfinite(s):
+        return math.inf
+    for k in range(16):
+        if not math.isfinite(jac[k]):
+            return math.inf
     return s
+
+
+M_SO2 = 64.058
+GUESS_PASSES = 1
+T_TOL = 1e-3  # logit tolerance of the start; the 4-D Newton iteration finishes the job
+M_H2S = 34.076
+
+
+@njit(cache=True)
+def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par, c_law,
+                c_par):
+    """Lever-rule test of the H-C start at logit(y) = tt with a fraction zs of S
+    carriers (molar mass ms) in the gas; returns (d, g, y, 1 - y)."""
+    if tt > 0.0:
+        e = math.exp(-tt)
+        y = 1.0 / (1.0 + e)
+        y1 = e / (1.0 + e)
+    else:
+        e = math.exp(tt)
+        y = e / (1.0 + e)
+        y1 = 1.0 / (1.0 + e)
+    hc = 1.0 - zs
+    # H carriers H2O + H2 and C carriers CO2 + CO in the fO2-set ratios
+    ph = hc * y1 / (1.0 + rh) * p
+    pc = hc * y / (1.0 + rc) * p
+    h2o_m = h2o_wt_percent(h_law, h_par, ph, pc, ph * phi_h, pc * phi_c, p, t)
+    co2_m = co2_ppm(c_law, c_par, ph, pc, ph * phi_h, pc * phi_c, p, t)
+    nh_m = h2o_m * _H2O_MOL_PER_WT_PERCENT
+    nc_m = co2_m * _CO2_MOL_PER_PPM
+    mbar = hc * (y1 * mh + y * mc) + zs * ms
+    nh_g = 2.0 * hc * y1 / mbar
+    nc_g = hc * y / mbar
+    # cross product of bulk-minus-melt and gas-minus-melt in the (H, C) plane (zero
+    # when bulk, melt and gas are collinear: the lever rule), each element scaled by
+    # its bulk and the whole by the 1-norms: bounded, so false position works well
+    ah = (n_h - nh_m) / n_h
+    ac = (n_c - nc_m) / n_c
+    bh = (nh_g - nh_m) / n_h
+    bc = (nc_g - nc_m) / n_c
+    d = (ah * bc - ac * bh) / ((abs(ah) + abs(ac)) * (abs(bh) + abs(bc)) + 1e-300)
+    if abs(nc_g - nc_m) * n_h > abs(nh_g - nh_m) * n_c:
+        g = (n_c - nc_m) / (nc_g - nc_m)
+    else:
+        g = (n_h - nh_m) / (nh_g - nh_m)
+    return d, g, y, y1
+
+
+@njit(cache=True)
+def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par,
+                c_law, c_par):
+    """Root in logit(y) of the lever-rule test: bracket from [lo, hi] (widened
+    geometrically within [-650, 40] if needed), then Illinois false position with
+    bisection when it stalls. Returns (tt, g, y, 1 - y)."""
+    f_lo, g, y, y1 = _guess_sign(lo, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                 h_law, h_par, c_law, c_par)
+    f_hi, g, y, y1 = _guess_sign(hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                 h_law, h_par, c_law, c_par)
+    # widen geometrically until the test changes sign (or the range ends)
+    width = 8.0
+    while f_lo > 0.0 and lo > -650.0:
+        hi = lo
+        f_hi = f_lo
+        lo = max(lo - width, -650.0)
+        width *= 2.0
+        f_lo, g, y, y1 = _guess_sign(lo, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                     h_law, h_par, c_law, c_par)
+    while f_hi < 0.0 and hi < 40.0:
+        lo = hi
+        f_lo = f_hi
+        hi = min(hi + width, 40.0)
+        width *= 2.0
+        f_hi, g, y, y1 = _guess_sign(hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                     h_law, h_par, c_law, c_par)
+    if not (f_lo <= 0.0 and f_hi >= 0.0):
+        # no sign change: take the end whose test is closer to zero
+        tt = lo if abs(f_lo) < abs(f_hi) else hi
+        f, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                  h_law, h_par, c_law, c_par)
+        return tt, g, y, y1
+    tt = lo
+    side = 0
+    width = hi - lo
+    for it in range(100):
+        if f_lo == 0.0:
+            tt = lo
+            break
+        if f_hi == 0.0:
+            tt = hi
+            break
+        t_new = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
+        if not (t_new >= lo and t_new <= hi):
+            t_new = 0.5 * (lo + hi)
+        done = abs(t_new - tt) < T_TOL or hi - lo < T_TOL
+        if it % 3 == 2 and hi - lo > 0.5 * width:
+            t_new = 0.5 * (lo + hi)  # false position is stalling: bisect
+            done = False
+        if it % 3 == 2:
+            width = hi - lo
+        tt = t_new
+        f, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                  h_law, h_par, c_law, c_par)
+        if done or f == 0.0:
+            return tt, g, y, y1
+        if f < 0.0:
+            lo = tt
+            f_lo = f
+            if side == -1:
+                f_hi *= 0.5
+            side = -1
+        else:
+            hi = tt
+            f_hi = f
+            if side == 1:
+                f_lo *= 0.5
+            side = 1
+    f, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                              h_law, h_par, c_law, c_par)
+    return tt, g, y, y1
 
 
 @njit(cache=True)
 def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
-    """1-D H2O-CO2 solution (S ignored) by bisection on the CO2 fraction y of the gas."""
+    """Start for the 4-D iteration: H and C carriers (H2O + H2, CO2 + CO in fO2-set
+    ratios) from a 1-D root in logit of the gas C fraction, the S carriers (SO2 + H2S)
+    from the S balance; the S fraction dilutes H2O and CO2, so the two are
+    alternated a few times."""
     p = ctx[_C_P]
     t = ctx[_C_T]
-    phi_h = math.exp(ctx[_C_LNPHI + 0])
-    phi_c = math.exp(ctx[_C_LNPHI + 3])
+    phi_h = ctx[_C_PHIH]
+    phi_c = ctx[_C_PHIC]
     n_h = ctx[_C_NH]
     n_c = ctx[_C_NC]
-    lo = 1e-12
-    hi = 1.0 - 1e-12
+    n_s = ctx[_C_NS]
+    d_s = ctx[_C_DS]
+    rh = ctx[_C_MONO + 1] / ctx[_C_MONO + 0]     # x_H2 / x_H2O at this fO2
+    rc = ctx[_C_MONO + 4] / ctx[_C_MONO + 3]     # x_CO / x_CO2
+    mh = (M_H2O + rh * MOLAR_MASS_C[1]) / (1.0 + rh)
+    mc = (M_CO2 + rc * MOLAR_MASS_C[4]) / (1.0 + rc)
+    zs = 0.0
+    ms = 0.5 * (M_SO2 + M_H2S)
+    # With all volatiles in the gas, logit(y) = ln(2 n_C / n_H); CO2 is the less
+    # soluble, so the root lies above that (by 0 to ~8 over the shipped priors).
+    lo = math.log(2.0 * n_c / n_h) - 0.5
+    hi = lo + 9.0
+    tt = 0.0
     g = 0.0
     y = 0.5
-    for _ in range(80):
-        y = 0.5 * (lo + hi)
-        ph = (1.0 - y) * p
-        pc = y * p
-        h2o_m = h2o_wt_percent(h_law, h_par, ph, pc, ph * phi_h, pc * phi_c, p, t)
-        co2_m = co2_ppm(c_law, c_par, ph, pc, ph * phi_h, pc * phi_c, p, t)
-        nh_m = 2.0 * h2o_m / 100.0 / M_H2O
-        nc_m = co2_m * 1e-6 / M_CO2
-        mbar = (1.0 - y) * M_H2O + y * M_CO2
-        nh_g = 2.0 * (1.0 - y) / mbar
-        nc_g = y / mbar
-        d = (n_h - nh_m) * (nc_g - nc_m) - (n_c - nc_m) * (nh_g - nh_m)
-        if abs(nc_g - nc_m) > abs(nh_g - nh_m):
-            g = (n_c - nc_m) / (nc_g - nc_m)
-        else:
-            g = (n_h - nh_m) / (nh_g - nh_m)
-        if d < 0.0:
-            lo = y
-        else:
-            hi = y
-    # S: mostly in the gas when g is large; sized from the S balance
-    mbar = (1.0 - y) * M_H2O + y * M_CO2
-    g_pos = max(g, 1e-6)
-    d_s = ctx[_C_DS]
-    denom = g_pos + (1.0 - g_pos) / d_s if d_s > 0 else g_pos
-    zs = ctx[_C_NS] * mbar / denom
-    zs = min(max(zs, 1e-12), 0.3)
-    # split S between SO2 and H2S by the fO2-set ratio at this fH2O
-    x_h2o = (1.0 - y) * (1.0 - zs)
-    x_co2 = y * (1.0 - zs)
+    y1 = 0.5
+    frac_so2 = 0.5
+    u0 = 0.0
+    for _pass in range(GUESS_PASSES):
+        tt, g, y, y1 = _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                   h_law, h_par, c_law, c_par)
+        # S carriers from the S balance at this g: zs/mbar * (g + (1-g)/D) = n_S
+        g_pos = max(g, G_START_MIN)
+        w = g_pos + (1.0 - g_pos) / d_s if d_s > 0 else g_pos
+        x_h2o = (1.0 - zs) * y1 / (1.0 + rh)
+        u0 = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
+        ln_r = ctx[_C_OFF + 6] - ctx[_C_OFF + 7] - u0
+        frac_so2 = 1.0 / (1.0 + math.exp(-ln_r)) if ln_r > -700 else 0.0
+        ms = frac_so2 * M_SO2 + (1.0 - frac_so2) * M_H2S
+        m_hc = y1 * mh + y * mc
+        den = w - n_s * (ms - m_hc)
+        zs_new = n_s * m_hc / den if den > 0.0 else 0.9
+        zs_new = min(max(zs_new, 1e-300), 0.9)
+        if abs(zs_new - zs) <= 1e-2 * zs_new:
+            zs = zs_new
+            break
+        zs = zs_new
+        lo = tt - 1.0
+        hi = tt + 1.0
+    x_h2o = y1 * (1.0 - zs) / (1.0 + rh)
+    x_co2 = y * (1.0 - zs) / (1.0 + rc)
     z[0] = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
     z[1] = math.log(max(x_co2, 1e-300)) - ctx[_C_OFF + 3]
+    # split S between SO2 and H2S by the fO2-set ratio at this fH2O
     ln_r = ctx[_C_OFF + 6] - ctx[_C_OFF + 7] - z[0]
     frac_so2 = 1.0 / (1.0 + math.exp(-ln_r)) if ln_r > -700 else 0.0
     x_so2 = max(frac_so2 * zs, 1e-300)
@@ -193,99 +480,125 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
 
 
 @njit(cache=True)
-def _solve4(a, b, out):
-    """Gaussian elimination with partial pivoting for a 4x4 system; False if singular."""
-    m = np.empty((4, 5))
+def _solve4(a, b, out, m):
+    """Gaussian elimination with partial pivoting for a 4x4 system (a row-major, 16);
+    m: 20-element work array. False if singular."""
     for i in range(4):
         for j in range(4):
-            m[i, j] = a[i, j]
-        m[i, 4] = b[i]
+            m[i * 5 + j] = a[i * 4 + j]
+        m[i * 5 + 4] = b[i]
     for col in range(4):
         piv = col
         for i in range(col + 1, 4):
-            if abs(m[i, col]) > abs(m[piv, col]):
+            if abs(m[i * 5 + col]) > abs(m[piv * 5 + col]):
                 piv = i
-        if abs(m[piv, col]) < 1e-300 or not math.isfinite(m[piv, col]):
+        if abs(m[piv * 5 + col]) < 1e-300 or not math.isfinite(m[piv * 5 + col]):
             return False
         if piv != col:
             for j in range(5):
-                tmp = m[col, j]
-                m[col, j] = m[piv, j]
-                m[piv, j] = tmp
+                tmp = m[col * 5 + j]
+                m[col * 5 + j] = m[piv * 5 + j]
+                m[piv * 5 + j] = tmp
         for i in range(col + 1, 4):
-            f = m[i, col] / m[col, col]
+            f = m[i * 5 + col] / m[col * 5 + col]
             for j in range(col, 5):
-                m[i, j] -= f * m[col, j]
+                m[i * 5 + j] -= f * m[col * 5 + j]
     for i in range(3, -1, -1):
-        s = m[i, 4]
+        s = m[i * 5 + 4]
         for j in range(i + 1, 4):
-            s -= m[i, j] * out[j]
-        out[i] = s / m[i, i]
+            s -= m[i * 5 + j] * out[j]
+        out[i] = s / m[i * 5 + i]
     return True
 
 
+MAX_NEWTON = 100
+G_SCALE = 1e-5
+G_START_MIN = 1e-4
+MERIT_TOL = 1e-22       # sum of squared residuals: balances to ~1e-11 relative
+REFRESH_MERIT = 1e-6    # law elasticities are refreshed until the merit is below this
+
+
 @njit(cache=True)
-def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess):
-    """Closed-system equilibrium for one context; z = (u0, u1, u2, g) in/out. Returns status."""
+def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
+    """Closed-system equilibrium for one context; z = (u0, u1, u2, g) in/out. Returns status.
+
+    work: float64 array of WORK_SIZE (no allocation per state).
+    """
     if use_guess:
         _initial_guess(ctx, h_law, h_par, c_law, c_par, z)
     g_start = z[3]
-    r = np.empty(4)
-    rt = np.empty(4)
-    jac = np.empty((4, 4))
-    step = np.empty(4)
-    trial = np.empty(4)
-    zp = np.empty(4)
-    rp = np.empty(4)
-    xt = np.empty(10)
-    mgt = np.empty(7)
-    merit = _residual(z, ctx, h_law, h_par, c_law, c_par, x, mg, r)
+    # S (and the S dilution of H2O and CO2) only add gas, so the true g is above the
+    # H-C estimate; a start on the positive side keeps the iteration off the g < 0
+    # region where the S balance may have no root.
+    z[3] = max(z[3], G_START_MIN)
+    r = work[_W_R:_W_R + 4]
+    rt = work[_W_RT:_W_RT + 4]
+    jac = work[_W_JAC:_W_JAC + 16]
+    jact = work[_W_JACT:_W_JACT + 16]
+    step = work[_W_STEP:_W_STEP + 4]
+    trial = work[_W_TRIAL:_W_TRIAL + 4]
+    xt = work[_W_XT:_W_XT + 10]
+    mgt = work[_W_MGT:_W_MGT + MG_SIZE]
+    m = work[_W_M:_W_M + 20]
+    # The iteration runs on v = asinh(g / G_SCALE): log-like for |g| >> G_SCALE, so a
+    # trace element whose balance is ~ ln(g) + u stays near-linear, and g < 0 remains
+    # reachable (undersaturated magma).
+    v = math.asinh(z[3] / G_SCALE)
+    merit = _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, True)
+    dg = G_SCALE * math.cosh(v)
+    for i in range(4):
+        jac[4 * i + 3] *= dg
     converged = False
-    for _ in range(100):
-        if merit < 1e-24:
-            converged = True
-            break
-        # forward-difference Jacobian
-        for k in range(4):
-            for j in range(4):
-                zp[j] = z[j]
-            h = 1e-7 * max(1.0, abs(z[k])) if k < 3 else 1e-7 * max(1e-3, abs(z[k]))
-            zp[k] += h
-            _residual(zp, ctx, h_law, h_par, c_law, c_par, xt, mgt, rp)
-            for i in range(4):
-                jac[i, k] = (rp[i] - r[i]) / h
-        neg = np.empty(4)
-        for i in range(4):
-            neg[i] = -r[i]
-        if not _solve4(jac, neg, step):
-            break
-        biggest = max(abs(step[0]), abs(step[1]), abs(step[2]))
-        scale = 1.0 if biggest < 5.0 else 5.0 / biggest
-        accepted = False
-        m_t = merit
-        for _ls in range(30):
-            for j in range(4):
-                trial[j] = z[j] + scale * step[j]
-            m_t = _residual(trial, ctx, h_law, h_par, c_law, c_par, xt, mgt, rt)
-            if m_t < merit * (1.0 - 1e-4 * scale) or m_t < 1e-24:
-                accepted = True
+    if math.isfinite(merit):
+        for it in range(MAX_NEWTON):
+            work[_W_ITER] = it
+            if merit < MERIT_TOL:
+                converged = True
                 break
-            scale *= 0.5
-        if not accepted:
-            break
-        for j in range(4):
-            z[j] = trial[j]
-            r[j] = rt[j]
-        for j in range(10):
-            x[j] = xt[j]
-        for j in range(7):
-            mg[j] = mgt[j]
-        merit = m_t
+            for i in range(4):
+                rt[i] = -r[i]
+            if not _solve4(jac, rt, step, m):
+                break
+            biggest = max(abs(step[0]), abs(step[1]), abs(step[2]), abs(step[3]))
+            scale = 1.0 if biggest < 5.0 else 5.0 / biggest
+            accepted = False
+            m_t = merit
+            v_t = v
+            for _ls in range(30):
+                for j in range(3):
+                    trial[j] = z[j] + scale * step[j]
+                v_t = v + scale * step[3]
+                trial[3] = G_SCALE * math.sinh(v_t)
+                for j in range(7, MG_SIZE):
+                    mgt[j] = mg[j]
+                m_t = _evaluate(trial, ctx, h_law, h_par, c_law, c_par, xt, mgt, rt, jact,
+                                merit > REFRESH_MERIT)
+                if m_t < merit * (1.0 - 1e-4 * scale) or m_t < MERIT_TOL:
+                    accepted = True
+                    break
+                scale *= 0.5
+            if not accepted:
+                break
+            v = v_t
+            dg = G_SCALE * math.cosh(v)
+            for j in range(4):
+                z[j] = trial[j]
+                r[j] = rt[j]
+            for j in range(16):
+                jac[j] = jact[j]
+            for i in range(4):
+                jac[4 * i + 3] *= dg
+            for j in range(10):
+                x[j] = xt[j]
+            for j in range(MG_SIZE):
+                mg[j] = mgt[j]
+            merit = m_t
     if not converged and merit < 1e-20:
         converged = True
     if not converged:
-        # Well above saturation the 4-D iteration can stall at g < 0; the H2O-CO2
-        # start already shows the magma holds all its volatiles there.
+        # Well above saturation the 4-D iteration can stall at g < 0 (with D_S the S
+        # balance has no root there); the H-C start already shows the magma holds
+        # all its volatiles.
         if g_start < 0.0:
             z[3] = g_start
             return STATUS_NO_GAS
@@ -308,26 +621,28 @@ def _set_pressure(ctx, pressure_bar, ln_k, ln_phi, ideal):
 
 
 @njit(cache=True)
-def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi):
+def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work):
     """Pressure (bar) at which the gas fraction reaches zero; inf above P_SAT_CAP_BAR."""
-    z = np.empty(4)
-    x = np.empty(10)
-    mg = np.empty(7)
-    c2 = ctx.copy()
+    z = work[_W_Z:_W_Z + 4]
+    x = work[_W_X:_W_X + 10]
+    mg = work[_W_MG:_W_MG + MG_SIZE]
+    c2 = work[_W_CTX:_W_CTX + CTX_SIZE]
+    for i in range(CTX_SIZE):
+        c2[i] = ctx[i]
     lo = 1.0
     hi = P_SAT_CAP_BAR
     _set_pressure(c2, hi, ln_k, ln_phi, ideal)
-    st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True)
+    st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True, work)
     if st == STATUS_GAS:
         return math.inf
     _set_pressure(c2, lo, ln_k, ln_phi, ideal)
-    st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True)
+    st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True, work)
     if st != STATUS_GAS:
         return math.nan
     for _ in range(50):
         mid = math.sqrt(lo * hi)
         _set_pressure(c2, mid, ln_k, ln_phi, ideal)
-        st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True)
+        st = solve_closed(c2, h_law, h_par, c_law, c_par, z, x, mg, True, work)
         if st == STATUS_GAS:
             lo = mid
         elif st == STATUS_NO_GAS:
@@ -347,7 +662,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     ln_k = np.empty(6)
     ln_phi = np.empty(10)
     z = np.empty(4)
-    mg = np.empty(7)
+    mg = np.empty(MG_SIZE)
+    work = np.empty(WORK_SIZE)
     for j in range(temperature_k.shape[0]):
         n_h = 2.0 * h2o_wt[j] / 100.0 / M_H2O
         n_c = co2_ppm_bulk[j] * 1e-6 / M_CO2
@@ -356,17 +672,16 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
                       ideal, ln_k, ln_phi)
         psat = math.nan
         if want_psat or open_system:
-            psat = saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi)
+            # works on a copy: ctx still describes the state at P afterwards
+            psat = saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work)
         psat_out[j] = psat
         if open_system and math.isfinite(psat) and psat > pressure_bar[j]:
             st = _open_path(ctx, psat, pressure_bar[j], n_open_steps, h_law, h_par, c_law, c_par,
-                            ideal, ln_k, ln_phi, z, x_out[j], mg)
+                            ideal, ln_k, ln_phi, z, x_out[j], mg, work)
         elif open_system and (math.isinf(psat) or math.isnan(psat)):
             st = STATUS_FAILED  # no defined open-system path without a saturation pressure
         else:
-            _fill_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], n_h, n_c, n_s, d_s[j],
-                          ideal, ln_k, ln_phi)
-            st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x_out[j], mg, True)
+            st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x_out[j], mg, True, work)
         status_out[j] = st
         g_out[j] = z[3] if st == STATUS_GAS else 0.0
         # melt contents: H2O wt%, CO2 ppm, S ppm
@@ -384,24 +699,21 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
 
 @njit(cache=True)
 def _open_path(ctx, psat, pressure_bar, n_steps, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi,
-               z, x, mg):
+               z, x, mg, work):
     """Step from just below psat to P, removing the gas each step."""
     st = STATUS_FAILED
     ratio = (pressure_bar / psat) ** (1.0 / n_steps)
-    p = psat
-    first = True
     for k in range(n_steps):
         p = psat * ratio ** (k + 1) if k < n_steps - 1 else pressure_bar
         _set_pressure(ctx, p, ln_k, ln_phi, ideal)
-        st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True)
-        first = False
+        st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
         if st == STATUS_FAILED:
             return st
         if st == STATUS_GAS and k < n_steps - 1:
             # remove the gas: the next step starts from this melt
-            ctx[_C_NH] = mg[3]
-            ctx[_C_NC] = mg[4]
-            ctx[_C_NS] = mg[5]
+            ctx[_C_NH] = max(mg[3], VANISHING_MOL_PER_G)
+            ctx[_C_NC] = max(mg[4], VANISHING_MOL_PER_G)
+            ctx[_C_NS] = max(mg[5], VANISHING_MOL_PER_G)
     return st
 
 
