@@ -78,7 +78,7 @@ def row_key(row_id):
 def _invert_row(args):
     """Invert one row and write rows/KEY.nc then rows/KEY.json; returns the summary row."""
     prior_path, measurement, row_id, time_text, seed, options, out_dir = args
-    from .inference import infer
+    from .inference import InferenceError, infer
     from .priors import load_prior_file
     spec = load_prior_file(prior_path)
     opts = dict(options)
@@ -86,7 +86,10 @@ def _invert_row(args):
     with warnings.catch_warnings():
         # arviz warns when a short ensemble has more walkers than draws; not a user problem
         warnings.filterwarnings("ignore", message="More chains", category=UserWarning)
-        result = infer(measurement, spec, seed=seed, **opts)
+        try:
+            result = infer(measurement, spec, seed=seed, **opts)
+        except InferenceError as exc:  # one line, names the row; finished rows stay for --resume
+            raise InputError(f"row '{row_id}': {exc}") from None
     key = row_key(row_id)
     nc_path = os.path.join(out_dir, "rows", f"{key}.nc")
     result.idata.to_netcdf(nc_path + ".part")
