@@ -80,8 +80,8 @@ _W_STEP = 40                  # 4
 _W_TRIAL = 44                 # 4
 _W_XT = 48                    # 10 trial mole fractions
 _W_MGT = 58                   # MG_SIZE trial gas/melt amounts
-_W_M = _W_MGT + MG_SIZE       # 20 elimination matrix (4 x 5)
-_W_Z = _W_M + 20              # 4 spare z (saturation pressure)
+_W_M = _W_MGT + MG_SIZE       # 24: elimination matrix (4 x 5) and right side
+_W_Z = _W_M + 24              # 4 spare z (saturation pressure)
 _W_X = _W_Z + 4               # 10 spare x (saturation pressure)
 _W_MG = _W_X + 10             # MG_SIZE spare mg (saturation pressure)
 _W_CTX = _W_MG + MG_SIZE      # CTX_SIZE copy of a context (saturation pressure)
@@ -300,7 +300,8 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
 
 M_SO2 = 64.058
 GUESS_PASSES = 1
-T_TOL = 1e-3  # logit tolerance of the start; the 4-D Newton iteration finishes the job
+GUESS_ROUNDS = 1
+T_TOL = 0.3  # logit tolerance of the start; the 4-D Newton iteration finishes the job
 M_H2S = 34.076
 
 
@@ -417,6 +418,17 @@ def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_
 
 
 @njit(cache=True)
+def _s_fraction(g, n_s, d_s, ms, m_hc):
+    """Mole fraction of S carriers (molar mass ms) in a gas whose H-C part has mean
+    molar mass m_hc, from the S balance zs/mbar * (g + (1-g)/D_S) = n_S."""
+    g_pos = max(g, G_START_MIN)
+    w = g_pos + (1.0 - g_pos) / d_s if d_s > 0 else g_pos
+    den = w - n_s * (ms - m_hc)
+    zs = n_s * m_hc / den if den > 0.0 else 0.9
+    return min(max(zs, 1e-300), 0.9)
+
+
+@njit(cache=True)
 def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     """Start for the 4-D iteration: H and C carriers (H2O + H2, CO2 + CO in fO2-set
     ratios) from a 1-D root in logit of the gas C fraction, the S carriers (SO2 + H2S)
@@ -449,24 +461,23 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     for _pass in range(GUESS_PASSES):
         tt, g, y, y1 = _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
                                    h_law, h_par, c_law, c_par)
-        # S carriers from the S balance at this g: zs/mbar * (g + (1-g)/D) = n_S
-        g_pos = max(g, G_START_MIN)
-        w = g_pos + (1.0 - g_pos) / d_s if d_s > 0 else g_pos
         x_h2o = (1.0 - zs) * y1 / (1.0 + rh)
         u0 = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
         ln_r = ctx[_C_OFF + 6] - ctx[_C_OFF + 7] - u0
         frac_so2 = 1.0 / (1.0 + math.exp(-ln_r)) if ln_r > -700 else 0.0
         ms = frac_so2 * M_SO2 + (1.0 - frac_so2) * M_H2S
-        m_hc = y1 * mh + y * mc
-        den = w - n_s * (ms - m_hc)
-        zs_new = n_s * m_hc / den if den > 0.0 else 0.9
-        zs_new = min(max(zs_new, 1e-300), 0.9)
+        zs_new = _s_fraction(g, n_s, d_s, ms, y1 * mh + y * mc)
         if abs(zs_new - zs) <= 1e-2 * zs_new:
             zs = zs_new
             break
         zs = zs_new
         lo = tt - 1.0
         hi = tt + 1.0
+    # g for the S-diluted gas at the same C fraction (one more test, no root)
+    for _round in range(GUESS_ROUNDS):
+        _, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
+                                  h_law, h_par, c_law, c_par)
+        zs = _s_fraction(g, n_s, d_s, ms, y1 * mh + y * mc)
     x_h2o = y1 * (1.0 - zs) / (1.0 + rh)
     x_co2 = y * (1.0 - zs) / (1.0 + rc)
     z[0] = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
@@ -477,6 +488,61 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     x_so2 = max(frac_so2 * zs, 1e-300)
     z[2] = 2.0 * (math.log(x_so2) - ctx[_C_OFF + 6])
     z[3] = g
+
+
+@njit(cache=True)
+def _solve_newton(jac, r, out, m):
+    """Newton step out = -J^-1 r for the 4 x 4 Jacobian (row-major) of _evaluate.
+
+    Row 0 (sum of x) does not depend on g: eliminate g with the balance row whose g
+    entry is largest, solve the remaining 3 x 3 system in u by Cramer's rule, and
+    back-substitute g. Falls back to pivoted elimination if that pivot is tiny.
+    """
+    p = 1
+    if abs(jac[11]) > abs(jac[4 * p + 3]):
+        p = 2
+    if abs(jac[15]) > abs(jac[4 * p + 3]):
+        p = 3
+    piv = jac[4 * p + 3]
+    big = 0.0
+    for k in range(16):
+        big = max(big, abs(jac[k]))
+    if not abs(piv) > 1e-12 * big:
+        for i in range(4):
+            m[16 + i] = -r[i]
+        return _solve4(jac, m[16:20], out, m)
+    q1 = 1 if p != 1 else 2
+    q2 = 3 if p != 3 else 2
+    f1 = jac[4 * q1 + 3] / piv
+    f2 = jac[4 * q2 + 3] / piv
+    # 3 x 3 system: row 0, and rows q1, q2 minus f * row p (g eliminated)
+    a00 = jac[0]
+    a01 = jac[1]
+    a02 = jac[2]
+    b0 = -r[0]
+    a10 = jac[4 * q1] - f1 * jac[4 * p]
+    a11 = jac[4 * q1 + 1] - f1 * jac[4 * p + 1]
+    a12 = jac[4 * q1 + 2] - f1 * jac[4 * p + 2]
+    b1 = -r[q1] + f1 * r[p]
+    a20 = jac[4 * q2] - f2 * jac[4 * p]
+    a21 = jac[4 * q2 + 1] - f2 * jac[4 * p + 1]
+    a22 = jac[4 * q2 + 2] - f2 * jac[4 * p + 2]
+    b2 = -r[q2] + f2 * r[p]
+    c00 = a11 * a22 - a12 * a21
+    c01 = a10 * a22 - a12 * a20
+    c02 = a10 * a21 - a11 * a20
+    det = a00 * c00 - a01 * c01 + a02 * c02
+    if not (abs(det) > 0.0 and math.isfinite(det)):
+        for i in range(4):
+            m[16 + i] = -r[i]
+        return _solve4(jac, m[16:20], out, m)
+    inv = 1.0 / det
+    out[0] = (b0 * c00 - a01 * (b1 * a22 - a12 * b2) + a02 * (b1 * a21 - a11 * b2)) * inv
+    out[1] = (a00 * (b1 * a22 - a12 * b2) - b0 * c01 + a02 * (a10 * b2 - b1 * a20)) * inv
+    out[2] = (a00 * (a11 * b2 - b1 * a21) - a01 * (a10 * b2 - b1 * a20) + b0 * c02) * inv
+    out[3] = (-r[p] - jac[4 * p] * out[0] - jac[4 * p + 1] * out[1]
+              - jac[4 * p + 2] * out[2]) / piv
+    return True
 
 
 @njit(cache=True)
@@ -545,7 +611,7 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     # reachable (undersaturated magma).
     v = math.asinh(z[3] / G_SCALE)
     merit = _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, True)
-    dg = G_SCALE * math.cosh(v)
+    dg = math.sqrt(G_SCALE * G_SCALE + z[3] * z[3])  # dg/dv = G_SCALE cosh(v)
     for i in range(4):
         jac[4 * i + 3] *= dg
     converged = False
@@ -555,9 +621,7 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
             if merit < MERIT_TOL:
                 converged = True
                 break
-            for i in range(4):
-                rt[i] = -r[i]
-            if not _solve4(jac, rt, step, m):
+            if not _solve_newton(jac, r, step, m):
                 break
             biggest = max(abs(step[0]), abs(step[1]), abs(step[2]), abs(step[3]))
             scale = 1.0 if biggest < 5.0 else 5.0 / biggest
@@ -580,7 +644,7 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
             if not accepted:
                 break
             v = v_t
-            dg = G_SCALE * math.cosh(v)
+            dg = math.sqrt(G_SCALE * G_SCALE + trial[3] * trial[3])
             for j in range(4):
                 z[j] = trial[j]
                 r[j] = rt[j]
