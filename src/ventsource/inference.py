@@ -37,7 +37,7 @@ _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, ta
                  max_steps=20000, alpha=0.01, n_prior_draws=2000, scrub_name="scrubbed_so2",
                  n_proposal=20000, model_choice=True, space="unbounded", burn_factor=3.0, min_tau_factor=30.0,
                  chunk=200, max_error_p=0.05, rhat_max=1.05, moves="de", init="importance",
-                 n_init_draws=None, rhat_target=1.01)
+                 n_init_draws=None, rhat_target=1.05)
 
 
 class InferenceError(ValueError):
@@ -226,8 +226,8 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
 
     options (defaults): kind/dof (from prior.likelihood, else "normal"/4), epsilon=0.05
     (threshold for P(scrubbed < epsilon | data, M1)), pi0 (prior.p_magmatic, else 0.5),
-    n_walkers (default 32 per free parameter), target_ess=1000 (ArviZ bulk ESS of every
-    parameter), rhat_target=1.01 (split R-hat stop criterion), moves="de" (DE + snooker;
+    n_walkers (default 16 per free parameter, at least 32), target_ess=1000 (ArviZ bulk ESS of every
+    parameter), rhat_target=1.05 (split R-hat stop criterion), moves="de" (DE + snooker;
     "stretch", "kde" or an emcee moves list), init="importance" (likelihood-weighted prior
     draws; or "prior"), n_init_draws (default 20 per walker), max_steps=20000, alpha=0.01 (predictive check level),
     n_prior_draws=2000, scrub_name="scrubbed_so2", n_proposal=20000 (bridge proposal draws),
