@@ -89,7 +89,7 @@ _W_ITER = _W_CTX + CTX_SIZE   # Newton iterations of the last solve (diagnostics
 WORK_SIZE = _W_ITER + 1
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi):
     a, b, c = FMQ_COEFFICIENTS
     ln_fo2 = (a / temperature_k + b + c * (pressure_bar - 1.0) / temperature_k + dfmq) * LN10
@@ -126,7 +126,7 @@ _H2O_MOL_PER_WT_PERCENT = 2.0 / 100.0 / M_H2O   # mol H per g melt per wt% H2O
 _CO2_MOL_PER_PPM = 1e-6 / M_CO2                 # mol C per g melt per ppm CO2
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _log_balance(q):
     """(residual, d residual / d q) of one element balance, see Q_LINEAR."""
     if q >= Q_LINEAR:
@@ -134,7 +134,7 @@ def _log_balance(q):
     return _LN_Q_LINEAR + (q - Q_LINEAR) / Q_LINEAR, 1.0 / Q_LINEAR
 
 
-@njit(cache=True, fastmath={'contract', 'arcp'})
+@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc', 'nsz'})
 def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     """Residuals r (4) and analytic Jacobian jac (4 x 4, row-major) at z; returns the merit.
 
@@ -233,12 +233,22 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
         # together); between refreshes they are reused, which keeps the Jacobian
         # exact for power laws and nearly so otherwise (Newton only needs it close)
         e = 1.0 + LAW_STEP
-        inv_h = 1.0 / (h2o_m * LAW_STEP) if h2o_m != 0.0 else 0.0
-        inv_c = 1.0 / (co2_m * LAW_STEP) if co2_m != 0.0 else 0.0
-        mg[7] = (h2o_wt_percent(h_law, h_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t) - h2o_m) * inv_h
-        mg[8] = (h2o_wt_percent(h_law, h_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t) - h2o_m) * inv_h
-        mg[9] = (co2_ppm(c_law, c_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t) - co2_m) * inv_c
-        mg[10] = (co2_ppm(c_law, c_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t) - co2_m) * inv_c
+        h2o_a = h2o_wt_percent(h_law, h_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t)
+        h2o_b = h2o_wt_percent(h_law, h_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t)
+        co2_a = co2_ppm(c_law, c_par, p_h2o * e, p_co2, f_h2o * e, f_co2, p, t)
+        co2_b = co2_ppm(c_law, c_par, p_h2o, p_co2 * e, f_h2o, f_co2 * e, p, t)
+        if h2o_m != 0.0:
+            mg[7] = (h2o_a / h2o_m - 1.0) / LAW_STEP
+            mg[8] = (h2o_b / h2o_m - 1.0) / LAW_STEP
+        else:
+            mg[7] = 0.0
+            mg[8] = 0.0
+        if co2_m != 0.0:
+            mg[9] = (co2_a / co2_m - 1.0) / LAW_STEP
+            mg[10] = (co2_b / co2_m - 1.0) / LAW_STEP
+        else:
+            mg[9] = 0.0
+            mg[10] = 0.0
     h2o_0 = mg[7] * h2o_m
     h2o_1 = mg[8] * h2o_m
     co2_0 = mg[9] * co2_m
@@ -299,13 +309,14 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
 
 
 M_SO2 = 64.058
-GUESS_PASSES = 1
+GUESS_PASSES = 6
+ZS_MAX = 0.6   # cap of the S-carrier fraction in the start
 GUESS_ROUNDS = 1
 T_TOL = 0.3  # logit tolerance of the start; the 4-D Newton iteration finishes the job
 M_H2S = 34.076
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc', 'nsz'})
 def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par, c_law,
                 c_par):
     """Lever-rule test of the H-C start at logit(y) = tt with a fraction zs of S
@@ -344,12 +355,13 @@ def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law,
     return d, g, y, y1
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par,
                 c_law, c_par):
     """Root in logit(y) of the lever-rule test: bracket from [lo, hi] (widened
     geometrically within [-650, 40] if needed), then Illinois false position with
     bisection when it stalls. Returns (tt, g, y, 1 - y)."""
+    t_default = 0.5 * (lo + hi)
     f_lo, g, y, y1 = _guess_sign(lo, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
                                  h_law, h_par, c_law, c_par)
     f_hi, g, y, y1 = _guess_sign(hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
@@ -371,8 +383,9 @@ def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_
         f_hi, g, y, y1 = _guess_sign(hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
                                      h_law, h_par, c_law, c_par)
     if not (f_lo <= 0.0 and f_hi >= 0.0):
-        # no sign change: take the end whose test is closer to zero
-        tt = lo if abs(f_lo) < abs(f_hi) else hi
+        # no sign change (H and C alone dissolve at every gas composition): start
+        # from the bulk C fraction plus the usual offset
+        tt = t_default
         f, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
                                   h_law, h_par, c_law, c_par)
         return tt, g, y, y1
@@ -417,23 +430,28 @@ def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_
     return tt, g, y, y1
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _s_fraction(g, n_s, d_s, ms, m_hc):
     """Mole fraction of S carriers (molar mass ms) in a gas whose H-C part has mean
     molar mass m_hc, from the S balance zs/mbar * (g + (1-g)/D_S) = n_S."""
     g_pos = max(g, G_START_MIN)
     w = g_pos + (1.0 - g_pos) / d_s if d_s > 0 else g_pos
     den = w - n_s * (ms - m_hc)
-    zs = n_s * m_hc / den if den > 0.0 else 0.9
-    return min(max(zs, 1e-300), 0.9)
+    zs = n_s * m_hc / den if den > 0.0 else ZS_MAX
+    return min(max(zs, 1e-300), ZS_MAX)
 
 
-@njit(cache=True)
-def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
+@njit(cache=True, error_model='numpy')
+def _initial_guess(ctx, h_law, h_par, c_law, c_par, z, s_first):
     """Start for the 4-D iteration: H and C carriers (H2O + H2, CO2 + CO in fO2-set
     ratios) from a 1-D root in logit of the gas C fraction, the S carriers (SO2 + H2S)
-    from the S balance; the S fraction dilutes H2O and CO2, so the two are
-    alternated a few times."""
+    from the S balance (S atoms in SO2 + H2S + S2); the S fraction dilutes H2O and
+    CO2, so where S is what makes the gas the two are alternated a few times.
+
+    s_first: start from the S fraction of a small gas (g = 1e-3) and keep the full
+    bracket, for magmas where S is what makes the gas (a retry of solve_closed).
+    Returns g of the H-C system alone: S only adds gas, so g_hc > 0 means gas.
+    """
     p = ctx[_C_P]
     t = ctx[_C_T]
     phi_h = ctx[_C_PHIH]
@@ -446,8 +464,8 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     rc = ctx[_C_MONO + 4] / ctx[_C_MONO + 3]     # x_CO / x_CO2
     mh = (M_H2O + rh * MOLAR_MASS_C[1]) / (1.0 + rh)
     mc = (M_CO2 + rc * MOLAR_MASS_C[4]) / (1.0 + rc)
-    zs = 0.0
     ms = 0.5 * (M_SO2 + M_H2S)
+    zs = _s_fraction(1e-3, n_s, d_s, ms, mh) if s_first else 0.0
     # With all volatiles in the gas, logit(y) = ln(2 n_C / n_H); CO2 is the less
     # soluble, so the root lies above that (by 0 to ~8 over the shipped priors).
     lo = math.log(2.0 * n_c / n_h) - 0.5
@@ -458,21 +476,36 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     y1 = 0.5
     frac_so2 = 0.5
     u0 = 0.0
+    g_hc = 0.0
     for _pass in range(GUESS_PASSES):
         tt, g, y, y1 = _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
                                    h_law, h_par, c_law, c_par)
+        if _pass == 0:
+            g_hc = g
+            good = (tt, g, y, y1, zs)
+        elif tt > -650.0 and tt < 40.0 and g > 0.0:
+            good = (tt, g, y, y1, zs)
+        else:
+            # the S-diluted problem lost its root: keep the last good start
+            tt, g, y, y1, zs = good
+            break
         x_h2o = (1.0 - zs) * y1 / (1.0 + rh)
         u0 = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
         ln_r = ctx[_C_OFF + 6] - ctx[_C_OFF + 7] - u0
         frac_so2 = 1.0 / (1.0 + math.exp(-ln_r)) if ln_r > -700 else 0.0
         ms = frac_so2 * M_SO2 + (1.0 - frac_so2) * M_H2S
         zs_new = _s_fraction(g, n_s, d_s, ms, y1 * mh + y * mc)
-        if abs(zs_new - zs) <= 1e-2 * zs_new:
+        if (_pass == 0 and g >= G_START_MIN) or abs(zs_new - zs) <= 1e-2 * zs_new:
+            # usual case: H and C alone already make a gas; the S dilution is
+            # handled below and by the 4-D iteration
             zs = zs_new
             break
-        zs = zs_new
-        lo = tt - 1.0
-        hi = tt + 1.0
+        # H and C alone (nearly) dissolve: S is what makes the gas, iterate on the
+        # S fraction (damped, the g <-> zs coupling is strong here)
+        zs = zs_new if _pass == 0 else 0.5 * (zs + zs_new)
+        if not s_first:
+            lo = tt - 1.0
+            hi = tt + 1.0
     # g for the S-diluted gas at the same C fraction (one more test, no root)
     for _round in range(GUESS_ROUNDS):
         _, g, y, y1 = _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc,
@@ -482,15 +515,17 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z):
     x_co2 = y * (1.0 - zs) / (1.0 + rc)
     z[0] = math.log(max(x_h2o, 1e-300)) - ctx[_C_OFF + 0]
     z[1] = math.log(max(x_co2, 1e-300)) - ctx[_C_OFF + 3]
-    # split S between SO2 and H2S by the fO2-set ratio at this fH2O
-    ln_r = ctx[_C_OFF + 6] - ctx[_C_OFF + 7] - z[0]
-    frac_so2 = 1.0 / (1.0 + math.exp(-ln_r)) if ln_r > -700 else 0.0
-    x_so2 = max(frac_so2 * zs, 1e-300)
-    z[2] = 2.0 * (math.log(x_so2) - ctx[_C_OFF + 6])
+    # S atoms in SO2 + H2S + S2 = zs: with r = e^(u2/2), c6 r + c7 a r + 2 c8 r^2 = zs,
+    # a quadratic in r (stable root form)
+    lin = ctx[_C_MONO + 6] + ctx[_C_MONO + 7] * math.exp(z[0])
+    quad = 2.0 * ctx[_C_MONO + 8]
+    r_s = 2.0 * zs / (lin + math.sqrt(lin * lin + 4.0 * quad * zs))
+    z[2] = 2.0 * math.log(max(r_s, 1e-300))
     z[3] = g
+    return g_hc
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _solve_newton(jac, r, out, m):
     """Newton step out = -J^-1 r for the 4 x 4 Jacobian (row-major) of _evaluate.
 
@@ -545,7 +580,7 @@ def _solve_newton(jac, r, out, m):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _solve4(a, b, out, m):
     """Gaussian elimination with partial pivoting for a 4x4 system (a row-major, 16);
     m: 20-element work array. False if singular."""
@@ -580,19 +615,39 @@ def _solve4(a, b, out, m):
 MAX_NEWTON = 100
 G_SCALE = 1e-5
 G_START_MIN = 1e-4
-MERIT_TOL = 1e-22       # sum of squared residuals: balances to ~1e-11 relative
+MERIT_TOL = 1e-20       # sum of squared residuals: balances to ~1e-11 relative
 REFRESH_MERIT = 1e-6    # law elasticities are refreshed until the merit is below this
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     """Closed-system equilibrium for one context; z = (u0, u1, u2, g) in/out. Returns status.
 
     work: float64 array of WORK_SIZE (no allocation per state).
     """
     if use_guess:
-        _initial_guess(ctx, h_law, h_par, c_law, c_par, z)
-    g_start = z[3]
+        g_start = _initial_guess(ctx, h_law, h_par, c_law, c_par, z, False)
+    else:
+        g_start = z[3]
+    st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work)
+    if st == STATUS_FAILED and use_guess and g_start < 0.0:
+        # H and C alone dissolve: before calling it "no gas", try once from a start
+        # where S makes a small gas
+        _initial_guess(ctx, h_law, h_par, c_law, c_par, z, True)
+        st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work)
+    if st == STATUS_FAILED and g_start < 0.0:
+        # Above saturation the 4-D iteration can stall at g < 0 (with D_S the S
+        # balance has no root there); the H-C system alone, g_start < 0, already
+        # shows the magma holds its H2O and CO2, and S alone did not make a gas.
+        z[3] = g_start
+        return STATUS_NO_GAS
+    return st
+
+
+@njit(cache=True, error_model='numpy')
+def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
+    """Damped Newton iteration from z; STATUS_GAS, STATUS_NO_GAS (root with g <= 0)
+    or STATUS_FAILED."""
     # S (and the S dilution of H2O and CO2) only add gas, so the true g is above the
     # H-C estimate; a start on the positive side keeps the iteration off the g < 0
     # region where the S balance may have no root.
@@ -660,12 +715,6 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     if not converged and merit < 1e-20:
         converged = True
     if not converged:
-        # Well above saturation the 4-D iteration can stall at g < 0 (with D_S the S
-        # balance has no root there); the H-C start already shows the magma holds
-        # all its volatiles.
-        if g_start < 0.0:
-            z[3] = g_start
-            return STATUS_NO_GAS
         return STATUS_FAILED
     # normalise away the last 1e-12 of the sum
     s = 0.0
@@ -678,13 +727,13 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     return STATUS_GAS
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _set_pressure(ctx, pressure_bar, ln_k, ln_phi, ideal):
     _fill_context(ctx, ctx[_C_T], pressure_bar, ctx[_C_DFMQ], ctx[_C_NH], ctx[_C_NC], ctx[_C_NS],
                   ctx[_C_DS], ideal, ln_k, ln_phi)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work):
     """Pressure (bar) at which the gas fraction reaches zero; inf above P_SAT_CAP_BAR."""
     z = work[_W_Z:_W_Z + 4]
@@ -718,7 +767,7 @@ def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, wo
     return math.sqrt(lo * hi)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
                  n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par,
                  x_out, g_out, melt_out, psat_out, status_out):
@@ -761,7 +810,7 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
                 melt_out[j, 2] = s_ppm[j]
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _open_path(ctx, psat, pressure_bar, n_steps, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi,
                z, x, mg, work):
     """Step from just below psat to P, removing the gas each step."""

@@ -45,7 +45,7 @@ MAX_ITERATIONS = 200
 TOLERANCE = 1e-13
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def log_fugacity_offsets(ln_k, ln_fo2, out):
     """ln f_i = out_i + exponents_i . u; ln_k are natural-log K of REACTIONS."""
     k1, k2, k3, k4, k5, k6 = ln_k[0], ln_k[1], ln_k[2], ln_k[3], ln_k[4], ln_k[5]
@@ -61,7 +61,7 @@ def log_fugacity_offsets(ln_k, ln_fo2, out):
     out[9] = k6 - k2 - 0.5 * ln_fo2       # COS
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _weighted_lse(log_x, weights, exps, grad):
     """ln sum(w_i x_i) and its gradient in u; weights >= 0."""
     m = -1e300
@@ -85,7 +85,7 @@ def _weighted_lse(log_x, weights, exps, grad):
     return m + np.log(total)
 
 
-@njit(cache=True, fastmath={'contract', 'arcp', 'reassoc'})
+@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc'})
 def _residual(u, offsets, exps, ones, h_w, c_w, s_w, ln_c_h, ln_s_h, log_x, jac, res, work):
     n = offsets.shape[0]
     m = -1e300
@@ -147,7 +147,7 @@ def _residual(u, offsets, exps, ones, h_w, c_w, s_w, ln_c_h, ln_s_h, log_x, jac,
     return res[0] ** 2 + res[1] ** 2 + res[2] ** 2
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def solve_3x3(a, b, out):
     """Cramer's rule; returns False if singular."""
     det = (a[0, 0] * (a[1, 1] * a[2, 2] - a[1, 2] * a[2, 1])
@@ -167,7 +167,7 @@ def solve_3x3(a, b, out):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def new_scratch():
     """Work space for speciate_state, reusable across states."""
     return np.empty(SCRATCH_SIZE)
@@ -176,7 +176,7 @@ def new_scratch():
 SCRATCH_SIZE = 3 * 10 + 6 * 3 + 2 * 9 + 6 * 4 + 10
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _speciate_state_logspace(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w, x_out, scratch):
     """Log-space solver (fallback of speciate_state); fills x_out; returns (status, iterations).
 
@@ -276,7 +276,7 @@ def _speciate_state_logspace(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_
     return status, it
 
 
-@njit(cache=True, fastmath={'contract', 'arcp'})
+@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp'})
 def _poly_residual(u0, u1, u2, c, ln_scale_c, ln_scale_s):
     """Residuals and Jacobian of the three equations in monomial form.
 
@@ -335,7 +335,7 @@ def _poly_residual(u0, u1, u2, c, ln_scale_c, ln_scale_s):
             s0 * inv_s - dh0, s1 * inv_s - dh1, s2 * inv_s - dh2)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _poly_fractions(u0, u1, u2, c, x_out):
     a = math.exp(u0)
     b = math.exp(u1)
@@ -352,7 +352,7 @@ def _poly_fractions(u0, u1, u2, c, x_out):
     x_out[9] = c[9] * b * r
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _start(offsets, b_h, b_c, b_s):
     """Safe start: H as H2O + H2, C as CO2 + CO, S as SO2 + H2S, ratios set by fO2."""
     r_h2 = math.exp(offsets[1] - offsets[0])
@@ -374,7 +374,7 @@ def _start(offsets, b_h, b_c, b_s):
     return u0, u1, u2
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _speciate_monomial(offsets, b_h, b_c, b_s, x_out, c):
     """Damped Newton on the monomial form; returns (status, iterations)."""
     for i in range(10):
@@ -424,7 +424,7 @@ def _speciate_monomial(offsets, b_h, b_c, b_s, x_out, c):
     return STATUS_NOT_CONVERGED, it
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def speciate_state(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w, x_out, scratch):
     """Solve one state; fills mole fractions x_out; returns (status, iterations).
 
@@ -456,7 +456,7 @@ def speciate_state(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_
     return status, it
 
 
-@njit(cache=True)
+@njit(cache=True, error_model='numpy')
 def _speciate_batch(temperature_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_w, c_w, s_w,
                     coeffs, t_mid, nu, x, status, iters):
     ln_k = np.empty(nu.shape[1])
