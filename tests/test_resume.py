@@ -12,7 +12,7 @@ import pandas as pd
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PRIOR = os.path.join(ROOT, "examples", "demo_mount_kerrow_fast.toml")
 TINY = ["--target-ess", "20", "--max-steps", "200", "--infer-option", "n_proposal=2000",
-        "--infer-option", "n_prior_draws=100", "--seed", "3", "--no-figures"]
+        "--infer-option", "n_prior_draws=100", "--infer-option", "n_walkers=16", "--seed", "3", "--no-figures"]
 DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"
         "R1,2025-01-10T00:00:00Z,0.70148,0.28677,36.329\n"
         "R2,2025-04-24T00:00:00Z,0.95252,0.30316,45.46\n"

@@ -16,7 +16,7 @@ from ventsource.series import Progress, row_key, row_seed, run_series
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PRIOR = os.path.join(ROOT, "examples", "demo_mount_kerrow_fast.toml")
 # tiny configuration: the point is bookkeeping and determinism, not posterior quality
-TINY = dict(target_ess=20, max_steps=200, n_proposal=2000, n_prior_draws=100)
+TINY = dict(n_walkers=16, target_ess=20, max_steps=200, n_proposal=2000, n_prior_draws=100)
 DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"
         "KRW-001,2025-01-10T00:00:00Z,0.70148,0.28677,36.329\n"
         "KRW-004,2025-11-18T00:00:00Z,0.10239,1.5958,6.4303\n"

@@ -408,6 +408,9 @@ def main(argv=None):
         if not getattr(args, "handler", None):
             parser.print_help()
             return EXIT_USAGE
+        if args.command in ("run", "compare", "demo", "bench"):
+            from .threads import single_thread_environment
+            single_thread_environment()  # before NumPy loads: one BLAS thread per process
         return args.handler(args)
     except InputError as exc:
         print(f"error: {exc}", file=sys.stderr)

@@ -20,8 +20,8 @@ DEMO_PRIOR = ROOT / "priors" / "demo_mount_kerrow.toml"
 # the synthetic series was made with, so 60 rows invert in minutes on two cores.
 DEMO_FAST_PRIOR = ROOT / "examples" / "demo_mount_kerrow_fast.toml"
 # Demo setting: a low target ESS and a short chain cap (see README); real runs use the defaults.
-DEMO_OPTIONS = dict(target_ess=120, max_steps=1200, n_proposal=4000, n_prior_draws=500,
-                    min_tau_factor=10)
+DEMO_OPTIONS = dict(n_walkers=40, target_ess=150, max_steps=600, n_proposal=3000,
+                    n_prior_draws=500, min_tau_factor=10, rhat_target=1.05)
 RATIOS = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 RELATIVE_SIGMA = 0.15  # in-plume sensor ratios carry roughly 10-20 % (common practice, no source)
 DEMO_ROWS = 60

@@ -78,6 +78,8 @@ def row_key(row_id):
 def _invert_row(args):
     """Invert one row and write rows/KEY.nc then rows/KEY.json; returns the summary row."""
     prior_path, measurement, row_id, time_text, seed, options, out_dir = args
+    from .threads import limit_blas_threads
+    limit_blas_threads()  # bitwise-reproducible rows, whatever the process
     from .inference import InferenceError, infer
     from .priors import load_prior_file
     spec = load_prior_file(prior_path)
@@ -203,7 +205,9 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     silently); with resume they are kept and only the rest is inverted.
     """
     from .priors import load_prior_file
+    from .threads import limit_blas_threads
     from . import __version__
+    limit_blas_threads()  # before worker processes start: they inherit the setting
     spec = load_prior_file(prior_path)
     options = dict(options or {})
     keys = [row_key(r) for r in series.ids]
