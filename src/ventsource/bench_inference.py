@@ -85,8 +85,8 @@ def bench_inference(quick=False):
     print(f"[inference] brute-force prior Monte Carlo pilot: {2 * n_pilot:,} evaluations in {pilot_seconds:.1f} s, "
           f"P(M0) = {p_bf:.3f} +- {err_bf:.3f}")
     print(f"[inference] brute force for error {target:.3f}: {n_needed:,.0f} evaluations, ~{s_needed:.1f} s "
-          f"-> infer() uses {n_needed / max(evals, 1):.1f}x fewer evaluations and is "
-          f"{s_needed / seconds:.1f}x faster (target >= 20x fewer)")
+          f"-> ratio brute force / infer(): {n_needed / max(evals, 1):.2f} in evaluations, "
+          f"{s_needed / seconds:.2f} in seconds (target >= 20)")
     return {"seconds": seconds, "evals": evals, "ess_min": ess_min, "rhat_max": rhat_max,
             "p_magmatic": res.p_magmatic, "p_magmatic_error": res.p_magmatic_error,
             "brute_force_evals": n_needed, "brute_force_seconds": s_needed, "p_brute_force": p_bf}
