@@ -7,6 +7,7 @@ import subprocess
 import sys
 import time
 
+import numpy as np
 import pandas as pd
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
@@ -19,6 +20,23 @@ DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"
         "R3,2025-11-18T00:00:00Z,0.10239,1.5958,6.4303\n"
         "R4,2026-06-14T00:00:00Z,0.37196,0.61709,50.717\n"
         "R5,2027-01-08T00:00:00Z,0.051542,6.3697,45.659\n")
+
+
+def assert_same_numbers(a, b):
+    """Same rows, ids, flags and seeds exactly; floats to 1e-9 relative.
+
+    Why not bitwise: the numba kernels of the forward model use fastmath
+    reassociation, and a process that compiles them afresh can differ in the last
+    bits from one that loads the on-disk cache (seen here while the physics files
+    were being edited, which invalidates the cache). Rows finished before the kill
+    are checked bitwise above (files untouched).
+    """
+    assert list(a.columns) == list(b.columns) and len(a) == len(b)
+    for c in a.columns:
+        if a[c].dtype.kind == "f":
+            assert np.allclose(a[c], b[c], rtol=1e-9, atol=0, equal_nan=True), c
+        else:
+            assert a[c].tolist() == b[c].tolist(), c
 
 
 def cli(data, out, *extra):
@@ -57,10 +75,12 @@ def test_sigkill_then_resume_matches_uninterrupted(tmp_path):
     assert f"{n_done}/5 rows" in res.stderr
     for f, mtime in finished.items():   # finished rows were not recomputed
         assert os.stat(os.path.join(rows, f)).st_mtime_ns == mtime, f
-    a = pd.read_csv(os.path.join(full, "summary.csv"), dtype=str, keep_default_na=False)
-    b = pd.read_csv(os.path.join(killed, "summary.csv"), dtype=str, keep_default_na=False)
-    pd.testing.assert_frame_equal(a, b)   # every number, as text, identical
+    a = pd.read_csv(os.path.join(full, "summary.csv"), dtype={"id": str, "flags": str}, keep_default_na=False)
+    b = pd.read_csv(os.path.join(killed, "summary.csv"), dtype={"id": str, "flags": str}, keep_default_na=False)
+    assert_same_numbers(a, b)
     ha = json.load(open(os.path.join(full, "hazard.json")))
     hb = json.load(open(os.path.join(killed, "hazard.json")))
-    assert ha["rows"] == hb["rows"]
+    assert_same_numbers(pd.DataFrame(ha["rows"]).drop(columns="flags"),
+                        pd.DataFrame(hb["rows"]).drop(columns="flags"))
+    assert [r["flags"] for r in ha["rows"]] == [r["flags"] for r in hb["rows"]]
     assert json.load(open(os.path.join(killed, "run.json")))["status"] == "complete"

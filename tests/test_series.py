@@ -39,8 +39,20 @@ def one_worker(data_file, tmp_path_factory):
 
 
 def numbers(out):
-    s = pd.read_csv(os.path.join(out, "summary.csv"), dtype={"id": str}, keep_default_na=False)
+    s = pd.read_csv(os.path.join(out, "summary.csv"), dtype={"id": str, "flags": str}, keep_default_na=False)
     return s
+
+
+def assert_same(a, b):
+    # exact where no float arithmetic differs; floats to 1e-9 relative because freshly
+    # compiled and disk-cached numba kernels (fastmath reassociation) may differ in the
+    # last bits between processes (see tests/test_resume.py)
+    assert list(a.columns) == list(b.columns)
+    for c in a.columns:
+        if a[c].dtype.kind == "f":
+            assert np.allclose(a[c], b[c], rtol=1e-9, atol=0, equal_nan=True), c
+        else:
+            assert a[c].tolist() == b[c].tolist(), c
 
 
 def test_row_seed_depends_on_run_seed_and_id_only():
@@ -81,7 +93,7 @@ def test_two_workers_give_identical_numbers(one_worker, data_file, tmp_path):
     out = str(tmp_path / "w2")
     run_series(read_measurements(data_file), PRIOR, out, seed=5, workers=2, options=TINY,
                progress_stream=io.StringIO())
-    pd.testing.assert_frame_equal(numbers(one_worker), numbers(out))
+    assert_same(numbers(one_worker), numbers(out))
 
 
 def test_dask_local_cluster_gives_identical_numbers(one_worker, data_file, tmp_path):
@@ -89,7 +101,7 @@ def test_dask_local_cluster_gives_identical_numbers(one_worker, data_file, tmp_p
     out = str(tmp_path / "dask")
     run_series(read_measurements(data_file), PRIOR, out, seed=5, workers=2, options=TINY,
                dask_local=True, progress_stream=io.StringIO())
-    pd.testing.assert_frame_equal(numbers(one_worker), numbers(out))
+    assert_same(numbers(one_worker), numbers(out))
 
 
 def test_figures_carry_the_caution(one_worker, data_file, monkeypatch):
