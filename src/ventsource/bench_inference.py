@@ -54,7 +54,7 @@ def bench_inference(quick=False):
     print(f"[inference] synthetic measurement {dict(zip(meas.ratio_names, np.round(meas.values, 4)))} "
           f"(15 % errors) from {dict(zip(spec.free_names, np.round(theta, 3)))}")
 
-    options = {"target_ess": 300.0, "max_steps": 3000} if quick else {}
+    options = {"target_ess": 300.0, "max_steps": 1000} if quick else {}
     start = time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
