@@ -9,13 +9,22 @@ the equations are sum(x_i) = 1 and the mass balances of H, C and S
 
 with melt H2O and CO2 from a solubility law and melt S from a fluid/melt
 partition coefficient D_S. Oxygen is exchanged with the melt (buffered), so
-it is not balanced. The root is found by a damped Newton iteration started
-from a one-dimensional H2O-CO2 solution; g is left free in sign, so a state
-with g <= 0 is a magma that is undersaturated at P and releases no gas.
+it is not balanced. Each balance is solved in log form, ln(q_E) = 0 with
+q_E = (g n_E,gas + (1 - g) n_E,melt) / n_E,bulk, so an element present only in
+traces (CO2 late on an open-system path) is as well conditioned as a major
+one. The root is found by a damped Newton iteration with an analytic
+Jacobian, on (u, asinh(g / G_SCALE)), started from a one-dimensional H2O-CO2
+solution with the S carriers added from the S balance; g is left free in
+sign, so a state with g <= 0 is a magma that is undersaturated at P and
+releases no gas.
 
 Open system: from the saturation pressure down to P in geometric steps,
 the gas made in each step is removed and the next step starts from the
-melt; the gas made in the last step is the gas measured at P.
+melt; the gas made in the last step is the gas measured at P. An element the
+melt has lost keeps VANISHING_MOL_PER_G so its balance stays defined. A magma
+with no saturation pressure below P_SAT_CAP_BAR (gas at every pressure of the
+laws' range, e.g. D_S * S near or above the S mass fraction a gas can hold)
+has no start for the path: status 2.
 """
 import math
 
