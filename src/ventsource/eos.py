@@ -238,12 +238,33 @@ def ln_phi_peng_robinson(temperature_k, pressure_bar, tc_k, pc_bar, acentric):
             * math.log((z + (1.0 + _SQRT2) * big_b) / (z + (1.0 - _SQRT2) * big_b)))
 
 
+def _corresponding_states_table():
+    """Per-species constants of the corresponding-states CORK (same formulas as
+    ln_phi_corresponding_states), computed once: a0, a1, b, c0, c1, d0, d1."""
+    table = np.zeros((N_SPECIES, 7))
+    for i in range(N_SPECIES):
+        tc = _TC[i]
+        pc = _PC[i] * 1e-3
+        table[i] = (CS_A0 * tc ** 2.5 / pc, CS_A1 * tc ** 1.5 / pc, CS_B0 * tc / pc,
+                    CS_C0 * tc / pc ** 1.5, CS_C1 / pc ** 1.5, CS_D0 * tc / (pc * pc),
+                    CS_D1 / (pc * pc))
+    return table
+
+
+_CS_TABLE = _corresponding_states_table()
+
+
 @njit(cache=True)
 def log_fugacity_coefficients_kernel(temperature_k, pressure_bar, out):
     """Fill out[0:10] with ln(phi_i) of the pure species at (T, P), SPECIES order.
 
     Scalar kernel for compiled solvers; no input checking (callers check).
     """
+    t = temperature_k
+    p = pressure_bar * 1e-3
+    rt = R_KJ * t
+    sqrt_t = math.sqrt(t)
+    p15 = p * math.sqrt(p)
     for i in range(N_SPECIES):
         if i == _H2O:
             out[i] = ln_phi_h2o(temperature_k, pressure_bar)
@@ -252,7 +273,14 @@ def log_fugacity_coefficients_kernel(temperature_k, pressure_bar, out):
         elif i == _H2:
             out[i] = ln_phi_peng_robinson(temperature_k, pressure_bar, _TC[i], _PC[i], H2_ACENTRIC)
         else:
-            out[i] = ln_phi_corresponding_states(temperature_k, pressure_bar, _TC[i], _PC[i])
+            k = _CS_TABLE[i]
+            a = k[0] + k[1] * t
+            b = k[2]
+            c = k[3] + k[4] * t
+            d = k[5] + k[6] * t
+            bp = b * p
+            out[i] = (bp + a / (b * sqrt_t) * math.log((rt + bp) / (rt + 2.0 * bp))
+                      + 2.0 / 3.0 * c * p15 + 0.5 * d * p * p) / rt
 
 
 @njit(cache=True)
