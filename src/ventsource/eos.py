@@ -78,17 +78,18 @@ def largest_cubic_root(c2, c1, c0):
     Closed form (Cardano / trigonometric), then two Newton steps to polish.
     """
     q = (c2 * c2 - 3.0 * c1) / 9.0
-    r = (2.0 * c2 ** 3 - 9.0 * c2 * c1 + 27.0 * c0) / 54.0
-    if r * r < q ** 3:
+    r = (2.0 * c2 * c2 * c2 - 9.0 * c2 * c1 + 27.0 * c0) / 54.0
+    q3 = q * q * q
+    if r * r < q3:
         # three real roots: take the largest of the trigonometric set
-        theta = math.acos(max(-1.0, min(1.0, r / math.sqrt(q ** 3))))
+        theta = math.acos(max(-1.0, min(1.0, r / math.sqrt(q3))))
         x = -2.0 * math.sqrt(q) * math.cos(theta / 3.0) - c2 / 3.0
         for k in (1.0, -1.0):
             y = -2.0 * math.sqrt(q) * math.cos((theta + 2.0 * k * math.pi) / 3.0) - c2 / 3.0
             if y > x:
                 x = y
     else:
-        s = -math.copysign(1.0, r) * (abs(r) + math.sqrt(r * r - q ** 3)) ** (1.0 / 3.0)
+        s = -math.copysign(1.0, r) * math.exp(math.log(abs(r) + math.sqrt(r * r - q3)) / 3.0)
         t = q / s if s != 0.0 else 0.0
         x = s + t - c2 / 3.0
     for _ in range(2):
@@ -127,7 +128,7 @@ def ln_phi_virial(c, d, temperature_k, pressure_kbar, p0_kbar):
     if pressure_kbar <= p0_kbar:
         return 0.0
     dp = pressure_kbar - p0_kbar
-    return (2.0 / 3.0 * c * dp ** 1.5 + 0.5 * d * dp * dp) / (R_KJ * temperature_k)
+    return (2.0 / 3.0 * c * dp * math.sqrt(dp) + 0.5 * d * dp * dp) / (R_KJ * temperature_k)
 
 
 @njit(cache=True)
@@ -136,7 +137,7 @@ def ln_phi_h2o(temperature_k, pressure_bar):
     extrapolation of the gas branch, below 673 K)."""
     p = pressure_bar * 1e-3
     dt = temperature_k - H2O_TREF_K
-    a = H2O_A[0] + H2O_A[1] * dt + H2O_A[2] * dt * dt + H2O_A[3] * dt ** 3
+    a = H2O_A[0] + dt * (H2O_A[1] + dt * (H2O_A[2] + dt * H2O_A[3]))
     out = ln_phi_mrk(a, H2O_B, temperature_k, p)
     c = H2O_C[0] + H2O_C[1] * temperature_k
     d = H2O_D[0] + H2O_D[1] * temperature_k
