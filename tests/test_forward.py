@@ -88,3 +88,19 @@ def test_scrubbing_parameter_acts_on_ratios():
     assert ok.sum() > 10
     np.testing.assert_allclose(scrubbed[ok, 0], 0.2 * clean[ok, 0], rtol=1e-12)
     assert np.all(scrubbed[ok, 1] > clean[ok, 1])
+
+
+def test_gas_exsolved_at_depth_makes_the_gas_co2_richer():
+    # common practice, no source: gas accumulated from depth (first, CO2-rich
+    # gas of the magma) flushing through lowers SO2/CO2 and H2O/CO2 at the vent
+    from ventsource.forward import ForwardModel
+    from ventsource.priors import load_prior_file
+    spec = load_prior_file("priors/demo_mount_kerrow.toml")
+    model = ForwardModel(spec, ("SO2/CO2", "H2O/CO2"))
+    base = dict(pressure_bar=150, temperature_c=1080, dfmq=1, scrubbed_so2=0, h2o_wt=4,
+                co2_ppm=1500, s_ppm=1500, s_partition=80, scrubbed_h2s=0, h2s_return=0.5)
+    rows = [[dict(base, exsolved_gas_wt=w)[n] for n in spec.parameter_names] for w in (0.0, 0.2, 1.0)]
+    r = model.ratios(np.array(rows, dtype=float))
+    assert np.all(np.isfinite(r))
+    assert r[0, 0] > r[1, 0] > r[2, 0]
+    assert r[0, 1] > r[1, 1] > r[2, 1]

@@ -63,10 +63,12 @@ class ForwardModel:
         """Full view for reports: dict of arrays (gas before and after scrubbing, melt, ...)."""
         theta = self._as_theta(theta_full)
         col = lambda name: self._column(theta, name)  # noqa: E731
-        if np.any(col("exsolved_gas_wt") != 0.0):
-            raise InputError("exsolved_gas_wt other than 0 is not modelled in this version")
-        res = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), col("h2o_wt"),
-                              col("co2_ppm"), col("s_ppm"), col("s_partition"), self.h2o_law,
+        h2o, co2, s = col("h2o_wt"), col("co2_ppm"), col("s_ppm")
+        extra = col("exsolved_gas_wt")
+        if np.any(extra > 0.0):
+            h2o, co2, s = self._add_exsolved_gas(theta, extra, h2o.copy(), co2.copy(), s.copy())
+        res = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o,
+                              co2, s, col("s_partition"), self.h2o_law,
                               self.co2_law, style=self.style, eos=self.eos,
                               saturation=saturation, open_steps=self.open_steps)
         gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
@@ -82,6 +84,43 @@ class ForwardModel:
             "saturation_pressure_bar": res.saturation_pressure_bar,
             "ratios": observables.ratios(gas, self.ratio_names),
         }
+
+    def _add_exsolved_gas(self, theta, extra_wt, h2o, co2, s):
+        """Add gas exsolved at depth to the bulk volatiles.
+
+        The extra gas (exsolved_gas_wt, wt% of the magma) is taken as the first
+        gas the magma makes, the gas in equilibrium with it just below its
+        saturation pressure: CO2-rich gas accumulated from deeper levels.
+        A magma saturated beyond the search cap gets no addition (and the
+        state is reported through its own status).
+        """
+        rows = np.flatnonzero(extra_wt > 0.0)
+        col = lambda name: self._column(theta, name)[rows]  # noqa: E731
+        first = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o[rows],
+                                co2[rows], s[rows], col("s_partition"), self.h2o_law, self.co2_law,
+                                style="closed", eos=self.eos, saturation=True)
+        p_sat = first.saturation_pressure_bar
+        ok = np.isfinite(p_sat)
+        if not np.any(ok):
+            return h2o, co2, s
+        r = rows[ok]
+        deep = degassing.degas(col("temperature_c")[ok], p_sat[ok] * (1.0 - 1e-6),
+                               col("dfmq")[ok], h2o[r], co2[r], s[r], col("s_partition")[ok],
+                               self.h2o_law, self.co2_law, style="closed", eos=self.eos,
+                               saturation=False)
+        gas = deep.gas
+        good = deep.status == degassing.STATUS_GAS
+        from .species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL
+        mbar = gas @ MOLAR_MASS_G_MOL
+        per_gram = (gas @ ELEMENT_MATRIX) / mbar[:, None]  # mol H, C, O, S per g of gas
+        grams = extra_wt[r] / 100.0
+        add_h2o = np.where(good, 100.0 * grams * per_gram[:, 0] / 2.0 * degassing.M_H2O, 0.0)
+        add_co2 = np.where(good, 1e6 * grams * per_gram[:, 1] * degassing.M_CO2, 0.0)
+        add_s = np.where(good, 1e6 * grams * per_gram[:, 3] * degassing.M_S, 0.0)
+        h2o[r] += add_h2o
+        co2[r] += add_co2
+        s[r] += add_s
+        return h2o, co2, s
 
     def ratios(self, theta_full):
         return self.state(theta_full, saturation=self.style == "open")["ratios"]
