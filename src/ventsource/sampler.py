@@ -21,8 +21,8 @@ and Computing 16:239) mixed 80/20 with the snooker update (ter Braak and Vrugt 2
 Statistics and Computing 18:435), both as implemented in emcee 3.  On the real
 forward model (8 parameters, 3 ratios) the posterior is a thin curved sheet; the
 stretch move's tau was ~200 steps with 64 walkers, DE+snooker ~60-110 steps with 256
-walkers and ~120-250 with 128 (the default for 8 parameters), i.e. about 2x more ESS
-per forward evaluation (measured).  The snooker move loops over walkers in Python and
+walkers, ~120-250 with 128 and ~130-175 with 64 (the default for 8 parameters), i.e.
+about 2x more ESS per forward evaluation than the stretch move (measured).  The snooker move loops over walkers in Python and
 costs ~1-2 ms per call at 128 walkers.  rhat_target
 defaults to 1.05, not 1.01: split R-hat over 128-256 short walkers reached 1.01 on the
 real model only after ~20,000 steps (measured), i.e. minutes per measurement.
@@ -214,9 +214,10 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     if d == 0:
         raise SamplerError("prior has no free parameters to sample")
     if n_walkers is None:
-        # large ensembles: DE proposals improve with more walkers and the forward model's
-        # cost per state falls with the batch size (measured, see module doc)
-        n_walkers = max(32, 16 * d)
+        # the R-hat stop needs ~5000 steps on the real model whatever the ensemble size
+        # (measured: 64, 128, 256 walkers), so the cost grows with the walkers: 8 per
+        # parameter, at least 32 (see module doc)
+        n_walkers = max(32, 8 * d)
     n_walkers = int(n_walkers) + int(n_walkers) % 2
     if n_walkers < 2 * d:
         raise SamplerError(f"n_walkers={n_walkers} must be at least twice the number of free parameters ({d})")
