@@ -137,3 +137,24 @@ def test_progress_bar_estimates_time_left():
     bar.update("x")
     line = buf.getvalue().strip().splitlines()[-1]
     assert "2/4 rows" in line and "~0:20 left" in line   # 10 s per row, 2 rows left
+
+
+@pytest.mark.slow   # a second cluster start-up (~15 s); the --dask-local path runs by default
+def test_dask_scheduler_address(one_worker, data_file, tmp_path):
+    distributed = pytest.importorskip("distributed")
+    out = str(tmp_path / "sched")
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        run_series(read_measurements(data_file), PRIOR, out, seed=5, options=TINY,
+                   dask_scheduler=cluster.scheduler_address, progress_stream=io.StringIO())
+    assert_same(numbers(one_worker), numbers(out))
+
+
+def test_dask_scheduler_unreachable_is_one_line(data_file, tmp_path, monkeypatch):
+    pytest.importorskip("distributed")
+    from ventsource import series
+    from ventsource.errors import InputError
+    monkeypatch.setattr(series, "DASK_CONNECT_TIMEOUT_S", 1)
+    with pytest.raises(InputError, match="cannot connect"):
+        run_series(read_measurements(data_file), PRIOR, str(tmp_path / "x"), options=TINY,
+                   dask_scheduler="tcp://127.0.0.1:1", progress_stream=io.StringIO())

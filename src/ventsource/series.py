@@ -30,6 +30,7 @@ from .errors import InputError
 SUMMARY_NAME = "summary.csv"
 RUNNING_NAME = "summary.running.csv"
 HAZARD_NAME = "hazard.json"
+DASK_CONNECT_TIMEOUT_S = 20
 
 
 def row_seed(run_seed, row_id):
@@ -132,7 +133,7 @@ def _dask_client(scheduler, local_workers):
                          "pip install 'ventsource[dask]'") from None
     if scheduler:
         try:
-            return Client(scheduler, timeout=20), None
+            return Client(scheduler, timeout=DASK_CONNECT_TIMEOUT_S), None
         except (OSError, TimeoutError) as exc:
             raise InputError(f"--dask-scheduler {scheduler}: cannot connect ({exc})") from None
     cluster = LocalCluster(n_workers=local_workers, threads_per_worker=1, processes=True,
