@@ -95,7 +95,7 @@ def plot_compare(table, names, path):
     markers = ["o", "s", "D", "^", "v", "P"]
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(9, 7.5), gridspec_kw={"height_ratios": [3, 2]})
     x = np.arange(len(table))
-    width = 0.6 / max(len(names), 1)
+    width = 0.3 / max(len(names) - 1, 1)
     for k, n in enumerate(names):
         ax1.errorbar(x + (k - (len(names) - 1) / 2) * width, table[f"p_magmatic [{n}]"].astype(float),
                      yerr=table[f"p_magmatic_error [{n}]"].astype(float).fillna(0), fmt=markers[k % 6],
@@ -112,7 +112,11 @@ def plot_compare(table, names, path):
         mean_ov = table[ov].astype(float).mean(axis=0)
         ax2.barh(range(len(ov)), mean_ov.values, color="#8da9c4")
         ax2.set_yticks(range(len(ov)))
-        ax2.set_yticklabels([c[len("overlap "):] for c in ov], fontsize=7)
+        pairs = {c[c.index("["):] for c in ov}
+        labels = [c[len("overlap "):c.index(" [")] if len(pairs) == 1 else c[len("overlap "):] for c in ov]
+        ax2.set_yticklabels(labels, fontsize=7)
+        if len(pairs) == 1:
+            ax2.set_title(pairs.pop().strip("[]"), fontsize=9)
         ax2.set_xlim(0, 1)
         ax2.set_xlabel("posterior overlap coefficient, mean over rows (1 = same marginal)")
     else:
