@@ -226,7 +226,7 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
 
     options (defaults): kind/dof (from prior.likelihood, else "normal"/4), epsilon=0.05
     (threshold for P(scrubbed < epsilon | data, M1)), pi0 (prior.p_magmatic, else 0.5),
-    n_walkers (default 8 per free parameter, at least 32), target_ess=1000 (ArviZ bulk ESS of every
+    n_walkers (default 8 per free parameter, at least 48), target_ess=1000 (ArviZ bulk ESS of every
     parameter), rhat_target=1.05 (split R-hat stop criterion), moves="de" (DE + snooker;
     "stretch", "kde" or an emcee moves list), init="importance" (likelihood-weighted prior
     draws; or "prior"), n_init_draws (default 20 per walker), max_steps=20000, alpha=0.01 (predictive check level),
