@@ -143,7 +143,7 @@ def _log_balance(q):
     return _LN_Q_LINEAR + (q - Q_LINEAR) / Q_LINEAR, 1.0 / Q_LINEAR
 
 
-@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc', 'nsz'})
+@njit(cache=True, error_model='numpy')
 def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     """Residuals r (4) and analytic Jacobian jac (4 x 4, row-major) at z; returns the merit.
 
@@ -325,7 +325,7 @@ T_TOL = 0.3  # logit tolerance of the start; the 4-D Newton iteration finishes t
 M_H2S = 34.076
 
 
-@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc', 'nsz'})
+@njit(cache=True, error_model='numpy')
 def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par, c_law,
                 c_par):
     """Lever-rule test of the H-C start at logit(y) = tt with a fraction zs of S

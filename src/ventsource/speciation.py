@@ -85,7 +85,7 @@ def _weighted_lse(log_x, weights, exps, grad):
     return m + np.log(total)
 
 
-@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp', 'reassoc'})
+@njit(cache=True, error_model='numpy')
 def _residual(u, offsets, exps, ones, h_w, c_w, s_w, ln_c_h, ln_s_h, log_x, jac, res, work):
     n = offsets.shape[0]
     m = -1e300
@@ -276,7 +276,7 @@ def _speciate_state_logspace(ln_k, ln_fo2, ln_phi, ln_p, b_h, b_c, b_s, exps, h_
     return status, it
 
 
-@njit(cache=True, error_model='numpy', fastmath={'contract', 'arcp'})
+@njit(cache=True, error_model='numpy')
 def _poly_residual(u0, u1, u2, c, ln_scale_c, ln_scale_s):
     """Residuals and Jacobian of the three equations in monomial form.
 
