@@ -103,7 +103,7 @@ def test_run_with_malformed_measurements(case, tmp_path, capsys):
     data = tmp_path / "m.csv"
     data.write_text(text, encoding="utf-8")
     out = tmp_path / "out"
-    code, o, err = run(["run", str(data), "--prior", str(ROOT / "examples" / "demo_mount_kerrow_fast.toml"),
+    code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
                         "--out", str(out)], capsys)
     one_line_exit_2(code, o, err)
     assert needle in err and str(data) in err
@@ -137,7 +137,7 @@ def test_run_bad_options(extra, needle, tmp_path, capsys):
     data = tmp_path / "m.csv"
     data.write_text(GOOD_DATA)
     out = tmp_path / "out"
-    code, o, err = run(["run", str(data), "--prior", str(ROOT / "examples" / "demo_mount_kerrow_fast.toml"),
+    code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
                         "--out", str(out)] + extra, capsys)
     one_line_exit_2(code, o, err)
     assert needle in err
@@ -158,7 +158,7 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     data.write_text(GOOD_DATA)
     out = tmp_path / "out"
     # alpha outside (0, 0.5) is refused by infer for the first row
-    code, o, err = run(["run", str(data), "--prior", str(ROOT / "examples" / "demo_mount_kerrow_fast.toml"),
+    code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
                         "--out", str(out), "--infer-option", "alpha=0.9"], capsys)
     assert code == 2
     lines = err.strip().splitlines()   # progress lines, then the error as the last line

@@ -11,7 +11,7 @@ from ventsource.cli import main
 from ventsource.compare import overlap_coefficient
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-PRIOR = os.path.join(ROOT, "examples", "demo_mount_kerrow_fast.toml")
+PRIOR = os.path.join(ROOT, "priors", "demo_mount_kerrow_fast.toml")
 
 
 @pytest.mark.parametrize("delta", [0.0, 0.5, 1.0, 2.0, 4.0])

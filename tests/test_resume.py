@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-PRIOR = os.path.join(ROOT, "examples", "demo_mount_kerrow_fast.toml")
+PRIOR = os.path.join(ROOT, "priors", "demo_mount_kerrow_fast.toml")
 TINY = ["--target-ess", "20", "--max-steps", "200", "--infer-option", "n_proposal=2000",
         "--infer-option", "n_prior_draws=100", "--infer-option", "n_walkers=16", "--seed", "3", "--no-figures"]
 DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"

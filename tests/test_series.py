@@ -14,7 +14,7 @@ from ventsource.measurements import read_measurements
 from ventsource.series import Progress, row_key, row_seed, run_series
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-PRIOR = os.path.join(ROOT, "examples", "demo_mount_kerrow_fast.toml")
+PRIOR = os.path.join(ROOT, "priors", "demo_mount_kerrow_fast.toml")
 # tiny configuration: the point is bookkeeping and determinism, not posterior quality
 TINY = dict(n_walkers=16, target_ess=20, max_steps=200, n_proposal=2000, n_prior_draws=100)
 DATA = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"

@@ -1,7 +1,7 @@
 """`ventsource bench` section: series runs with 1 and 2 local workers.
 
 Rows: the synthetic Mount Kerrow series (fictional), n rows; prior and inference
-settings: the demo's (examples/demo_mount_kerrow_fast.toml, demo.DEMO_OPTIONS).
+settings: the demo's (priors/demo_mount_kerrow_fast.toml, demo.DEMO_OPTIONS).
 Reports seconds per measurement per core (wall time x workers / rows) and the
 speed-up of 2 workers over 1 (targets: <= 1.5 s, >= 1.8x). Wall times on a shared
 machine are noisy; the two runs' numbers are also checked to be identical.
