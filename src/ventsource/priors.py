@@ -4,7 +4,7 @@ A prior file holds, for one volcano or magma type, the prior distribution of
 every forward-model parameter (each range with a ``source`` saying where it
 comes from), the melt composition, the model choices, the prior probability
 that a measurement is purely magmatic, and the likelihood settings. The format
-is documented field by field in ``docs/prior-format.md``.
+is documented field by field in the README (section "Prior files").
 
     spec = load_prior_file("priors/arc_basalt.toml")
     theta = spec.sample(np.random.default_rng(1), 1000)    # (n, len(free_names))
