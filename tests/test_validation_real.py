@@ -231,13 +231,15 @@ def test_bridge_p_magmatic_matches_dynesty(reduced, kind, k):
         def loglike(x, pr=pr):
             v = float(lik(fw.ratios(pr.full(np.atleast_2d(x))))[0])
             return v if np.isfinite(v) else -1e300
-        ns = dynesty.NestedSampler(loglike, pr.prior_transform, len(pr.free_names), nlive=500,
+        # nlive 1500: with 500 live points dynesty's P(M0) for magmatic-0 was 0.425 against
+        # 0.462 +- 0.003 from 1,000,000 prior draws (bridge: 0.472), i.e. dynesty's own error
+        ns = dynesty.NestedSampler(loglike, pr.prior_transform, len(pr.free_names), nlive=1500,
                                    rstate=np.random.default_rng(5))
         ns.run_nested(dlogz=0.01, print_progress=False)
         log_z[name] = (float(ns.results.logz[-1]), float(ns.results.logzerr[-1]))
-    p_ns, _ = posterior_model_probability(log_z["M0"][0], log_z["M0"][1], log_z["M1"][0],
-                                          log_z["M1"][1], spec.p_magmatic)
-    assert abs(res.p_magmatic - p_ns) <= 0.03, (kind, k, res.p_magmatic, p_ns)
+    p_ns, err_ns = posterior_model_probability(log_z["M0"][0], log_z["M0"][1], log_z["M1"][0],
+                                               log_z["M1"][1], spec.p_magmatic)
+    assert abs(res.p_magmatic - p_ns) <= 0.03, (kind, k, res.p_magmatic, p_ns, err_ns)
 
 
 @pytest.mark.slow
