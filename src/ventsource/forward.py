@@ -29,8 +29,7 @@ class ForwardModel:
         self.spec = spec
         self.parameter_names = tuple(spec.parameter_names)
         self.ratio_names = tuple(ratio_names)
-        for name in self.ratio_names:
-            observables.ratio_weights(name)  # validates
+        self._weights = observables.weight_matrices(self.ratio_names)  # validates the names
         models = spec.models
         melt = spec.melt_oxides_wt
         if models["h2o_solubility"] == "power_law":
@@ -82,7 +81,7 @@ class ForwardModel:
             "melt_co2_ppm": res.melt_co2_ppm,
             "melt_s_ppm": res.melt_s_ppm,
             "saturation_pressure_bar": res.saturation_pressure_bar,
-            "ratios": observables.ratios(gas, self.ratio_names),
+            "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
 
     def _add_exsolved_gas(self, theta, extra_wt, h2o, co2, s):

@@ -38,12 +38,16 @@ def ratio_weights(ratio):
     return _side(top, ratio), _side(bottom, ratio)
 
 
-def ratios(gas_mole_fractions, ratio_names):
-    """(n, m) molar ratios of the named observables."""
+def weight_matrices(ratio_names):
+    """(numerators, denominators): two (n_species, m) weight matrices."""
+    pairs = [ratio_weights(name) for name in ratio_names]
+    return (np.column_stack([p[0] for p in pairs]), np.column_stack([p[1] for p in pairs]))
+
+
+def ratios(gas_mole_fractions, ratio_names, weights=None):
+    """(n, m) molar ratios of the named observables; weights from weight_matrices
+    may be passed to skip parsing the names."""
     x = np.asarray(gas_mole_fractions, dtype=float)
-    out = np.empty((x.shape[0], len(ratio_names)))
-    for k, name in enumerate(ratio_names):
-        top, bottom = ratio_weights(name)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out[:, k] = (x @ top) / (x @ bottom)
-    return out
+    top, bottom = weights if weights is not None else weight_matrices(ratio_names)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (x @ top) / (x @ bottom)
