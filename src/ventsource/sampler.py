@@ -41,7 +41,6 @@ import emcee
 import numpy as np
 
 from .likelihood import Likelihood
-from .snooker_move import SnookerMove
 
 __all__ = ["SampleResult", "LogPosterior", "sample_posterior", "initial_walkers",
            "SamplerError"]
@@ -187,7 +186,7 @@ def _diagnostics(chain_twd):
 
 def _moves(moves):
     if moves is None or (isinstance(moves, str) and moves == "de"):
-        return [(emcee.moves.DEMove(), 0.8), (SnookerMove(), 0.2)]
+        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
     if isinstance(moves, str):
         if moves == "stretch":
             return None
