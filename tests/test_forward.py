@@ -104,3 +104,51 @@ def test_gas_exsolved_at_depth_makes_the_gas_co2_richer():
     assert np.all(np.isfinite(r))
     assert r[0, 0] > r[1, 0] > r[2, 0]
     assert r[0, 1] > r[1, 1] > r[2, 1]
+
+
+def _capacity_spec(ln_a, b_k=0.0):
+    import tomllib
+    from ventsource.priors import parse_prior
+    with open("priors/arc_basalt.toml", "rb") as fh:
+        data = tomllib.load(fh)
+    data["models"]["sulfur"] = "sulfide_capacity"
+    data["models"]["sulfide_capacity_ln_a"] = ln_a
+    data["models"]["sulfide_capacity_b_k"] = b_k
+    del data["parameters"]["s_partition"]
+    return parse_prior(data, file="capacity-test.toml")
+
+
+def test_sulfide_capacity_closes_the_sulfur_balance_and_retains_sulfur():
+    from ventsource.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL
+    # log10 C_S about -4.5 for a basalt near 1200 C (from memory), and 100x more
+    low, high = _capacity_spec(np.log(10 ** -4.5)), _capacity_spec(np.log(10 ** -2.5))
+    theta = low.full(low.sample(np.random.default_rng(4), 300))
+    theta[:, low.parameter_names.index("scrubbed_so2")] = 0.0
+    states = [ForwardModel(spec).state(theta, saturation=False) for spec in (low, high)]
+    for st in states:
+        ok = st["status"] == STATUS_OK
+        assert ok.mean() > 0.9
+        x, g = st["magmatic_gas"][ok], st["gas_wt_fraction"][ok]
+        per_gram = (x @ ELEMENT_MATRIX) / (x @ MOLAR_MASS_G_MOL)[:, None]
+        s_bulk = theta[ok, low.parameter_names.index("s_ppm")] * 1e-6 / 32.06
+        s_back = g * per_gram[:, 3] + (1 - g) * st["melt_s_ppm"][ok] * 1e-6 / 32.06
+        np.testing.assert_allclose(s_back, s_bulk, rtol=1e-8)
+    # common practice, no source: a melt that holds more sulfur leaves less in the gas
+    both = (states[0]["status"] == STATUS_OK) & (states[1]["status"] == STATUS_OK)
+    so2_co2 = [st["ratios"][both, 0] for st in states]
+    assert np.median(so2_co2[1] / so2_co2[0]) < 1.0
+    assert np.median(states[1]["melt_s_ppm"][both]) > np.median(states[0]["melt_s_ppm"][both])
+
+
+def test_sulfide_capacity_keys_are_checked():
+    import tomllib
+    from ventsource.priors import PriorFileError, parse_prior
+    with open("priors/arc_basalt.toml", "rb") as fh:
+        data = tomllib.load(fh)
+    data["models"]["sulfide_capacity_ln_a"] = -10.0
+    with pytest.raises(PriorFileError, match="only allowed with sulfur"):
+        parse_prior(data, file="x.toml")
+    data["models"]["sulfur"] = "sulfide_capacity"
+    del data["parameters"]["s_partition"]
+    with pytest.raises(PriorFileError, match="sulfide_capacity_b_k"):
+        parse_prior(data, file="x.toml")

@@ -61,7 +61,14 @@ _C_DFMQ = 26
 _C_MONO = 27      # 10 exp(offsets): x_i = c_i a^p b^q r^s (see speciation)
 _C_PHIH = 37      # fugacity coefficient of H2O
 _C_PHIC = 38      # fugacity coefficient of CO2
-CTX_SIZE = 39
+_C_LNFO2 = 39     # ln fO2 (bar)
+_C_CSA = 40       # sulfide capacity: ln C_S = A + B/T (NaN: partition coefficient instead)
+_C_CSB = 41
+_C_SK = 42        # melt S (mol/g) = SK * fS2^0.5 in sulfide-capacity mode, 0 otherwise
+CTX_SIZE = 43
+# Jugo et al. (2010) sulfate fraction is capped so the total stays finite.
+MAX_SULFATE_FRACTION = 0.999
+D_S_START = 100.0  # effective gas/melt S partition used only for the start in capacity mode
 
 # Bulk amounts below this (mol per gram of magma) are raised to it on the
 # open-system path: an element stripped from the melt keeps a vanishing but
@@ -123,6 +130,26 @@ def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, id
     ctx[_C_NS] = n_s
     ctx[_C_DS] = d_s
     ctx[_C_DFMQ] = dfmq
+    ctx[_C_LNFO2] = ln_fo2
+    _update_sulfide_factor(ctx)
+
+
+@njit(cache=True, error_model='numpy')
+def _update_sulfide_factor(ctx):
+    """Sulfide-capacity sulfur: S2- (wt%) = C_S (fS2/fO2)^0.5 (O'Neill and
+    Mavrogenes 2002, J. Petrol. 43:1049, definition of C_S) with ln C_S = A + B/T
+    from the prior file; total S = S2- / (1 - S6+/ST) with the sulfate fraction
+    S6+/ST = 1/(1 + 10^(2.1 - 2 dFMQ)) of Jugo et al. (2010), Geochim. Cosmochim.
+    Acta 74:5926. NaN A means the partition coefficient is used instead."""
+    a = ctx[_C_CSA]
+    if not math.isfinite(a):
+        ctx[_C_SK] = 0.0
+        return
+    t = ctx[_C_T]
+    sulfate = 1.0 / (1.0 + 10.0 ** (2.1 - 2.0 * ctx[_C_DFMQ]))
+    sulfate = min(sulfate, MAX_SULFATE_FRACTION)
+    c_s = math.exp(a + ctx[_C_CSB] / t)
+    ctx[_C_SK] = c_s * 0.01 / M_S * math.exp(-0.5 * ctx[_C_LNFO2]) / (1.0 - sulfate)
 
 
 UNKNOWN_EXPONENTS_C = UNKNOWN_EXPONENTS.copy()
@@ -265,8 +292,13 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     mh = h2o_m * _H2O_MOL_PER_WT_PERCENT
     mc = co2_m * _CO2_MOL_PER_PPM
     d_s = ctx[_C_DS]
-    inv_d = 1.0 / d_s if d_s > 0 else 0.0
-    ms = gs * inv_d
+    sk = ctx[_C_SK]
+    if sk > 0.0:
+        inv_d = 0.0
+        ms = sk * rr
+    else:
+        inv_d = 1.0 / d_s if d_s > 0 else 0.0
+        ms = gs * inv_d
     mg[3] = mh
     mg[4] = mc
     mg[5] = ms
@@ -304,7 +336,7 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     r[3] = res
     jac[12] = dq * w * gs0
     jac[13] = dq * w * gs1
-    jac[14] = dq * w * gs2
+    jac[14] = dq * (w * gs2 + (g1 * 0.5 * ms if sk > 0.0 else 0.0))
     jac[15] = dq * (gs - ms)
     s = 0.0
     for k in range(4):
@@ -468,7 +500,7 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z, s_first):
     n_h = ctx[_C_NH]
     n_c = ctx[_C_NC]
     n_s = ctx[_C_NS]
-    d_s = ctx[_C_DS]
+    d_s = ctx[_C_DS] if ctx[_C_SK] == 0.0 else D_S_START
     rh = ctx[_C_MONO + 1] / ctx[_C_MONO + 0]     # x_H2 / x_H2O at this fO2
     rc = ctx[_C_MONO + 4] / ctx[_C_MONO + 3]     # x_CO / x_CO2
     mh = (M_H2O + rh * MOLAR_MASS_C[1]) / (1.0 + rh)
@@ -778,7 +810,7 @@ def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, wo
 
 @njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
-                 n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par,
+                 n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par, ln_cs_a, ln_cs_b_k,
                  x_out, g_out, melt_out, psat_out, status_out):
     ctx = np.empty(CTX_SIZE)
     ln_k = np.empty(6)
@@ -786,6 +818,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     z = np.empty(4)
     mg = np.empty(MG_SIZE)
     work = np.empty(WORK_SIZE)
+    ctx[_C_CSA] = ln_cs_a
+    ctx[_C_CSB] = ln_cs_b_k
     for j in range(temperature_k.shape[0]):
         n_h = 2.0 * h2o_wt[j] / 100.0 / M_H2O
         n_c = co2_ppm_bulk[j] * 1e-6 / M_CO2
@@ -855,11 +889,14 @@ class DegassingResult:
 
 
 def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition, h2o_law, co2_law,
-          style="closed", eos="real", saturation=True, open_steps=20):
+          style="closed", eos="real", saturation=True, open_steps=20, sulfide_capacity=None):
     """Melt-gas equilibrium for arrays of states.
 
     h2o_law, co2_law: (law_id, params) from solubility_registry. s_partition:
     fluid/melt S partition coefficient D_S (mass fraction in gas / in melt).
+    sulfide_capacity: None, or (A, B) with ln C_S = A + B/T(K): melt S from the
+    sulfide capacity and the Jugo et al. (2010) sulfate fraction instead of D_S
+    (s_partition is then ignored).
     style: "closed" or "open". saturation: also compute the saturation pressure.
     """
     if style not in ("closed", "open"):
@@ -879,5 +916,8 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     _degas_batch(t_c + 273.15, p, d, h2o, co2, s, ds, style == "open", int(open_steps),
                  bool(saturation), eos == "ideal", int(h2o_law[0]),
                  np.ascontiguousarray(h2o_law[1], dtype=float), int(co2_law[0]),
-                 np.ascontiguousarray(co2_law[1], dtype=float), gas, g, melt, psat, status)
+                 np.ascontiguousarray(co2_law[1], dtype=float),
+                 float(sulfide_capacity[0]) if sulfide_capacity is not None else math.nan,
+                 float(sulfide_capacity[1]) if sulfide_capacity is not None else 0.0,
+                 gas, g, melt, psat, status)
     return DegassingResult(gas, g, melt, psat, status)

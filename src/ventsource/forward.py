@@ -17,7 +17,8 @@ STATUS_OK = degassing.STATUS_GAS
 STATUS_NO_GAS = degassing.STATUS_NO_GAS
 STATUS_FAILED = degassing.STATUS_FAILED
 
-DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0}
+DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0,
+            "s_partition": float("nan")}
 UNITS = {"pressure_bar": "bar", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
          "scrubbed_so2": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by weight",
          "s_ppm": "ppm by weight", "s_partition": "mass fraction ratio gas/melt",
@@ -38,8 +39,11 @@ class ForwardModel:
         else:
             self.h2o_law = prepare_h2o(models["h2o_solubility"], melt)
         self.co2_law = prepare_co2(models["co2_solubility"], melt)
-        if models["sulfur"] != "partition":
-            raise InputError(f"sulfur model '{models['sulfur']}' is not available; use 'partition'")
+        self.sulfide_capacity = None
+        if models["sulfur"] == "sulfide_capacity":
+            self.sulfide_capacity = (models["sulfide_capacity_ln_a"], models["sulfide_capacity_b_k"])
+        elif models["sulfur"] != "partition":
+            raise InputError(f"unknown sulfur model '{models['sulfur']}'")
         self.style = models["degassing"]
         self.product = models["scrubbing_product"]
         self.eos = models["eos"]
@@ -69,7 +73,8 @@ class ForwardModel:
         res = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o,
                               co2, s, col("s_partition"), self.h2o_law,
                               self.co2_law, style=self.style, eos=self.eos,
-                              saturation=saturation, open_steps=self.open_steps)
+                              saturation=saturation, open_steps=self.open_steps,
+                              sulfide_capacity=self.sulfide_capacity)
         gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
                     col("h2s_return"))
         return {
@@ -97,7 +102,8 @@ class ForwardModel:
         col = lambda name: self._column(theta, name)[rows]  # noqa: E731
         first = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o[rows],
                                 co2[rows], s[rows], col("s_partition"), self.h2o_law, self.co2_law,
-                                style="closed", eos=self.eos, saturation=True)
+                                style="closed", eos=self.eos, saturation=True,
+                                sulfide_capacity=self.sulfide_capacity)
         p_sat = first.saturation_pressure_bar
         ok = np.isfinite(p_sat)
         if not np.any(ok):
@@ -106,7 +112,7 @@ class ForwardModel:
         deep = degassing.degas(col("temperature_c")[ok], p_sat[ok] * (1.0 - 1e-6),
                                col("dfmq")[ok], h2o[r], co2[r], s[r], col("s_partition")[ok],
                                self.h2o_law, self.co2_law, style="closed", eos=self.eos,
-                               saturation=False)
+                               saturation=False, sulfide_capacity=self.sulfide_capacity)
         gas = deep.gas
         good = deep.status == degassing.STATUS_GAS
         from .species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL

@@ -78,13 +78,14 @@ OXIDE_TOTAL_RANGE = (95.0, 102.0)
 MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "h2o_solubility": ("power_law", "liu2005", "moore1998"),
     "co2_solubility": ("shishkina2014", "liu2005"),
-    "sulfur": ("partition",),
+    "sulfur": ("partition", "sulfide_capacity"),
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
 }
 
 POWER_LAW_KEYS = ("h2o_power_coefficient", "h2o_power_exponent")
+SULFIDE_CAPACITY_KEYS = ("sulfide_capacity_ln_a", "sulfide_capacity_b_k")
 
 # distribution -> (required keys, optional keys) besides "distribution"/"source"/"description"
 DISTRIBUTIONS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
@@ -310,7 +311,8 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> "PriorSpec":
 
     # [models] (read before parameters: some parameters depend on the choices)
     models_t = _table(file, data, "models", "models", True)
-    _no_unknown(file, models_t, tuple(MODEL_CHOICES) + POWER_LAW_KEYS, "models")
+    _no_unknown(file, models_t, tuple(MODEL_CHOICES) + POWER_LAW_KEYS + SULFIDE_CAPACITY_KEYS,
+                "models")
     models = {}
     for key, choices in MODEL_CHOICES.items():
         val = _string(file, models_t, key, f"models.{key}", True)
@@ -326,6 +328,13 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> "PriorSpec":
             models[key] = float(val)
         elif key in models_t:
             raise _err(file, f"models.{key}", "only allowed with h2o_solubility = \"power_law\"")
+    # sulfide capacity, ln C_S = A + B/T(K), C_S in wt% S per (fS2/fO2)^0.5
+    for key in SULFIDE_CAPACITY_KEYS:
+        if models["sulfur"] == "sulfide_capacity":
+            val = _number(file, models_t, key, f"models.{key}", True)
+            models[key] = float(val)
+        elif key in models_t:
+            raise _err(file, f"models.{key}", "only allowed with sulfur = \"sulfide_capacity\"")
 
     # [parameters.<name>]
     params_t = _table(file, data, "parameters", "parameters", True)
