@@ -41,6 +41,7 @@ import emcee
 import numpy as np
 
 from .likelihood import Likelihood
+from .snooker_move import VectorSnookerMove
 
 __all__ = ["SampleResult", "LogPosterior", "sample_posterior", "initial_walkers",
            "SamplerError"]
@@ -186,7 +187,7 @@ def _diagnostics(chain_twd):
 
 def _moves(moves):
     if moves is None or (isinstance(moves, str) and moves == "de"):
-        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
+        return [(emcee.moves.DEMove(), 0.8), (VectorSnookerMove(), 0.2)]
     if isinstance(moves, str):
         if moves == "stretch":
             return None
