@@ -903,10 +903,12 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
         raise ValueError(f"unknown degassing style '{style}': use 'closed' or 'open'")
     if eos not in ("real", "ideal"):
         raise ValueError(f"unknown eos '{eos}': use 'real' or 'ideal'")
-    arrays = np.broadcast_arrays(*(np.atleast_1d(np.asarray(a, dtype=float)) for a in
-                                   (temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm,
-                                    s_partition)))
-    t_c, p, d, h2o, co2, s, ds = (np.ascontiguousarray(a).ravel() for a in arrays)
+    inputs = [np.atleast_1d(np.asarray(a, dtype=float)) for a in
+              (temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition)]
+    n0 = inputs[0].size
+    if not all(a.ndim == 1 and a.size == n0 for a in inputs):  # the sampler's case skips this
+        inputs = np.broadcast_arrays(*inputs)
+    t_c, p, d, h2o, co2, s, ds = (np.ascontiguousarray(a).ravel() for a in inputs)
     n = t_c.size
     gas = np.empty((n, 10))
     g = np.empty(n)
