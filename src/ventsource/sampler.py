@@ -175,14 +175,19 @@ def initial_walkers(prior, logpost: LogPosterior, n_walkers: int, rng: np.random
     return th[idx], n_bad
 
 
-def _diagnostics(chain_twd):
-    """(max split R-hat, min bulk ESS) over parameters; chain (steps, walkers, d)."""
+def _diagnostics(chain_twd, rhat_target=np.inf):
+    """(max split R-hat, min bulk ESS) over parameters; chain (steps, walkers, d).
+    The ESS is skipped (NaN) when R-hat already fails rhat_target: the run goes on
+    either way, and the ESS of the final draws is reported by the summary."""
     import arviz as az
     x = np.swapaxes(np.asarray(chain_twd), 0, 1)
     if x.shape[1] < 4:
         return np.inf, 0.0
     ds = az.convert_to_dataset(x)
-    return float(np.nanmax(az.rhat(ds)["x"].values)), float(np.nanmin(az.ess(ds, method="bulk")["x"].values))
+    rhat = float(np.nanmax(az.rhat(ds)["x"].values))
+    if rhat > rhat_target:
+        return rhat, float("nan")
+    return rhat, float(np.nanmin(az.ess(ds, method="bulk")["x"].values))
 
 
 def _moves(moves):
@@ -261,7 +266,7 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
         burn = int(np.ceil(burn_factor * tmax))
         ess = n_walkers * max(n_steps - burn, 0) / tmax
         if ess >= target_ess and n_steps >= min_tau_factor * tmax:
-            rhat, ess_min = _diagnostics(sampler.get_chain(discard=burn))
+            rhat, ess_min = _diagnostics(sampler.get_chain(discard=burn), rhat_target)
             if rhat <= rhat_target and ess_min >= target_ess:
                 converged = True
                 break
