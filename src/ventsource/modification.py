@@ -27,17 +27,15 @@ def scrub(gas_mole_fractions, scrubbed_so2, product="loss", scrubbed_h2s=0.0, h2
     if product not in PRODUCTS:
         raise ValueError(f"unknown scrubbing product '{product}' (allowed: {', '.join(PRODUCTS)})")
     x = np.array(gas_mole_fractions, dtype=float, copy=True)
-    n = x.shape[0]
-    f_so2 = np.broadcast_to(np.asarray(scrubbed_so2, dtype=float), (n,))
-    f_h2s = np.broadcast_to(np.asarray(scrubbed_h2s, dtype=float), (n,))
-    back = np.broadcast_to(np.asarray(h2s_return, dtype=float), (n,))
+    f_so2 = np.asarray(scrubbed_so2, dtype=float)
     removed_so2 = f_so2 * x[:, _SO2]
     x[:, _SO2] -= removed_so2
-    x[:, _H2S] *= 1.0 - f_h2s
+    f_h2s = np.asarray(scrubbed_h2s, dtype=float)
+    if f_h2s.ndim or f_h2s != 0.0:
+        x[:, _H2S] *= 1.0 - f_h2s
     if product == "h2s_sulfate":
-        x[:, _H2S] += back * removed_so2 / 4.0
+        x[:, _H2S] += np.asarray(h2s_return, dtype=float) * removed_so2 / 4.0
         x[:, _H2O] = np.maximum(x[:, _H2O] - removed_so2, 0.0)
     elif product == "sulfur_sulfate":
         x[:, _H2O] = np.maximum(x[:, _H2O] - removed_so2 * 2.0 / 3.0, 0.0)
-    total = x.sum(axis=1, keepdims=True)
-    return x / total
+    return x / x.sum(axis=1, keepdims=True)
