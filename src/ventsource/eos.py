@@ -156,26 +156,6 @@ def ln_phi_co2(temperature_k, pressure_bar):
     return out + ln_phi_virial(c, d, t, p, CO2_P0_KBAR)
 
 
-@njit(cache=True)
-def ln_phi_corresponding_states(temperature_k, pressure_bar, tc_k, pc_bar):
-    """ln(phi) from the corresponding-states CORK (HP91 eqs 9-10, Table 2).
-
-    RT ln f = RT ln P + bP + a/(b sqrt T) [ln(RT+bP) - ln(RT+2bP)] + 2/3 c P^1.5 + d/2 P^2,
-    explicit in P, so no root finding is needed.
-    """
-    t = temperature_k
-    p = pressure_bar * 1e-3
-    pc = pc_bar * 1e-3
-    a = CS_A0 * tc_k ** 2.5 / pc + CS_A1 * tc_k ** 1.5 / pc * t
-    b = CS_B0 * tc_k / pc
-    c = CS_C0 * tc_k / pc ** 1.5 + CS_C1 / pc ** 1.5 * t
-    d = CS_D0 * tc_k / (pc * pc) + CS_D1 / (pc * pc) * t
-    rt = R_KJ * t
-    g = (b * p + a / (b * math.sqrt(t)) * (math.log(rt + b * p) - math.log(rt + 2.0 * b * p))
-         + 2.0 / 3.0 * c * p ** 1.5 + 0.5 * d * p * p)
-    return g / rt
-
-
 # Critical temperature (K) and pressure (bar), SPECIES order. Values as tabulated
 # in the `chemicals` library 1.5 (critical-point compilations; IAPWS-95 for H2O,
 # Span & Wagner 1996 for CO2); cross-checked in tests/test_eos.py.
@@ -240,8 +220,10 @@ def ln_phi_peng_robinson(temperature_k, pressure_bar, tc_k, pc_bar, acentric):
 
 
 def _corresponding_states_table():
-    """Per-species constants of the corresponding-states CORK (same formulas as
-    ln_phi_corresponding_states), computed once: a0, a1, b, c0, c1, d0, d1."""
+    """Per-species constants of the corresponding-states CORK (HP91 eqs 9-10,
+    Table 2), computed once: a = a0 + a1 T, b, c = c0 + c1 T, d = d0 + d1 T,
+    with P and Pc in kbar. The kernel then uses the closed form
+    RT ln f = RT ln P + bP + a/(b sqrt T) [ln(RT+bP) - ln(RT+2bP)] + 2/3 c P^1.5 + d/2 P^2."""
     table = np.zeros((N_SPECIES, 7))
     for i in range(N_SPECIES):
         tc = _TC[i]

@@ -202,6 +202,9 @@ class Likelihood:
         self.y = meas.log_values[obs]
         self.s = sigma_ln(meas.relative_sigma[obs])
         self.c = meas.censoring[obs]
+        nu = self.dof
+        self._t_log_norm = (special.gammaln(0.5 * (nu + 1.0)) - special.gammaln(0.5 * nu)
+                            - 0.5 * np.log(nu * np.pi))
 
     @property
     def observed_names(self) -> tuple:
@@ -214,9 +217,7 @@ class Likelihood:
         # Student-t log density written out (same as scipy.stats.t.logpdf, which the
         # tests use as reference, without its per-call overhead inside the sampler)
         nu = self.dof
-        const = (special.gammaln(0.5 * (nu + 1.0)) - special.gammaln(0.5 * nu)
-                 - 0.5 * np.log(nu * np.pi))
-        return const - 0.5 * (nu + 1.0) * np.log1p(z * z / nu)
+        return self._t_log_norm - 0.5 * (nu + 1.0) * np.log1p(z * z / nu)
 
     def _logcdf_std(self, z):
         if self.kind == "normal":

@@ -2,4 +2,3 @@
 TEMPERATURE_C = (600.0, 1300.0)
 PRESSURE_BAR = (1.0, 5000.0)
 DFMQ = (-4.0, 4.0)
-EOS_CHOICES = ("real", "ideal")

@@ -121,3 +121,10 @@ def h2o_mole_fraction_from_wt_percent(h2o_wt, anhydrous_molar_mass_g_mol):
     w = np.asarray(h2o_wt, dtype=float)
     nw = w / H2O_MOLAR_MASS_G_MOL
     return nw / (nw + (100.0 - w) / anhydrous_molar_mass_g_mol)
+
+
+def broadcast_flat(*arrays):
+    """(common shape, contiguous 1-D float copies) of arrays broadcast together;
+    the array wrappers of the solubility kernels use it."""
+    arrs = np.broadcast_arrays(*[np.asarray(a, dtype=np.float64) for a in arrays])
+    return arrs[0].shape, [np.ascontiguousarray(a).ravel() for a in arrs]

@@ -122,10 +122,8 @@ def _h2o_loop(law_id, params, ph, pc, fh, fc, p, t, out):
 
 def h2o_wt_percent_array(law_id, params, p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, pressure_bar, temperature_k):
     """Array wrapper of h2o_wt_percent; inputs broadcast together, result has the broadcast shape."""
-    arrs = np.broadcast_arrays(*[np.asarray(a, dtype=np.float64) for a in
-                                 (p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, pressure_bar, temperature_k)])
-    shape = arrs[0].shape
-    flat = [np.ascontiguousarray(a).ravel() for a in arrs]
+    shape, flat = _melt.broadcast_flat(p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, pressure_bar,
+                                       temperature_k)
     out = np.empty(flat[0].size, dtype=np.float64)
     _h2o_loop(int(law_id), np.ascontiguousarray(params, dtype=np.float64), *flat, out)
     return out.reshape(shape)

@@ -167,12 +167,6 @@ def solve_3x3(a, b, out):
     return True
 
 
-@njit(cache=True, error_model='numpy')
-def new_scratch():
-    """Work space for speciate_state, reusable across states."""
-    return np.empty(SCRATCH_SIZE)
-
-
 SCRATCH_SIZE = 3 * 10 + 6 * 3 + 2 * 9 + 6 * 4 + 10
 
 

@@ -18,6 +18,8 @@ import math
 import numpy as np
 from numba import njit
 
+from .melt import broadcast_flat
+
 # Sulfate fraction is capped so that ST = S2-/(1 - S6+/ST) stays finite: at most
 # 1000 x the sulfide content (a numerical guard, not a physical value).
 MAX_SULFATE_FRACTION = 0.999
@@ -84,11 +86,6 @@ def _capacity_loop(params, fs2, fo2, t, dfmq, out):
         out[i] = s_melt_ppm_capacity(params, fs2[i], fo2[i], t[i], dfmq[i])
 
 
-def _flat(*arrays):
-    arrs = np.broadcast_arrays(*[np.asarray(a, dtype=np.float64) for a in arrays])
-    return arrs[0].shape, [np.ascontiguousarray(a).ravel() for a in arrs]
-
-
 def sulfate_fraction_jugo2010_array(dfmq):
     """Array form of sulfate_fraction_jugo2010."""
     d = np.asarray(dfmq, dtype=np.float64)
@@ -97,7 +94,7 @@ def sulfate_fraction_jugo2010_array(dfmq):
 
 def s_melt_ppm_partition_array(d_s, s_gas_mass_fraction):
     """Array wrapper of s_melt_ppm_partition (inputs broadcast)."""
-    shape, (d, w) = _flat(d_s, s_gas_mass_fraction)
+    shape, (d, w) = broadcast_flat(d_s, s_gas_mass_fraction)
     out = np.empty(d.size)
     _partition_loop(d, w, out)
     return out.reshape(shape)
@@ -105,7 +102,7 @@ def s_melt_ppm_partition_array(d_s, s_gas_mass_fraction):
 
 def s_melt_ppm_capacity_array(params, f_s2_bar, f_o2_bar, temperature_k, dfmq):
     """Array wrapper of s_melt_ppm_capacity (inputs broadcast)."""
-    shape, (fs2, fo2, t, d) = _flat(f_s2_bar, f_o2_bar, temperature_k, dfmq)
+    shape, (fs2, fo2, t, d) = broadcast_flat(f_s2_bar, f_o2_bar, temperature_k, dfmq)
     out = np.empty(fs2.size)
     _capacity_loop(np.ascontiguousarray(params, dtype=np.float64), fs2, fo2, t, d, out)
     return out.reshape(shape)
