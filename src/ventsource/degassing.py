@@ -21,10 +21,17 @@ releases no gas.
 Open system: from the saturation pressure down to P in geometric steps,
 the gas made in each step is removed and the next step starts from the
 melt; the gas made in the last step is the gas measured at P. An element the
-melt has lost keeps VANISHING_MOL_PER_G so its balance stays defined. A magma
-with no saturation pressure below P_SAT_CAP_BAR (gas at every pressure of the
-laws' range, e.g. D_S * S near or above the S mass fraction a gas can hold)
-has no start for the path: status 2.
+melt has lost keeps VANISHING_MOL_PER_G so its balance stays defined.
+
+A magma still gas-saturated at P_SAT_CAP_BAR (gas at every pressure of the
+search range, e.g. D_S * S near or above the S mass fraction a gas can hold)
+has no saturation pressure to start from. Its open path starts at the cap
+instead: the gas in closed-system equilibrium with the magma at the cap is the
+first batch removed, then the path steps down from the cap to P as usual (at
+P >= P_SAT_CAP_BAR the gas is the closed-system gas at P). Deeper than the cap
+the gas is thus taken as kept with its magma. Such states have status 0, a
+saturation pressure of inf ("above the cap") and closed_above_cap True in
+DegassingResult, so a caller can tell them apart or leave them out.
 """
 import math
 
@@ -811,7 +818,7 @@ def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, wo
 @njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
                  n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par, ln_cs_a, ln_cs_b_k,
-                 x_out, g_out, melt_out, psat_out, status_out):
+                 x_out, g_out, melt_out, psat_out, status_out, cap_out):
     ctx = np.empty(CTX_SIZE)
     ln_k = np.empty(6)
     ln_phi = np.empty(10)
@@ -831,11 +838,20 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
             # works on a copy: ctx still describes the state at P afterwards
             psat = saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work)
         psat_out[j] = psat
+        cap_out[j] = False
         if open_system and math.isfinite(psat) and psat > pressure_bar[j]:
             st = _open_path(ctx, psat, pressure_bar[j], n_open_steps, h_law, h_par, c_law, c_par,
-                            ideal, ln_k, ln_phi, z, x_out[j], mg, work)
-        elif open_system and (math.isinf(psat) or math.isnan(psat)):
-            st = STATUS_FAILED  # no defined open-system path without a saturation pressure
+                            ideal, ln_k, ln_phi, z, x_out[j], mg, work, False)
+        elif open_system and math.isinf(psat):
+            # gas-saturated at the cap: the path starts there from the closed-system gas
+            cap_out[j] = True
+            if pressure_bar[j] < P_SAT_CAP_BAR:
+                st = _open_path(ctx, P_SAT_CAP_BAR, pressure_bar[j], n_open_steps, h_law, h_par,
+                                c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work, True)
+            else:
+                st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x_out[j], mg, True, work)
+        elif open_system and math.isnan(psat):
+            st = STATUS_FAILED  # the saturation search itself failed: no start for the path
         else:
             st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x_out[j], mg, True, work)
         status_out[j] = st
@@ -855,9 +871,22 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
 
 @njit(cache=True, error_model='numpy')
 def _open_path(ctx, psat, pressure_bar, n_steps, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi,
-               z, x, mg, work):
-    """Step from just below psat to P, removing the gas each step."""
+               z, x, mg, work, remove_at_start):
+    """Step from just below psat to P, removing the gas each step.
+
+    remove_at_start: the magma is gas-saturated at psat (the search cap); its
+    closed-system gas there is removed first, the path then starts from that melt.
+    """
     st = STATUS_FAILED
+    if remove_at_start:
+        _set_pressure(ctx, psat, ln_k, ln_phi, ideal)
+        st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
+        if st == STATUS_FAILED:
+            return st
+        if st == STATUS_GAS:
+            ctx[_C_NH] = max(mg[3], VANISHING_MOL_PER_G)
+            ctx[_C_NC] = max(mg[4], VANISHING_MOL_PER_G)
+            ctx[_C_NS] = max(mg[5], VANISHING_MOL_PER_G)
     ratio = (pressure_bar / psat) ** (1.0 / n_steps)
     for k in range(n_steps):
         p = psat * ratio ** (k + 1) if k < n_steps - 1 else pressure_bar
@@ -876,9 +905,15 @@ def _open_path(ctx, psat, pressure_bar, n_steps, h_law, h_par, c_law, c_par, ide
 class DegassingResult:
     """Arrays over states: gas mole fractions (n, 10) in SPECIES order (NaN where
     no gas), gas mass fraction, melt H2O (wt%), CO2 (ppm), S (ppm), saturation
-    pressure (bar; NaN if not computed) and status codes."""
+    pressure (bar; NaN if not computed, inf if above P_SAT_CAP_BAR) and status codes.
 
-    def __init__(self, gas, gas_wt_fraction, melt, saturation_pressure_bar, status):
+    closed_above_cap (bool): open style only, True where the magma is still
+    gas-saturated at P_SAT_CAP_BAR and its open path starts at the cap from the
+    closed-system gas there (see the module doc); always False in the closed style.
+    """
+
+    def __init__(self, gas, gas_wt_fraction, melt, saturation_pressure_bar, status,
+                 closed_above_cap):
         self.gas = gas
         self.gas_wt_fraction = gas_wt_fraction
         self.melt_h2o_wt = melt[:, 0]
@@ -886,6 +921,7 @@ class DegassingResult:
         self.melt_s_ppm = melt[:, 2]
         self.saturation_pressure_bar = saturation_pressure_bar
         self.status = status
+        self.closed_above_cap = closed_above_cap
 
 
 def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition, h2o_law, co2_law,
@@ -897,7 +933,9 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     sulfide_capacity: None, or (A, B) with ln C_S = A + B/T(K): melt S from the
     sulfide capacity and the Jugo et al. (2010) sulfate fraction instead of D_S
     (s_partition is then ignored).
-    style: "closed" or "open". saturation: also compute the saturation pressure.
+    style: "closed" or "open". saturation: also compute the saturation pressure
+    (always computed in the open style, where it starts the path; a magma still
+    gas-saturated at P_SAT_CAP_BAR starts it at the cap, see closed_above_cap).
     """
     if style not in ("closed", "open"):
         raise ValueError(f"unknown degassing style '{style}': use 'closed' or 'open'")
@@ -915,11 +953,12 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     melt = np.empty((n, 3))
     psat = np.empty(n)
     status = np.empty(n, dtype=np.int64)
+    cap = np.empty(n, dtype=np.bool_)
     _degas_batch(t_c + 273.15, p, d, h2o, co2, s, ds, style == "open", int(open_steps),
                  bool(saturation), eos == "ideal", int(h2o_law[0]),
                  np.ascontiguousarray(h2o_law[1], dtype=float), int(co2_law[0]),
                  np.ascontiguousarray(co2_law[1], dtype=float),
                  float(sulfide_capacity[0]) if sulfide_capacity is not None else math.nan,
                  float(sulfide_capacity[1]) if sulfide_capacity is not None else 0.0,
-                 gas, g, melt, psat, status)
-    return DegassingResult(gas, g, melt, psat, status)
+                 gas, g, melt, psat, status, cap)
+    return DegassingResult(gas, g, melt, psat, status, cap)
