@@ -46,6 +46,13 @@ from .solubility_h2o import h2o_wt_percent
 from .thermochemistry import LN10, NASA_COEFFS, NASA_T_MID, REACTION_MATRIX, ln_k_kernel
 from .buffers import FMQ_COEFFICIENTS
 
+# Every kernel below _degas_batch runs without numba's reference-counted memory
+# (NRT): none allocates, and with it each array argument or view costs a pair of
+# atomic reference-count updates per call (about 150 per state, a third of the
+# forward model's run time under perf). _degas_batch owns every array and keeps
+# the NRT. No fastmath anywhere: results stay bitwise reproducible.
+_kernel = njit(cache=True, error_model='numpy', _nrt=False)
+
 STATUS_GAS = 0
 STATUS_NO_GAS = 1
 STATUS_FAILED = 2
@@ -112,11 +119,15 @@ _W_ITER = _W_CTX + CTX_SIZE   # Newton iterations of the last solve (diagnostics
 WORK_SIZE = _W_ITER + 1
 
 
-@njit(cache=True, error_model='numpy')
-def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi):
+@_kernel
+def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi,
+                  same_temperature=False):
+    """same_temperature: ln_k already holds the values at temperature_k (a new
+    pressure on a path at fixed T), so the temperature-only work is skipped."""
     a, b, c = FMQ_COEFFICIENTS
     ln_fo2 = (a / temperature_k + b + c * (pressure_bar - 1.0) / temperature_k + dfmq) * LN10
-    ln_k_kernel(temperature_k, NASA_COEFFS, NASA_T_MID, REACTION_MATRIX, ln_k)
+    if not same_temperature:
+        ln_k_kernel(temperature_k, NASA_COEFFS, NASA_T_MID, REACTION_MATRIX, ln_k)
     if ideal:
         for i in range(10):
             ln_phi[i] = 0.0
@@ -141,7 +152,7 @@ def _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, id
     _update_sulfide_factor(ctx)
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _update_sulfide_factor(ctx):
     """Sulfide-capacity sulfur: S2- (wt%) = C_S (fS2/fO2)^0.5 (O'Neill and
     Mavrogenes 2002, J. Petrol. 43:1049, definition of C_S) with ln C_S = A + B/T
@@ -169,7 +180,7 @@ _H2O_MOL_PER_WT_PERCENT = 2.0 / 100.0 / M_H2O   # mol H per g melt per wt% H2O
 _CO2_MOL_PER_PPM = 1e-6 / M_CO2                 # mol C per g melt per ppm CO2
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _log_balance(q):
     """(residual, d residual / d q) of one element balance, see Q_LINEAR."""
     if q >= Q_LINEAR:
@@ -177,7 +188,7 @@ def _log_balance(q):
     return _LN_Q_LINEAR + (q - Q_LINEAR) / Q_LINEAR, 1.0 / Q_LINEAR
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     """Residuals r (4) and analytic Jacobian jac (4 x 4, row-major) at z; returns the merit.
 
@@ -364,7 +375,7 @@ T_TOL = 0.3  # logit tolerance of the start; the 4-D Newton iteration finishes t
 M_H2S = 34.076
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par, c_law,
                 c_par):
     """Lever-rule test of the H-C start at logit(y) = tt with a fraction zs of S
@@ -403,7 +414,7 @@ def _guess_sign(tt, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law,
     return d, g, y, y1
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_law, h_par,
                 c_law, c_par):
     """Root in logit(y) of the lever-rule test: bracket from [lo, hi] (widened
@@ -478,7 +489,7 @@ def _root_logit(lo, hi, zs, ms, p, t, phi_h, phi_c, n_h, n_c, rh, rc, mh, mc, h_
     return tt, g, y, y1
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _s_fraction(g, n_s, d_s, ms, m_hc):
     """Mole fraction of S carriers (molar mass ms) in a gas whose H-C part has mean
     molar mass m_hc, from the S balance zs/mbar * (g + (1-g)/D_S) = n_S."""
@@ -489,7 +500,7 @@ def _s_fraction(g, n_s, d_s, ms, m_hc):
     return min(max(zs, 1e-300), ZS_MAX)
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _initial_guess(ctx, h_law, h_par, c_law, c_par, z, s_first):
     """Start for the 4-D iteration: H and C carriers (H2O + H2, CO2 + CO in fO2-set
     ratios) from a 1-D root in logit of the gas C fraction, the S carriers (SO2 + H2S)
@@ -573,7 +584,7 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z, s_first):
     return g_hc
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _solve_newton(jac, r, out, m):
     """Newton step out = -J^-1 r for the 4 x 4 Jacobian (row-major) of _evaluate.
 
@@ -628,7 +639,7 @@ def _solve_newton(jac, r, out, m):
     return True
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _solve4(a, b, out, m):
     """Gaussian elimination with partial pivoting for a 4x4 system (a row-major, 16);
     m: 20-element work array. False if singular."""
@@ -667,7 +678,7 @@ MERIT_TOL = 1e-20       # sum of squared residuals: balances to ~1e-11 relative
 REFRESH_MERIT = 1e-6    # law elasticities are refreshed until the merit is below this
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     """Closed-system equilibrium for one context; z = (u0, u1, u2, g) in/out. Returns status.
 
@@ -692,7 +703,7 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
     return st
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
     """Damped Newton iteration from z; STATUS_GAS, STATUS_NO_GAS (root with g <= 0)
     or STATUS_FAILED."""
@@ -775,13 +786,14 @@ def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
     return STATUS_GAS
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _set_pressure(ctx, pressure_bar, ln_k, ln_phi, ideal):
+    """Same state at a new pressure; ln_k must hold the values at ctx's temperature."""
     _fill_context(ctx, ctx[_C_T], pressure_bar, ctx[_C_DFMQ], ctx[_C_NH], ctx[_C_NC], ctx[_C_NS],
-                  ctx[_C_DS], ideal, ln_k, ln_phi)
+                  ctx[_C_DS], ideal, ln_k, ln_phi, True)
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work):
     """Pressure (bar) at which the gas fraction reaches zero; inf above P_SAT_CAP_BAR."""
     z = work[_W_Z:_W_Z + 4]
@@ -869,7 +881,7 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
                 melt_out[j, 2] = s_ppm[j]
 
 
-@njit(cache=True, error_model='numpy')
+@_kernel
 def _open_path(ctx, psat, pressure_bar, n_steps, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi,
                z, x, mg, work, remove_at_start):
     """Step from just below psat to P, removing the gas each step.
