@@ -37,7 +37,7 @@ _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, ta
                  max_steps=20000, alpha=0.01, n_prior_draws=2000, scrub_name="scrubbed_so2",
                  n_proposal=20000, model_choice=True, space="unbounded", burn_factor=3.0, min_tau_factor=30.0,
                  chunk=200, max_error_p=0.05, rhat_max=1.05, moves="de", init="importance",
-                 n_init_draws=None, rhat_target=1.05)
+                 n_init_draws=None, rhat_target=1.05, bridge_proposal="mixture")
 
 
 class InferenceError(ValueError):
@@ -160,7 +160,8 @@ def _run_model(name, prior, forward, lik, seeds, opt) -> ModelRun:
                          n_init_draws=opt["n_init_draws"], rhat_target=opt["rhat_target"])
     lp = LogPosterior(prior, forward, lik)
     b = bridge_sampling(s.chain, lambda th: lp.evaluate(th)[0], support_bounds(prior), seed=seeds[1],
-                        n_proposal=opt["n_proposal"], log_target_chain=s.log_posterior)
+                        n_proposal=opt["n_proposal"], log_target_chain=s.log_posterior,
+                        proposal=opt["bridge_proposal"])
     s.stats["n_forward_evals_bridge"] = lp.n_forward_evals
     s.stats["n_failed_states_bridge"] = lp.n_failed
     chk = predictive_check(lik, s.predictions, np.random.default_rng(seeds[2]), opt["alpha"])
@@ -231,6 +232,7 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     "stretch", "kde" or an emcee moves list), init="importance" (likelihood-weighted prior
     draws; or "prior"), n_init_draws (default 20 per walker), max_steps=20000, alpha=0.01 (predictive check level),
     n_prior_draws=2000, scrub_name="scrubbed_so2", n_proposal=20000 (bridge proposal draws),
+    bridge_proposal="mixture" (Student-t mixture; or "normal", one multivariate normal),
     model_choice=True, space="unbounded" (sampler space, see sampler.sample_posterior),
     burn_factor=3, min_tau_factor=30, chunk=200, max_error_p=0.05 and rhat_max=1.05 (flag
     thresholds).
