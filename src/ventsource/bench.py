@@ -111,6 +111,27 @@ def bench_forward(cantera_per_state, quick=False):
             line += (f" -> {cantera_per_state / per_state:.1f}x Cantera's per-state time "
                      f"(target >= {target}x)")
         print(line)
+    bench_open_style(model, spec, theta[:300 if quick else 2000])
+
+
+def bench_open_style(model, spec, theta):
+    """Open-style degassing of the same prior draws: the saturation-pressure search
+    plus the stepped path (or the start at the search cap), its costliest mode."""
+    from . import degassing
+    col = {name: theta[:, i] for i, name in enumerate(spec.parameter_names)}
+
+    def run():
+        return degassing.degas(col["temperature_c"], col["pressure_bar"], col["dfmq"], col["h2o_wt"],
+                               col["co2_ppm"], col["s_ppm"], col["s_partition"], model.h2o_law,
+                               model.co2_law, style="open", eos=model.eos, open_steps=model.open_steps,
+                               sulfide_capacity=model.sulfide_capacity)
+
+    res = run()
+    seconds = _best_of(run)
+    print(f"[forward] open-style degassing, {theta.shape[0]} draws: {seconds / theta.shape[0] * 1e6:.1f} "
+          f"us/state (saturation search + {model.open_steps}-step path), "
+          f"{100 * res.closed_above_cap.mean():.1f} % started at the {degassing.P_SAT_CAP_BAR:g} bar cap, "
+          f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
 SECTIONS = ("speciation", "forward", "inference", "series")
