@@ -46,11 +46,14 @@ from .solubility_h2o import h2o_wt_percent
 from .thermochemistry import LN10, NASA_COEFFS, NASA_T_MID, REACTION_MATRIX, ln_k_kernel
 from .buffers import FMQ_COEFFICIENTS
 
-# Every kernel below _degas_batch runs without numba's reference-counted memory
-# (NRT): none allocates, and with it each array argument or view costs a pair of
-# atomic reference-count updates per call (about 150 per state, a third of the
-# forward model's run time under perf). _degas_batch owns every array and keeps
-# the NRT. No fastmath anywhere: results stay bitwise reproducible.
+# Every kernel except _degas_batch runs without numba's reference-counted memory
+# (NRT; `_nrt` is numba's own flag for it): none allocates, and with the NRT each
+# array argument or view costs a pair of atomic reference-count updates per call
+# (about 150 per state, a third of the forward model's run time under perf).
+# _degas_batch allocates and owns every array and keeps the NRT; a new kernel
+# that must allocate (np.empty) takes plain njit. The callees from other modules
+# (EOS, ln K, solubility laws) are compiled into these kernels, so they must not
+# allocate either. No fastmath anywhere: results stay bitwise reproducible.
 _kernel = njit(cache=True, error_model='numpy', _nrt=False)
 
 STATUS_GAS = 0
