@@ -1,5 +1,6 @@
 """Command-line behaviour: public option names, JSON shape, one-line errors with exit 2."""
 import json
+from pathlib import Path
 import subprocess
 import sys
 
@@ -166,3 +167,21 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     assert "Traceback" not in err and "KRW-001" in lines[-1] and "alpha" in lines[-1]
     assert not (out / "summary.csv").exists() and not (out / "hazard.json").exists()
     assert json.loads((out / "run.json").read_text())["status"] == "running"
+
+
+def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):
+    # open style, a magma whose sulfur (large D_S * S) keeps a gas beyond the 20 kbar
+    # search cap: the path starts at the cap and the output says so; an ordinary state
+    # does not carry the flag (behaviour documented in the README)
+    text = Path("priors/arc_basalt.toml").read_text().replace('degassing = "closed"', 'degassing = "open"')
+    prior = tmp_path / "open.toml"
+    prior.write_text(text)
+    base = ["forward", "--prior", str(prior), "--json", "--set", "pressure_bar=1000", "temperature_c=1199",
+            "dfmq=1.8", "scrubbed_so2=0", "h2o_wt=5.3", "co2_ppm=1980", "s_partition=354"]
+    code, out, _ = run(base + ["s_ppm=2380"], capsys)
+    doc = json.loads(out)
+    assert code == 0 and doc["status"] == "gas" and doc["open_path_started_at_cap"] is True
+    assert doc["saturation_pressure_bar"] is None and doc["ratios"]["SO2/CO2"] > 0
+    code, out, _ = run(base + ["s_ppm=10"], capsys)
+    doc = json.loads(out)
+    assert code == 0 and doc["open_path_started_at_cap"] is False and doc["saturation_pressure_bar"] > 1000

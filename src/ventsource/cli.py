@@ -221,6 +221,7 @@ def cmd_forward(args):
         "parameters": dict(zip(spec.parameter_names, theta)),
         "status": label,
         "saturation_pressure_bar": _finite_or_none(state["saturation_pressure_bar"][0]),
+        "open_path_started_at_cap": bool(state["closed_above_cap"][0]),
         "gas_wt_fraction": float(state["gas_wt_fraction"][0]),
         "gas": {n: _finite_or_none(gas[i]) for i, n in enumerate(SPECIES)},
         "magmatic_gas": {n: _finite_or_none(state["magmatic_gas"][0][i]) for i, n in enumerate(SPECIES)},
@@ -238,6 +239,8 @@ def cmd_forward(args):
     psat = out["saturation_pressure_bar"]
     print(f"  saturation pressure: {psat:.1f} bar" if psat is not None else
           "  saturation pressure: above the model's 20 kbar search cap")
+    if out["open_path_started_at_cap"]:
+        print("  open-system path started at the 20 kbar cap (gas deeper than the cap stays with its magma)")
     if status == 0:
         print(f"  gas mass fraction: {out['gas_wt_fraction']:.4g}")
         print(f"  melt: H2O {out['melt']['h2o_wt']:.3f} wt%, CO2 {out['melt']['co2_ppm']:.1f} ppm, "

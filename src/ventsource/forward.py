@@ -86,6 +86,8 @@ class ForwardModel:
             "melt_co2_ppm": res.melt_co2_ppm,
             "melt_s_ppm": res.melt_s_ppm,
             "saturation_pressure_bar": res.saturation_pressure_bar,
+            # open style only: gas-saturated at the search cap, the path started there
+            "closed_above_cap": res.closed_above_cap,
             "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
 
@@ -95,8 +97,9 @@ class ForwardModel:
         The extra gas (exsolved_gas_wt, wt% of the magma) is taken as the first
         gas the magma makes, the gas in equilibrium with it just below its
         saturation pressure: CO2-rich gas accumulated from deeper levels.
-        A magma saturated beyond the search cap gets no addition (and the
-        state is reported through its own status).
+        A magma still gas-saturated at the search cap gets no addition: it
+        has no saturation pressure to take the first gas at (its open path
+        starts at the cap, flagged closed_above_cap).
         """
         rows = np.flatnonzero(extra_wt > 0.0)
         col = lambda name: self._column(theta, name)[rows]  # noqa: E731
