@@ -76,8 +76,8 @@ def _regularised_chol(cov, floor):
 
 
 def fit_mixture(u, weights, rng: np.random.Generator, n_components: int = 6, dof: float = 6.0,
-                defensive: float = 0.05, n_iter: int = 30,
-                max_points: int = 2000) -> StudentTMixture:
+                defensive: float = 0.05, n_iter: int = 15,
+                max_points: int = 1500) -> StudentTMixture:
     """Fit a k-component mixture to draws u (n, d) with importance weights (n,).
 
     Starts from k means picked by weighted k-means++ seeding (Arthur and Vassilvitskii
