@@ -249,6 +249,12 @@ class Likelihood:
         bad = np.isnan(mu).any(axis=1)
         with np.errstate(invalid="ignore", over="ignore"):
             z = (self.y[None, :] - mu) / self.s[None, :]   # standardised residual of y
+            if not self.c.any():
+                # every value exact (the common case): no masked copies in the sampler's loop
+                out = self._logpdf_std(z) - np.log(self.s)[None, :]
+                out[np.isnan(out)] = -np.inf
+                out[bad, :] = -np.inf
+                return out
             out = np.empty_like(z)
             exact = self.c == 0
             out[:, exact] = self._logpdf_std(z[:, exact]) - np.log(self.s[exact])[None, :]
