@@ -22,19 +22,20 @@ def _linear():
     return pr, fw, Measurement(("A", "B", "C"), np.exp(Y), REL)
 
 
-def _bridge(pr, fw, m, seed, target_ess=2000, kind="normal", dof=4.0):
+def _bridge(pr, fw, m, seed, target_ess=2000, kind="normal", dof=4.0, proposal="mixture"):
     lik = Likelihood(m, kind=kind, dof=dof, prediction_names=fw.ratio_names)
     s = sample_posterior(pr, fw, lik, seed=seed, target_ess=target_ess)
     lp = LogPosterior(pr, fw, lik)
     return bridge_sampling(s.chain, lambda th: lp.evaluate(th)[0], support_bounds(pr), seed=seed + 1,
-                           log_target_chain=s.log_posterior)
+                           log_target_chain=s.log_posterior, proposal=proposal)
 
 
-def test_bridge_matches_analytic_gaussian_evidence():
+@pytest.mark.parametrize("proposal", ["mixture", "normal"])
+def test_bridge_matches_analytic_gaussian_evidence(proposal):
     # reference: Gaussian marginal likelihood (Bishop 2006, eq. 2.115; from memory)
     pr, fw, m = _linear()
     ref = gaussian_evidence(Y, np.full(3, np.log1p(REL)), A, B, MU0, SD0)
-    b = _bridge(pr, fw, m, seed=1)
+    b = _bridge(pr, fw, m, seed=1, proposal=proposal)
     assert b.converged
     assert b.transform == "identity,identity"
     assert abs(b.log_z - ref) < 4 * b.log_z_error + 0.01, (b.log_z, ref, b.log_z_error)
