@@ -109,8 +109,9 @@ class Transform:
             w = (self.hi - self.lo)[self.two]
             uu = u[:, self.two]
             th[:, self.two] = self.lo[self.two] + w * special.expit(uu)
-            # d/du expit(u) = expit(u) expit(-u)
-            logj += np.sum(np.log(w) + special.log_expit(uu) + special.log_expit(-uu), axis=1)
+            # d/du expit(u) = expit(u) expit(-u); log of it = -|u| - 2 log(1 + e^-|u|)
+            a = np.abs(uu)
+            logj += np.sum(np.log(w)) - np.sum(a + 2.0 * np.log1p(np.exp(-a)), axis=1)
         if self.low_only.any():
             uu = u[:, self.low_only]
             th[:, self.low_only] = self.lo[self.low_only] + np.exp(uu)

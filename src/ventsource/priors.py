@@ -503,6 +503,14 @@ class PriorSpec:
             n: d.value for n, d in self.distributions.items() if isinstance(d, Fixed)}
         self._free_dists = [self.distributions[n] for n in self.free_names]
         self._free_index = np.array([self.parameter_names.index(n) for n in self.free_names], dtype=int)
+        # uniform columns share one vector expression in log_prob (it runs once per sampler call)
+        uni = [j for j, d in enumerate(self._free_dists) if type(d) is Uniform]
+        self._uniform_cols = np.array(uni, dtype=int)
+        self._uniform_lo = np.array([self._free_dists[j].lower for j in uni], dtype=float)
+        self._uniform_hi = np.array([self._free_dists[j].upper for j in uni], dtype=float)
+        self._uniform_log_density = -float(sum(math.log(self._free_dists[j].upper - self._free_dists[j].lower)
+                                               for j in uni))
+        self._other_cols = [j for j in range(len(self._free_dists)) if j not in set(uni)]
 
     # ---- shapes
     @property
@@ -539,9 +547,14 @@ class PriorSpec:
     def log_prob(self, theta_free):
         """Log prior density of the free parameters: (n,) array, -inf outside the support."""
         arr, single = self._as_2d(theta_free, "log_prob")
-        lp = np.zeros(arr.shape[0])
-        for j, d in enumerate(self._free_dists):
-            lp = lp + d.log_pdf(arr[:, j])
+        if self._uniform_cols.size:
+            x = arr[:, self._uniform_cols]
+            inside = np.all((x >= self._uniform_lo) & (x <= self._uniform_hi), axis=1)  # NaN: outside
+            lp = np.where(inside, self._uniform_log_density, -np.inf)
+        else:
+            lp = np.zeros(arr.shape[0])
+        for j in self._other_cols:
+            lp = lp + self._free_dists[j].log_pdf(arr[:, j])
         lp = np.where(np.isnan(lp), -np.inf, lp)
         return float(lp[0]) if single else lp
 
