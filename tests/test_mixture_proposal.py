@@ -34,6 +34,8 @@ def test_sampling_agrees_with_density():
 
 
 def test_fit_recovers_two_separated_components():
+    # EM recovers the parameters of a well-separated mixture it was given draws of
+    # (common practice, no source)
     rng = np.random.default_rng(3)
     a = rng.multivariate_normal([-4.0, 0.0], np.eye(2) * 0.5, size=6000)
     b = rng.multivariate_normal([4.0, 2.0], np.eye(2) * 0.5, size=4000)

@@ -252,16 +252,14 @@ class Likelihood:
             if not self.c.any():
                 # every value exact (the common case): no masked copies in the sampler's loop
                 out = self._logpdf_std(z) - np.log(self.s)[None, :]
-                out[np.isnan(out)] = -np.inf
-                out[bad, :] = -np.inf
-                return out
-            out = np.empty_like(z)
-            exact = self.c == 0
-            out[:, exact] = self._logpdf_std(z[:, exact]) - np.log(self.s[exact])[None, :]
-            up = self.c == -1   # P(y < ln limit)
-            out[:, up] = self._logcdf_std(z[:, up])
-            lo = self.c == 1    # P(y > ln limit) = F(-z)
-            out[:, lo] = self._logcdf_std(-z[:, lo])
+            else:
+                out = np.empty_like(z)
+                exact = self.c == 0
+                out[:, exact] = self._logpdf_std(z[:, exact]) - np.log(self.s[exact])[None, :]
+                up = self.c == -1   # P(y < ln limit)
+                out[:, up] = self._logcdf_std(z[:, up])
+                lo = self.c == 1    # P(y > ln limit) = F(-z)
+                out[:, lo] = self._logcdf_std(-z[:, lo])
         out[np.isnan(out)] = -np.inf
         out[bad, :] = -np.inf
         return out

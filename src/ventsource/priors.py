@@ -510,7 +510,7 @@ class PriorSpec:
         self._uniform_hi = np.array([self._free_dists[j].upper for j in uni], dtype=float)
         self._uniform_log_density = -float(sum(math.log(self._free_dists[j].upper - self._free_dists[j].lower)
                                                for j in uni))
-        self._other_cols = [j for j in range(len(self._free_dists)) if j not in set(uni)]
+        self._other_cols = [j for j in range(len(self._free_dists)) if j not in uni]
 
     # ---- shapes
     @property
