@@ -1,7 +1,7 @@
 """Invert one synthetic measurement (fictional data) and print P(purely magmatic)."""
 from ventsource import infer
-from ventsource.likelihood import Measurement
-from ventsource.priors import load_prior_file
+from ventsource.inference.likelihood import Measurement
+from ventsource.inference.priors import load_prior_file
 
 prior = load_prior_file("priors/arc_basalt.toml")
 measurement = Measurement.from_strings(

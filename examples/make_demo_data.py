@@ -5,13 +5,13 @@
 writes examples/mount_kerrow_synthetic.csv (60 noisy measurements) and
 examples/mount_kerrow_truth.csv (true parameters, episode and noise-free ratios of
 every row), made by ventsource's own forward model from the true parameters in
-ventsource.demo.truth_table plus 15 % log-normal noise (seeded).
+ventsource.workflow.demo.truth_table plus 15 % log-normal noise (seeded).
 """
 import os
 import shutil
 import tempfile
 
-from ventsource.demo import make_demo_data
+from ventsource.workflow.demo import make_demo_data
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 

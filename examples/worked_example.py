@@ -13,12 +13,12 @@ import sys
 
 import pandas as pd
 
-from ventsource.caution import CAUTION
-from ventsource.demo import DEMO_FAST_PRIOR, DEMO_OPTIONS
-from ventsource.figures import run_figures
-from ventsource.measurements import read_measurements
-from ventsource.priors import load_prior_file
-from ventsource.series import run_series
+from ventsource.common.caution import CAUTION
+from ventsource.workflow.demo import DEMO_FAST_PRIOR, DEMO_OPTIONS
+from ventsource.workflow.figures import run_figures
+from ventsource.workflow.measurements import read_measurements
+from ventsource.inference.priors import load_prior_file
+from ventsource.workflow.series import run_series
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 out = sys.argv[1] if len(sys.argv) > 1 else "worked-example-output"

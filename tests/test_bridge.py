@@ -5,9 +5,9 @@ import pytest
 
 from toy_models import (LinearLogForward, ScrubToyForward, ToyPrior, gaussian_evidence,
                         scrub_toy_prior)
-from ventsource.bridge import Transform, bridge_sampling, prior_monte_carlo_evidence, support_bounds
-from ventsource.likelihood import Likelihood, Measurement
-from ventsource.sampler import LogPosterior, sample_posterior
+from ventsource.inference.evidence.bridge import Transform, bridge_sampling, prior_monte_carlo_evidence, support_bounds
+from ventsource.inference.likelihood import Likelihood, Measurement
+from ventsource.inference.engines.emcee_engine import LogPosterior, sample_posterior
 
 A = [0.1, -0.3, 1.0]
 B = [[1.0, 0.5], [0.2, -1.0], [0.7, 0.7]]

@@ -1,7 +1,7 @@
 """Oxygen buffers against Frost (1991), Reviews in Mineralogy 25, Table 1."""
 import numpy as np
 
-from ventsource import buffers
+from ventsource.chemistry import buffers
 
 
 def test_fmq_formula_frost_1991():

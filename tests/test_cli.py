@@ -6,7 +6,7 @@ import sys
 
 import pytest
 
-from ventsource.cli import main
+from ventsource.cli.main import main
 
 
 def run(args, capsys):
@@ -73,7 +73,7 @@ def test_forward_bad_set(extra, needle, capsys):
 
 
 def test_console_script_runs_without_traceback():
-    proc = subprocess.run([sys.executable, "-m", "ventsource.cli", "speciate", "--temperature-c",
+    proc = subprocess.run([sys.executable, "-m", "ventsource.cli.main", "speciate", "--temperature-c",
                            "abc"], capture_output=True, text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr and "not a number" in proc.stderr

@@ -7,8 +7,8 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from ventsource.cli import main
-from ventsource.compare import overlap_coefficient
+from ventsource.cli.main import main
+from ventsource.workflow.compare import overlap_coefficient
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PRIOR = os.path.join(ROOT, "priors", "demo_mount_kerrow_fast.toml")

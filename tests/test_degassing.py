@@ -6,14 +6,14 @@ import os
 import numpy as np
 import pytest
 
-from ventsource import degassing
-from ventsource import solubility_co2, solubility_h2o
-from ventsource.buffers import log10_fo2_from_dfmq
-from ventsource.forward import ForwardModel
-from ventsource.priors import load_prior_file
-from ventsource.solubility_registry import prepare_co2
-from ventsource.speciation import speciate, STATUS_OK
-from ventsource.species import ELEMENT_MATRIX, INDEX, MOLAR_MASS_G_MOL
+from ventsource.magma import degassing
+from ventsource.magma import solubility_co2, solubility_h2o
+from ventsource.chemistry.buffers import log10_fo2_from_dfmq
+from ventsource.forward.model import ForwardModel
+from ventsource.inference.priors import load_prior_file
+from ventsource.magma.solubility_registry import prepare_co2
+from ventsource.chemistry.speciation import speciate, STATUS_OK
+from ventsource.chemistry.species import ELEMENT_MATRIX, INDEX, MOLAR_MASS_G_MOL
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PRIOR_FILES = sorted(glob.glob(os.path.join(ROOT, "priors", "*.toml")))

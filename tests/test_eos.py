@@ -1,4 +1,4 @@
-"""Tests of the pure-gas fugacity coefficients (ventsource.eos).
+"""Tests of the pure-gas fugacity coefficients (ventsource.chemistry.eos).
 
 References outside the project:
 * CoolProp 8.0 reference equations of state, pure-fluid fugacity coefficient
@@ -26,13 +26,13 @@ unit uncertainty of a measured or assumed dFMQ (common practice, no source).
 import numpy as np
 import pytest
 
-from ventsource.eos import (
+from ventsource.chemistry.eos import (
     CRITICAL_PRESSURE_BAR,
     CRITICAL_TEMPERATURE_K,
     fugacity_coefficients,
     log_fugacity_coefficients_kernel,
 )
-from ventsource.species import INDEX, SPECIES
+from ventsource.chemistry.species import INDEX, SPECIES
 
 CP = pytest.importorskip("CoolProp.CoolProp")
 

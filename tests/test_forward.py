@@ -4,10 +4,10 @@ import os
 import numpy as np
 import pytest
 
-from ventsource.errors import InputError
-from ventsource.forward import ForwardModel, STATUS_OK
-from ventsource.priors import load_prior_file
-from ventsource.species import INDEX
+from ventsource.common.errors import InputError
+from ventsource.forward.model import ForwardModel, STATUS_OK
+from ventsource.inference.priors import load_prior_file
+from ventsource.chemistry.species import INDEX
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -93,8 +93,8 @@ def test_scrubbing_parameter_acts_on_ratios():
 def test_gas_exsolved_at_depth_makes_the_gas_co2_richer():
     # common practice, no source: gas accumulated from depth (first, CO2-rich
     # gas of the magma) flushing through lowers SO2/CO2 and H2O/CO2 at the vent
-    from ventsource.forward import ForwardModel
-    from ventsource.priors import load_prior_file
+    from ventsource.forward.model import ForwardModel
+    from ventsource.inference.priors import load_prior_file
     spec = load_prior_file("priors/demo_mount_kerrow.toml")
     model = ForwardModel(spec, ("SO2/CO2", "H2O/CO2"))
     base = dict(pressure_bar=150, temperature_c=1080, dfmq=1, scrubbed_so2=0, h2o_wt=4,
@@ -108,7 +108,7 @@ def test_gas_exsolved_at_depth_makes_the_gas_co2_richer():
 
 def _capacity_spec(ln_a, b_k=0.0):
     import tomllib
-    from ventsource.priors import parse_prior
+    from ventsource.inference.priors import parse_prior
     with open("priors/arc_basalt.toml", "rb") as fh:
         data = tomllib.load(fh)
     data["models"]["sulfur"] = "sulfide_capacity"
@@ -119,7 +119,7 @@ def _capacity_spec(ln_a, b_k=0.0):
 
 
 def test_sulfide_capacity_closes_the_sulfur_balance_and_retains_sulfur():
-    from ventsource.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL
+    from ventsource.chemistry.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL
     # log10 C_S about -4.5 for a basalt near 1200 C (from memory), and 100x more
     low, high = _capacity_spec(np.log(10 ** -4.5)), _capacity_spec(np.log(10 ** -2.5))
     theta = low.full(low.sample(np.random.default_rng(4), 300))
@@ -142,7 +142,7 @@ def test_sulfide_capacity_closes_the_sulfur_balance_and_retains_sulfur():
 
 def test_sulfide_capacity_keys_are_checked():
     import tomllib
-    from ventsource.priors import PriorFileError, parse_prior
+    from ventsource.inference.priors import PriorFileError, parse_prior
     with open("priors/arc_basalt.toml", "rb") as fh:
         data = tomllib.load(fh)
     data["models"]["sulfide_capacity_ln_a"] = -10.0

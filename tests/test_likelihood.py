@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from ventsource.likelihood import Likelihood, Measurement, MeasurementError, log_likelihood, sigma_ln
+from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError, log_likelihood, sigma_ln
 
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 

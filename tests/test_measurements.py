@@ -2,8 +2,8 @@
 import numpy as np
 import pytest
 
-from ventsource.errors import InputError
-from ventsource.measurements import read_measurements
+from ventsource.common.errors import InputError
+from ventsource.workflow.measurements import read_measurements
 
 GOOD = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2,sigma SO2/CO2\n"
         "A-1,2026-03-14T10:20:00Z,0.61,0.21,25.0,\n"

@@ -2,7 +2,7 @@
 import numpy as np
 import pytest
 
-from ventsource import melt
+from ventsource.magma import melt
 
 ZERO = {k: 0.0 for k in melt.REQUIRED_OXIDES}
 

@@ -2,7 +2,7 @@
 import numpy as np
 from scipy import stats
 
-from ventsource.mixture_proposal import StudentTMixture, fit_mixture
+from ventsource.inference.evidence.mixture_proposal import StudentTMixture, fit_mixture
 
 
 def test_single_component_density_matches_scipy_multivariate_t():

@@ -2,8 +2,8 @@
 import numpy as np
 import pytest
 
-from ventsource.modification import PRODUCTS, scrub
-from ventsource.species import ELEMENT_MATRIX, INDEX, N_SPECIES
+from ventsource.ascent.scrubbing import PRODUCTS, scrub
+from ventsource.chemistry.species import ELEMENT_MATRIX, INDEX, N_SPECIES
 
 # Henry's-law solubilities near 25 C, mol/(kg bar): Sander (2015), Atmos. Chem.
 # Phys. 15:4399 (values from memory): SO2 ~1.2-1.4, H2S ~0.1, CO2 ~0.034.

@@ -5,10 +5,10 @@ import os
 import numpy as np
 import pytest
 
-from ventsource import degassing
-from ventsource.forward import ForwardModel
-from ventsource.priors import load_prior_file
-from ventsource.species import ELEMENT_MATRIX, INDEX, MOLAR_MASS_G_MOL
+from ventsource.magma import degassing
+from ventsource.forward.model import ForwardModel
+from ventsource.inference.priors import load_prior_file
+from ventsource.chemistry.species import ELEMENT_MATRIX, INDEX, MOLAR_MASS_G_MOL
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 ARC_PRIORS = [os.path.join(ROOT, "priors", name) for name in ("arc_basalt.toml", "arc_andesite.toml")]

@@ -18,8 +18,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from ventsource.distributions import Beta, Fixed, LogUniform, TruncNormal, Uniform
-from ventsource.priors import (
+from ventsource.inference.priors.distributions import Beta, Fixed, LogUniform, TruncNormal, Uniform
+from ventsource.inference.priors import (
     OPTIONAL_PARAMETERS,
     PHYSICAL_LIMITS,
     REQUIRED_OXIDES,

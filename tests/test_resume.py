@@ -40,7 +40,7 @@ def assert_same_numbers(a, b):
 
 
 def cli(data, out, *extra):
-    return [sys.executable, "-m", "ventsource.cli", "run", data, "--prior", PRIOR, "--out", out,
+    return [sys.executable, "-m", "ventsource.cli.main", "run", data, "--prior", PRIOR, "--out", out,
             *TINY, *extra]
 
 

@@ -6,8 +6,8 @@ from scipy import stats
 
 from toy_models import (LinearLogForward, ScrubToyForward, ToyPrior, gaussian_posterior,
                         scrub_toy_prior)
-from ventsource.likelihood import Likelihood, Measurement
-from ventsource.sampler import SamplerError, sample_posterior
+from ventsource.inference.likelihood import Likelihood, Measurement
+from ventsource.inference.engines.emcee_engine import SamplerError, sample_posterior
 
 A = [0.1, -0.3, 1.0]
 B = [[1.0, 0.5], [0.2, -1.0], [0.7, 0.7]]

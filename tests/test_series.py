@@ -9,9 +9,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from ventsource.caution import CAUTION
-from ventsource.measurements import read_measurements
-from ventsource.series import Progress, row_key, row_seed, run_series
+from ventsource.common.caution import CAUTION
+from ventsource.workflow.measurements import read_measurements
+from ventsource.workflow.series import Progress, row_key, row_seed, run_series
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PRIOR = os.path.join(ROOT, "priors", "demo_mount_kerrow_fast.toml")
@@ -106,8 +106,8 @@ def test_dask_local_cluster_gives_identical_numbers(one_worker, data_file, tmp_p
 
 def test_figures_carry_the_caution(one_worker, data_file, monkeypatch):
     import matplotlib.figure
-    from ventsource.figures import run_figures
-    from ventsource.priors import load_prior_file
+    from ventsource.workflow.figures import run_figures
+    from ventsource.inference.priors import load_prior_file
     texts = []
     orig = matplotlib.figure.Figure.savefig
 
@@ -123,7 +123,7 @@ def test_figures_carry_the_caution(one_worker, data_file, monkeypatch):
 
 
 def test_existing_run_needs_resume(one_worker, data_file):
-    from ventsource.errors import InputError
+    from ventsource.common.errors import InputError
     with pytest.raises(InputError, match="--resume"):
         run_series(read_measurements(data_file), PRIOR, one_worker, seed=5, options=TINY)
     with pytest.raises(InputError, match="different"):
@@ -152,8 +152,8 @@ def test_dask_scheduler_address(one_worker, data_file, tmp_path):
 
 def test_dask_scheduler_unreachable_is_one_line(data_file, tmp_path, monkeypatch):
     pytest.importorskip("distributed")
-    from ventsource import series
-    from ventsource.errors import InputError
+    from ventsource.workflow import series
+    from ventsource.common.errors import InputError
     monkeypatch.setattr(series, "DASK_CONNECT_TIMEOUT_S", 1)
     with pytest.raises(InputError, match="cannot connect"):
         run_series(read_measurements(data_file), PRIOR, str(tmp_path / "x"), options=TINY,

@@ -8,7 +8,7 @@ import emcee
 import numpy as np
 from scipy import stats
 
-from ventsource.snooker_move import VectorSnookerMove
+from ventsource.inference.engines.snooker_move import VectorSnookerMove
 
 
 def test_proposals_match_emcee_in_distribution():

@@ -8,11 +8,11 @@ import math
 import numpy as np
 import pytest
 
-from ventsource import melt
-from ventsource import solubility_co2 as co2
-from ventsource import solubility_h2o as h2o
-from ventsource import solubility_registry as reg
-from ventsource import sulfur_melt as sm
+from ventsource.magma import melt
+from ventsource.magma import solubility_co2 as co2
+from ventsource.magma import solubility_h2o as h2o
+from ventsource.magma import solubility_registry as reg
+from ventsource.magma import sulfur_melt as sm
 
 # Generic MORB-like basalt and high-silica rhyolite (wt%, typical textbook values).
 MORB = {"SiO2": 50.5, "TiO2": 1.5, "Al2O3": 15.5, "FeOt": 9.5, "MgO": 8.0, "CaO": 11.5, "Na2O": 2.6, "K2O": 0.2}

@@ -9,10 +9,10 @@ the same species with a 1 bar reference before comparing.
 import numpy as np
 import pytest
 
-from ventsource.buffers import log10_fo2_from_dfmq
-from ventsource.species import SPECIES
-from ventsource.bench import box_states, cantera_reference_gas
-from ventsource.speciation import speciate, STATUS_OK
+from ventsource.chemistry.buffers import log10_fo2_from_dfmq
+from ventsource.chemistry.species import SPECIES
+from ventsource.bench.speed import box_states, cantera_reference_gas
+from ventsource.chemistry.speciation import speciate, STATUS_OK
 
 ct = pytest.importorskip("cantera")
 

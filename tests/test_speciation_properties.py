@@ -4,9 +4,9 @@ import itertools
 import numpy as np
 from hypothesis import given, settings, strategies as st
 
-from ventsource.buffers import log10_fo2_from_dfmq
-from ventsource.species import ELEMENT_MATRIX, INDEX
-from ventsource.speciation import speciate, STATUS_OK
+from ventsource.chemistry.buffers import log10_fo2_from_dfmq
+from ventsource.chemistry.species import ELEMENT_MATRIX, INDEX
+from ventsource.chemistry.speciation import speciate, STATUS_OK
 
 BOX = dict(temperature_c=(600.0, 1300.0), pressure_bar=(1.0, 5000.0), dfmq=(-4.0, 4.0),
            c_h=(1e-4, 10.0), s_h=(1e-5, 1.0))

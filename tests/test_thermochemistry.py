@@ -10,7 +10,7 @@ polynomials (McBride et al. 2002).
 import numpy as np
 import pytest
 
-from ventsource.thermochemistry import REACTIONS, log10_k
+from ventsource.chemistry.thermochemistry import REACTIONS, log10_k
 
 thermo = pytest.importorskip("thermo")
 chemicals = pytest.importorskip("chemicals")

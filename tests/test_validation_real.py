@@ -26,12 +26,12 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from ventsource.forward import ForwardModel
-from ventsource.inference import infer, prior_monte_carlo_evidence
-from ventsource.likelihood import Likelihood, Measurement
-from ventsource.model_choice import posterior_model_probability
-from ventsource.priors import load_prior_file
-from ventsource.sampler import sample_posterior
+from ventsource.forward.model import ForwardModel
+from ventsource.inference.one_measurement import infer, prior_monte_carlo_evidence
+from ventsource.inference.likelihood import Likelihood, Measurement
+from ventsource.inference.model_choice import posterior_model_probability
+from ventsource.inference.priors import load_prior_file
+from ventsource.inference.engines.emcee_engine import sample_posterior
 
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 PRIOR = Path(__file__).resolve().parents[1] / "priors" / "arc_basalt.toml"

@@ -1,0 +1,5 @@
+"""The gas's path to the surface: scrubbing of SO2 (and H2S) by a
+hydrothermal system, and the observable molar ratios.
+
+May import: ventsource.common, ventsource.chemistry, ventsource.magma.
+"""

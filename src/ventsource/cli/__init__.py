@@ -1,0 +1,4 @@
+"""The `ventsource` command line. Parses options, prints, sets exit codes.
+
+May import: everything.
+"""

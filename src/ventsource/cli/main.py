@@ -1,0 +1,428 @@
+"""Command line: `ventsource <command> ...`.
+
+Every user error is printed as one line on stderr with exit status 2.
+"""
+import argparse
+import json
+import math
+import os
+import sys
+
+from ventsource import __version__
+from ventsource.common.errors import InputError
+
+EXIT_USAGE = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line instead of argparse's usage block
+        raise InputError(f"{self.prog}: {message}")
+
+
+def _number(name):
+    def parse(text):
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{name} '{text}' is not a number") from None
+        if not math.isfinite(value):
+            raise argparse.ArgumentTypeError(f"{name} '{text}' is not finite")
+        return value
+    return parse
+
+
+def _check_range(label, value, bounds, unit=""):
+    lo, hi = bounds
+    if not lo <= value <= hi:
+        raise InputError(f"{label} {value:g}{unit} is outside the supported range "
+                         f"{lo:g} to {hi:g}{unit}")
+
+
+def build_parser():
+    parser = _Parser(prog="ventsource",
+                     description="Bayesian inversion of volcanic gas ratios.")
+    parser.add_argument("--version", action="version", version=f"ventsource {__version__}")
+    sub = parser.add_subparsers(dest="command", parser_class=_Parser)
+
+    sp = sub.add_parser("speciate", help="equilibrium C-O-H-S gas at fixed T, P and fO2")
+    sp.add_argument("--temperature-c", type=_number("--temperature-c"), required=True)
+    sp.add_argument("--pressure-bar", type=_number("--pressure-bar"), required=True)
+    redox = sp.add_mutually_exclusive_group(required=True)
+    redox.add_argument("--dfmq", type=_number("--dfmq"), help="log fO2 offset from FMQ")
+    redox.add_argument("--dnno", type=_number("--dnno"), help="log fO2 offset from NNO")
+    redox.add_argument("--log-fo2", type=_number("--log-fo2"), help="absolute log10 fO2 (bar)")
+    sp.add_argument("--bulk", required=True,
+                    help="molar parent-gas composition, e.g. H2O=90,CO2=8,SO2=2")
+    sp.add_argument("--eos", choices=["real", "ideal"], default="real")
+    sp.add_argument("--json", action="store_true", help="print one JSON object")
+    sp.set_defaults(handler=cmd_speciate)
+
+    fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
+    fp.add_argument("--prior", required=True, help="prior file (TOML) giving melt and model choices")
+    fp.add_argument("--set", nargs="+", default=[], metavar="NAME=VALUE",
+                    help="parameter values, e.g. pressure_bar=200 temperature_c=1100")
+    fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2")
+    fp.add_argument("--json", action="store_true")
+    fp.set_defaults(handler=cmd_forward)
+
+    pp = sub.add_parser("prior-predictive",
+                        help="draw the prior, run the model with and without scrubbing")
+    pp.add_argument("--prior", required=True)
+    pp.add_argument("-n", type=int, default=20000, help="number of prior draws")
+    pp.add_argument("--out", required=True, help="CSV of parameters and ratios")
+    pp.add_argument("--plot", help="PNG of the ratio-ratio plane")
+    pp.add_argument("--data", help="measurement CSV to overlay")
+    pp.add_argument("--x-ratio", default="H2S/SO2")
+    pp.add_argument("--y-ratio", default="SO2/CO2")
+    pp.add_argument("--seed", type=int, default=0)
+    pp.set_defaults(handler=cmd_prior_predictive)
+
+    rp = sub.add_parser("run", help="invert every row of a measurement file")
+    rp.add_argument("data", help="measurement CSV (see README)")
+    rp.add_argument("--prior", required=True)
+    rp.add_argument("--out", required=True, help="output directory")
+    _series_options(rp)
+    rp.add_argument("--corner", nargs="+", default=[], metavar="ID",
+                    help="row identifiers to draw corner plots for")
+    rp.add_argument("--no-figures", action="store_true", help="tables and netCDF only")
+    rp.set_defaults(handler=cmd_run)
+
+    cp = sub.add_parser("compare", help="the same data under several prior files")
+    cp.add_argument("data", help="measurement CSV (see README)")
+    cp.add_argument("--prior", required=True, action="append", help="prior file; give two or more")
+    cp.add_argument("--out", required=True, help="output directory")
+    _series_options(cp)
+    cp.set_defaults(handler=cmd_compare)
+
+    dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted")
+    dp.add_argument("--out", default="demo-output")
+    dp.add_argument("--rows", type=int, default=60)
+    dp.add_argument("--workers", type=int, default=2)
+    dp.add_argument("--resume", action="store_true")
+    dp.set_defaults(handler=cmd_demo)
+
+    bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
+    bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
+    bp.add_argument("--only", choices=["speciation", "forward", "inference", "series"], action="append",
+                    help="run only the named benchmark sections")
+    bp.set_defaults(handler=cmd_bench)
+    return parser
+
+
+def cmd_speciate(args):
+    import numpy as np
+
+    from ventsource.chemistry import buffers
+    from ventsource.common import limits
+    from ventsource.chemistry.bulk_gas import element_totals, parse_bulk
+    from ventsource.chemistry.species import SPECIES
+    from ventsource.chemistry.speciation import speciate, STATUS_OK
+
+    _check_range("--temperature-c", args.temperature_c, limits.TEMPERATURE_C, " C")
+    _check_range("--pressure-bar", args.pressure_bar, limits.PRESSURE_BAR, " bar")
+    t_k = args.temperature_c + 273.15
+    p = args.pressure_bar
+    if args.dfmq is not None:
+        dfmq = args.dfmq
+    elif args.dnno is not None:
+        dfmq = float(buffers.dfmq_from_dnno(args.dnno, t_k, p))
+    else:
+        dfmq = float(buffers.dfmq_from_log10_fo2(args.log_fo2, t_k, p))
+    _check_range("redox offset dFMQ", dfmq, limits.DFMQ)
+    amounts = parse_bulk(args.bulk)
+    h, c, s = element_totals(amounts)
+    log_fo2 = float(buffers.log10_fo2_from_dfmq(dfmq, t_k, p))
+    result = speciate(np.array([t_k]), np.array([p]), np.array([log_fo2]), h, c, s, eos=args.eos)
+    if result.status[0] != STATUS_OK:
+        raise InputError("speciation did not converge for this state; please report it with "
+                         "the command line you used")
+    x = result.mole_fractions[0]
+    phi = result.fugacity_coefficients[0]
+    out = {
+        "temperature_c": args.temperature_c,
+        "pressure_bar": p,
+        "dfmq": dfmq,
+        "dnno": float(buffers.dnno_from_dfmq(dfmq, t_k, p)),
+        "log_fO2": log_fo2,
+        "eos": args.eos,
+        "bulk": amounts,
+        "species": {name: float(x[i]) for i, name in enumerate(SPECIES)},
+        "fugacity_coefficients": {name: float(phi[i]) for i, name in enumerate(SPECIES)},
+        "fugacities_bar": {name: float(x[i] * phi[i] * p) for i, name in enumerate(SPECIES)},
+        "iterations": int(result.iterations[0]),
+    }
+    if args.json:
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"Gas at {args.temperature_c:g} C, {p:g} bar, dFMQ {dfmq:+.2f} "
+          f"(log fO2 {log_fo2:.3f}, dNNO {out['dnno']:+.2f}), {args.eos} gas")
+    print(f"{'species':<8}{'mole fraction':>16}{'mol %':>10}{'phi':>10}{'fugacity bar':>15}")
+    for i in np.argsort(-x):
+        name = SPECIES[i]
+        print(f"{name:<8}{x[i]:>16.6e}{100 * x[i]:>10.4f}{phi[i]:>10.4f}{x[i] * phi[i] * p:>15.6e}")
+    print(f"H2S/SO2 {x[SPECIES.index('H2S')] / x[SPECIES.index('SO2')]:.4g}   "
+          f"SO2/CO2 {x[SPECIES.index('SO2')] / x[SPECIES.index('CO2')]:.4g}   "
+          f"H2O/CO2 {x[SPECIES.index('H2O')] / x[SPECIES.index('CO2')]:.4g}")
+    return 0
+
+
+def _load_prior(path):
+    from ventsource.inference.priors import PriorFileError, load_prior_file
+    try:
+        return load_prior_file(path)
+    except PriorFileError as exc:
+        raise InputError(str(exc)) from None
+
+
+def cmd_forward(args):
+    import numpy as np
+
+    from ventsource.forward.model import ForwardModel, UNITS
+    from ventsource.inference.priors import PHYSICAL_LIMITS
+    from ventsource.chemistry.species import SPECIES
+
+    spec = _load_prior(args.prior)
+    values = {}
+    for item in args.set:
+        if "=" not in item:
+            raise InputError(f"--set: '{item}' is not NAME=VALUE")
+        name, text = item.split("=", 1)
+        if name not in spec.parameter_names:
+            raise InputError(f"--set: unknown parameter '{name}' for {args.prior} "
+                             f"(parameters: {', '.join(spec.parameter_names)})")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputError(f"--set: {name} value '{text}' is not a number") from None
+        lo, hi, lo_open, hi_open = PHYSICAL_LIMITS[name]
+        if not math.isfinite(value) or value < lo or value > hi or (lo_open and value == lo) \
+                or (hi_open and value == hi):
+            raise InputError(f"--set: {name}={text} is unphysical or outside the supported range "
+                             f"{lo:g} to {hi:g} ({UNITS.get(name, '')})")
+        values[name] = value
+    fixed = getattr(spec, "fixed_values", {}) or {}
+    theta = []
+    for name in spec.parameter_names:
+        if name in values:
+            theta.append(values[name])
+        elif name in fixed:
+            theta.append(float(fixed[name]))
+        else:
+            raise InputError(f"--set: missing {name}; every free parameter of {args.prior} needs a "
+                             f"value ({', '.join(n for n in spec.free_names if n not in values)})")
+    ratio_names = tuple(r.strip() for r in args.ratios.split(",") if r.strip())
+    model = ForwardModel(spec, ratio_names)
+    state = model.state(np.array([theta]))
+    status = int(state["status"][0])
+    label = {0: "gas", 1: "no gas: the magma is undersaturated at this pressure",
+             2: "solver failure"}[status]
+    gas = state["gas"][0]
+    out = {
+        "prior": args.prior,
+        "parameters": dict(zip(spec.parameter_names, theta)),
+        "status": label,
+        "saturation_pressure_bar": _finite_or_none(state["saturation_pressure_bar"][0]),
+        "open_path_started_at_cap": bool(state["closed_above_cap"][0]),
+        "gas_wt_fraction": float(state["gas_wt_fraction"][0]),
+        "gas": {n: _finite_or_none(gas[i]) for i, n in enumerate(SPECIES)},
+        "magmatic_gas": {n: _finite_or_none(state["magmatic_gas"][0][i]) for i, n in enumerate(SPECIES)},
+        "melt": {"h2o_wt": float(state["melt_h2o_wt"][0]), "co2_ppm": float(state["melt_co2_ppm"][0]),
+                 "s_ppm": float(state["melt_s_ppm"][0])},
+        "ratios": {r: _finite_or_none(state["ratios"][0][k]) for k, r in enumerate(ratio_names)},
+        "models": dict(spec.models),
+    }
+    if args.json:
+        print(json.dumps(out, indent=2))
+        return 0
+    print(f"Forward model, prior {args.prior}")
+    print("  " + ", ".join(f"{k}={v:g}" for k, v in out["parameters"].items()))
+    print(f"  status: {label}")
+    psat = out["saturation_pressure_bar"]
+    print(f"  saturation pressure: {psat:.1f} bar" if psat is not None else
+          "  saturation pressure: above the model's 20 kbar search cap")
+    if out["open_path_started_at_cap"]:
+        print("  open-system path started at the 20 kbar cap (gas deeper than the cap stays with its magma)")
+    if status == 0:
+        print(f"  gas mass fraction: {out['gas_wt_fraction']:.4g}")
+        print(f"  melt: H2O {out['melt']['h2o_wt']:.3f} wt%, CO2 {out['melt']['co2_ppm']:.1f} ppm, "
+              f"S {out['melt']['s_ppm']:.1f} ppm")
+        print("  gas after scrubbing (mol %): " + ", ".join(
+            f"{n} {100 * gas[i]:.4g}" for i, n in enumerate(SPECIES) if gas[i] > 1e-6))
+        print("  ratios: " + ", ".join(f"{r} {v:.4g}" for r, v in out["ratios"].items()))
+    return 0
+
+
+def _finite_or_none(value):
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def cmd_prior_predictive(args):
+    from ventsource.workflow.prior_predictive import run_prior_predictive
+    if args.n < 1:
+        raise InputError("-n must be at least 1")
+    spec = _load_prior(args.prior)
+    run_prior_predictive(spec, args.n, args.out, plot_path=args.plot, data_path=args.data,
+                         x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
+    print(f"wrote {args.out}" + (f" and {args.plot}" if args.plot else ""))
+    return 0
+
+
+def _series_options(p):
+    p.add_argument("--workers", type=int, default=1, help="local worker processes")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--dask-scheduler", metavar="ADDRESS",
+                       help="run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786")
+    where.add_argument("--dask-local", action="store_true",
+                       help="run on a local dask.distributed cluster of --workers processes")
+    p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--sigma", action="append", default=None, metavar="[RATIO=]VALUE",
+                   help="default relative 1-sigma: a number for every ratio and/or RATIO=VALUE "
+                        "per column, repeatable (else the prior file's likelihood.relative_sigma)")
+    p.add_argument("--target-ess", type=float, default=None,
+                   help="effective sample size the sampler aims for (default: infer's, 2000)")
+    p.add_argument("--max-steps", type=int, default=None, help="cap on MCMC steps per model")
+    p.add_argument("--infer-option", action="append", default=[], metavar="NAME=VALUE",
+                   help="any other option of ventsource.infer, e.g. n_proposal=5000 (repeatable)")
+
+
+def _inference_options(args):
+    opts = {}
+    if args.target_ess is not None:
+        if not args.target_ess > 0:
+            raise InputError("--target-ess must be positive")
+        opts["target_ess"] = float(args.target_ess)
+    if args.max_steps is not None:
+        if args.max_steps < 1:
+            raise InputError("--max-steps must be at least 1")
+        opts["max_steps"] = int(args.max_steps)
+    from ventsource.inference.one_measurement import _DEFAULTS
+    for item in args.infer_option:
+        name, sep, text = item.partition("=")
+        if not sep or name not in _DEFAULTS:
+            raise InputError(f"--infer-option '{item}': expected NAME=VALUE with NAME one of "
+                             f"{', '.join(sorted(_DEFAULTS))}")
+        try:
+            value = json.loads(text)
+        except ValueError:
+            value = text
+        opts[name] = value
+    return opts
+
+
+def _check_series_args(args):
+    if args.workers < 1:
+        raise InputError("--workers must be at least 1")
+
+
+def _default_sigma(args, spec):
+    """--sigma items -> float or {ratio: sigma, "*": fallback} for read_measurements."""
+    fallback = float(spec.likelihood.get("relative_sigma", 0.15))
+    if not args.sigma:
+        return fallback
+    out = {"*": fallback}
+    for item in args.sigma:
+        name, sep, text = item.rpartition("=")
+        try:
+            value = float(text)
+        except ValueError:
+            raise InputError(f"--sigma '{item}': '{text}' is not a number") from None
+        if not (math.isfinite(value) and 0 < value <= 5):
+            raise InputError(f"--sigma '{item}': a relative 1-sigma must be in (0, 5]")
+        out[name.strip() if sep else "*"] = value
+    return out
+
+
+def cmd_run(args):
+    from ventsource.common.caution import CAUTION
+    from ventsource.workflow.measurements import read_measurements
+    from ventsource.workflow.series import run_series
+    _check_series_args(args)
+    spec = _load_prior(args.prior)
+    options = _inference_options(args)
+    series = read_measurements(args.data, default_sigma=_default_sigma(args, spec))  # checks first
+    for rid in args.corner:
+        if rid not in series.ids:
+            raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
+    run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
+               resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
+               dask_local=args.dask_local)
+    figs = []
+    if not args.no_figures:
+        from ventsource.workflow.figures import run_figures
+        figs = run_figures(args.out, series, spec, corner_ids=args.corner, title=spec.name)
+    print(f"results in {args.out}/: summary.csv, hazard.json, rows/*.nc"
+          + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
+    print(f"Caution: {CAUTION}")
+    return 0
+
+
+def cmd_compare(args):
+    from ventsource.common.caution import CAUTION
+    from ventsource.workflow.compare import run_compare
+    from ventsource.workflow.measurements import read_measurements
+    _check_series_args(args)
+    if len(args.prior) < 2:
+        raise InputError("compare: give at least two --prior files")
+    specs = [_load_prior(p) for p in args.prior]
+    names = [s.name for s in specs]
+    if len(set(names)) != len(names):
+        raise InputError(f"compare: prior files share a name ({', '.join(names)}); "
+                         "each needs its own metadata.name")
+    series = {path: read_measurements(args.data, default_sigma=_default_sigma(args, spec))
+              for path, spec in zip(args.prior, specs)}
+    out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
+                      resume=args.resume, options=_inference_options(args),
+                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local)
+    print(f"comparison in {args.out}/: {', '.join(os.path.relpath(p, args.out) for p in out)}")
+    print(f"Caution: {CAUTION}")
+    return 0
+
+
+def cmd_demo(args):
+    import time
+    from ventsource.common.caution import CAUTION
+    from ventsource.workflow.demo import run_demo
+    if args.rows < 2:
+        raise InputError("--rows must be at least 2")
+    if args.workers < 1:
+        raise InputError("--workers must be at least 1")
+    t0 = time.monotonic()
+    out = run_demo(args.out, n_rows=args.rows, workers=args.workers, resume=args.resume)
+    print(f"demo finished in {time.monotonic() - t0:.0f} s; outputs in {os.path.abspath(args.out)}/:")
+    print(f"  measurements.csv (synthetic data), truth.csv (true parameters), summary.csv, "
+          f"hazard.json, rows/*.nc")
+    for f in out["figures"]:
+        print(f"  {os.path.relpath(f, args.out)}")
+    print(f"Caution: {CAUTION}")
+    return 0
+
+
+def cmd_bench(args):
+    from ventsource.bench.speed import run_benchmarks
+    run_benchmarks(quick=args.quick, only=args.only)
+    return 0
+
+
+def main(argv=None):
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if not getattr(args, "handler", None):
+            parser.print_help()
+            return EXIT_USAGE
+        if args.command in ("run", "compare", "demo", "bench"):
+            from ventsource.common.threads import single_thread_environment
+            single_thread_environment()  # before NumPy loads: one BLAS thread per process
+        return args.handler(args)
+    except InputError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,129 @@
+"""The same measurements under several prior files: how much the answer depends on the prior.
+
+Each prior gets its own resumable run in OUT/runs/NAME/. The comparison table
+(OUT/compare.csv) has per row: P(M0) and its error under each prior, the spread
+(max - min) and standard deviation of P(M0) across priors, and for every
+parameter free in two priors the overlap coefficient of their marginal posteriors.
+
+Overlap coefficient OVL = integral of min(f, g) (Inman and Bradley 1989, Commun.
+Statist. Theory Meth. 18, 3851-3874): 1 for identical marginals, 0 for disjoint
+ones; estimated here from histograms on a shared grid.
+"""
+import itertools
+import os
+
+import numpy as np
+import pandas as pd
+
+from ventsource.common.caution import CAUTION
+from ventsource.workflow.series import row_key, run_series
+
+
+def overlap_coefficient(a, b, bins=60):
+    """Histogram estimate of the overlap coefficient of two samples' densities."""
+    a = np.asarray(a, dtype=float).ravel()
+    b = np.asarray(b, dtype=float).ravel()
+    a, b = a[np.isfinite(a)], b[np.isfinite(b)]
+    if a.size == 0 or b.size == 0:
+        return float("nan")
+    lo, hi = min(a.min(), b.min()), max(a.max(), b.max())
+    if hi <= lo:
+        return 1.0
+    edges = np.linspace(lo, hi, bins + 1)
+    fa, _ = np.histogram(a, edges)
+    fb, _ = np.histogram(b, edges)
+    return float(np.minimum(fa / a.size, fb / b.size).sum())
+
+
+def _posterior(out_dir, rid):
+    import arviz as az
+    return az.from_netcdf(os.path.join(out_dir, "rows", f"{row_key(rid)}.nc")).posterior
+
+
+def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume=False,
+                options=None, dask_scheduler=None, dask_local=False, progress_stream=None):
+    """Run every prior, write compare.csv and compare.png; returns their paths."""
+    from ventsource.inference.priors import load_prior_file
+    specs = [load_prior_file(p) for p in prior_paths]
+    names = [s.name for s in specs]
+    run_dirs = {n: os.path.join(out_dir, "runs", n) for n in names}
+    results = {}
+    for path, spec in zip(prior_paths, specs):
+        rows = run_series(series_by_prior[path], path, run_dirs[spec.name], seed=seed, workers=workers,
+                          resume=resume, options=options, dask_scheduler=dask_scheduler,
+                          dask_local=dask_local, progress_stream=progress_stream)
+        results[spec.name] = {r["id"]: r for r in rows}
+    series = series_by_prior[prior_paths[0]]
+    table = compare_table(series.ids, names, specs, results, run_dirs)
+    csv_path = os.path.join(out_dir, "compare.csv")
+    table.to_csv(csv_path + ".part", index=False)
+    os.replace(csv_path + ".part", csv_path)
+    fig_path = os.path.join(out_dir, "compare.png")
+    plot_compare(table, names, fig_path)
+    return [csv_path, fig_path]
+
+
+def compare_table(ids, names, specs, results, run_dirs):
+    free = {s.name: tuple(s.free_names) for s in specs}
+    records = []
+    for rid in ids:
+        rec = {"id": rid, "time": results[names[0]][rid]["time"]}
+        ps = []
+        for n in names:
+            r = results[n][rid]
+            rec[f"p_magmatic [{n}]"] = r.get("p_magmatic")
+            rec[f"p_magmatic_error [{n}]"] = r.get("p_magmatic_error")
+            if r.get("p_magmatic") is not None:
+                ps.append(r["p_magmatic"])
+        rec["p_magmatic_spread"] = float(max(ps) - min(ps)) if len(ps) > 1 else float("nan")
+        rec["p_magmatic_sd"] = float(np.std(ps, ddof=1)) if len(ps) > 1 else float("nan")
+        posts = {n: _posterior(run_dirs[n], rid) for n in names}
+        for a, b in itertools.combinations(names, 2):
+            for par in free[a]:
+                if par in free[b]:
+                    rec[f"overlap {par} [{a} vs {b}]"] = overlap_coefficient(
+                        posts[a][par].values, posts[b][par].values)
+        records.append(rec)
+    return pd.DataFrame(records)
+
+
+def plot_compare(table, names, path):
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    colours = ["#1d3557", "#b5651d", "#6a3d7a", "#457b9d", "#8c564b", "#555555"]
+    markers = ["o", "s", "D", "^", "v", "P"]
+    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(9, 7.5), gridspec_kw={"height_ratios": [3, 2]})
+    x = np.arange(len(table))
+    width = 0.3 / max(len(names) - 1, 1)
+    for k, n in enumerate(names):
+        ax1.errorbar(x + (k - (len(names) - 1) / 2) * width, table[f"p_magmatic [{n}]"].astype(float),
+                     yerr=table[f"p_magmatic_error [{n}]"].astype(float).fillna(0), fmt=markers[k % 6],
+                     ms=4, color=colours[k % 6], capsize=2, label=n)
+    ax1.set_ylim(-0.03, 1.03)
+    ax1.set_ylabel("P(M0) purely magmatic")
+    ax1.set_xticks(x if len(x) <= 30 else x[::max(1, len(x) // 15)])
+    ax1.set_xticklabels(table["id"] if len(x) <= 30 else table["id"][::max(1, len(x) // 15)],
+                        rotation=60, fontsize=7)
+    ax1.legend(fontsize=8, frameon=False)
+    ax1.set_title("Same measurements, different prior files")
+    ov = [c for c in table.columns if c.startswith("overlap ")]
+    if ov:
+        mean_ov = table[ov].astype(float).mean(axis=0)
+        ax2.barh(range(len(ov)), mean_ov.values, color="#8da9c4")
+        ax2.set_yticks(range(len(ov)))
+        pairs = {c[c.index("["):] for c in ov}
+        labels = [c[len("overlap "):c.index(" [")] if len(pairs) == 1 else c[len("overlap "):] for c in ov]
+        ax2.set_yticklabels(labels, fontsize=7)
+        if len(pairs) == 1:
+            ax2.set_title(pairs.pop().strip("[]"), fontsize=9)
+        ax2.set_xlim(0, 1)
+        ax2.set_xlabel("posterior overlap coefficient, mean over rows (1 = same marginal)")
+    else:
+        ax2.text(0.5, 0.5, "no parameter free under two priors", ha="center")
+        ax2.set_axis_off()
+    fig.text(0.01, 0.005, "Caution: " + CAUTION, fontsize=7, color="#333333")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
