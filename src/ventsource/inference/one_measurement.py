@@ -37,7 +37,10 @@ _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, ta
                  max_steps=20000, alpha=0.01, n_prior_draws=2000, scrub_name="scrubbed_so2",
                  n_proposal=20000, model_choice=True, space="unbounded", burn_factor=3.0, min_tau_factor=30.0,
                  chunk=200, max_error_p=0.05, rhat_max=1.05, moves="de", init="importance",
-                 n_init_draws=None, rhat_target=1.05, bridge_proposal="mixture")
+                 n_init_draws=None, rhat_target=1.05, bridge_proposal="mixture",
+                 engine="smc", n_particles=500, n_runs=4, ess_target=0.5, max_moves=30,
+                 smc_rhat_max=1.01)
+ENGINES = ("smc", "emcee")
 
 
 class InferenceError(ValueError):
@@ -78,6 +81,9 @@ class InferenceResult:
     idata: object
     idata_m0: object | None
     runs: dict = field(default_factory=dict)
+    engine: str = "emcee"
+    scrubbed_model_averaged: tuple | None = None  # (q05, median, q95), point mass at 0 of weight P(M0)
+    diagnostics: dict = field(default_factory=dict)
 
     @property
     def log_evidence(self) -> dict:
@@ -126,6 +132,11 @@ class InferenceResult:
                 "p_scrubbed_below_epsilon": self.p_scrubbed_below_epsilon,
                 "p_scrubbed_below_epsilon_error": self.p_scrubbed_below_epsilon_error,
                 "epsilon": self.epsilon, "pi0": self.pi0, "flags": list(self.flags),
+                "engine": self.engine,
+                "scrubbed_so2_model_averaged": (None if self.scrubbed_model_averaged is None else
+                                                dict(zip(("q05", "median", "q95"),
+                                                         self.scrubbed_model_averaged))),
+                "diagnostics": self.diagnostics,
                 "log_evidence": {k: [float(a), float(b)] for k, (a, b) in self.log_evidence.items()},
                 "caution": CAUTION}
 
@@ -140,6 +151,8 @@ def _check_options(options: dict) -> dict:
         raise InferenceError(f"infer: alpha must be in (0, 0.5), got {out['alpha']!r}")
     if not (out["epsilon"] > 0):
         raise InferenceError(f"infer: epsilon must be positive, got {out['epsilon']!r}")
+    if out["engine"] not in ENGINES:
+        raise InferenceError(f"infer: engine must be one of {', '.join(ENGINES)}, got {out['engine']!r}")
     return out
 
 
@@ -256,6 +269,12 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     pi0 = opt["pi0"] if opt["pi0"] is not None else float(getattr(prior, "p_magmatic", 0.5))
     scrub = opt["scrub_name"]
     do_choice = bool(opt["model_choice"])
+    if opt["engine"] == "smc":
+        if not do_choice or scrub not in tuple(prior.free_names):
+            raise InferenceError(f"infer: engine 'smc' integrates {scrub!r} out and needs it free "
+                                 f"in the prior; use engine='emcee' with model_choice=False")
+        from ventsource.inference.smc_inference import infer_smc
+        return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "

@@ -1,0 +1,224 @@
+"""Adaptive tempered Sequential Monte Carlo with MCMC moves, several independent runs.
+
+Targets pi(theta) L(theta)^beta for beta rising from 0 to 1 (Del Moral, Doucet and
+Jasra 2006, J. R. Statist. Soc. B 68:411). The next beta is found by bisection so
+that the conditional effective sample size of the incremental weights is a set
+share of the particles (Zhou, Johansen and Aston 2016, J. Comput. Graph. Stat.
+25:701); every stage resamples (systematic resampling, Kitagawa 1996) and then
+rejuvenates with Metropolis moves in the unbounded space of the prior's support
+(logit for two-sided bounds, log for one-sided ones, with the Jacobian): a random
+walk with the particles' covariance, its scale adapted toward 0.25 acceptance,
+alternating with differential-evolution moves drawn from the population frozen
+at the start of the stage (ter Braak 2006, Statistics and Computing 16:239).
+The number of moves per stage is ceil(log 0.05 / log(1 - acceptance)), capped,
+so that about 95 % of the particles move at least once.
+
+log Z is the sum over stages of the log mean incremental weight. The runs are
+independent (own seeds, own temperature ladders) but advance in lockstep so that
+each likelihood call sees the particles of every run at once: one large batch for
+the forward model, and the same numbers whatever the number of worker processes.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ventsource.inference.engines.de_move import propose_de
+from ventsource.inference.engines.random_walk_move import propose_random_walk
+
+__all__ = ["SMCResult", "SMCError", "tempered_smc"]
+
+
+class SMCError(RuntimeError):
+    """The SMC engine could not run; one-line message."""
+
+
+@dataclass
+class SMCResult:
+    theta: np.ndarray          # (R, N, d) final equally weighted particles, prior space
+    log_like: np.ndarray       # (R, N)
+    aux: dict                  # name -> (R, N, ...) arrays carried with the particles
+    log_z: np.ndarray          # (R,) log evidence per run
+    n_stages: np.ndarray       # (R,)
+    kish_ess_last: np.ndarray  # (R,) Kish ESS of the last stage's incremental weights
+    distinct: np.ndarray       # (R,) distinct particles at the end
+    n_evals: int
+    n_failed: int
+    acceptance: list = field(default_factory=list)  # mean acceptance per stage
+
+    @property
+    def log_z_mean_error(self):
+        """(mean log Z over runs, its standard error from the between-run spread)."""
+        r = self.log_z.size
+        sd = float(np.std(self.log_z, ddof=1)) if r > 1 else float("nan")
+        return float(np.mean(self.log_z)), sd / np.sqrt(r)
+
+
+def _next_beta(beta, log_like, target):
+    """Largest beta' in (beta, 1] whose incremental weights keep ESS >= target * N."""
+    def ess(b):
+        lw = (b - beta) * log_like
+        lw = np.where(np.isfinite(lw), lw, -np.inf)
+        w = np.exp(lw - lw.max())
+        return w.sum() ** 2 / (w * w).sum() / log_like.size
+    if ess(1.0) >= target:
+        return 1.0
+    lo, hi = beta, 1.0
+    for _ in range(50):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if ess(mid) >= target else (lo, mid)
+        if hi - lo < 1e-10:
+            break
+    return max(lo, beta + 1e-12)
+
+
+def _systematic(weights, rng):
+    n = weights.size
+    c = np.cumsum(weights)
+    c[-1] = 1.0
+    return np.searchsorted(c, (rng.random() + np.arange(n)) / n)
+
+
+class _Population:
+    """Particles of all runs with their cached log prior, log likelihood and extras."""
+
+    def __init__(self, u, theta, log_prior, log_like, aux):
+        self.u, self.theta, self.log_prior, self.log_like, self.aux = u, theta, log_prior, log_like, aux
+
+    def take(self, idx):
+        return _Population(self.u[idx], self.theta[idx], self.log_prior[idx], self.log_like[idx],
+                           {k: v[idx] for k, v in self.aux.items()})
+
+    def put(self, mask, other):
+        for name in ("u", "theta", "log_prior", "log_like"):
+            getattr(self, name)[mask] = getattr(other, name)[mask]
+        for k in self.aux:
+            if k in other.aux:
+                self.aux[k][mask] = other.aux[k][mask]
+            else:  # no proposal of this batch was evaluated: only rejected rows
+                assert not np.any(mask & np.isfinite(other.log_like))
+
+
+class _Evaluator:
+    """theta -> (log prior, log likelihood, aux), counting evaluations."""
+
+    def __init__(self, log_prior, log_like, transform):
+        self.log_prior_fn, self.log_like_fn, self.transform = log_prior, log_like, transform
+        self.n_evals = 0
+        self.n_failed = 0
+
+    def __call__(self, u):
+        theta, log_j = self.transform.inverse(u)
+        lp = np.asarray(self.log_prior_fn(theta), dtype=float)
+        ll = np.full(u.shape[0], -np.inf)
+        ok = np.isfinite(lp)
+        aux = {}
+        if ok.any():
+            ll_ok, aux_ok = self.log_like_fn(theta[ok])
+            self.n_evals += int(ok.sum())
+            self.n_failed += int(np.sum(~np.isfinite(ll_ok)))
+            ll[ok] = ll_ok
+            for k, v in aux_ok.items():
+                full = np.full((u.shape[0],) + v.shape[1:], np.nan, dtype=v.dtype if v.dtype.kind == "f" else float)
+                full[ok] = v
+                aux[k] = full
+        return _Population(u, theta, lp + log_j, ll, aux)
+
+
+def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
+                 seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200):
+    """Run n_runs independent tempered SMC samplers in lockstep.
+
+    log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
+    n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
+    the prior's support. Returns SMCResult.
+    """
+    R, N = int(n_runs), int(n_particles)
+    rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(R)]
+    theta0 = np.concatenate([sample_prior(rng, N) for rng in rngs])
+    evaluate = _Evaluator(log_prior, log_like, transform)
+    pop = evaluate(transform.forward(theta0))
+    if not np.isfinite(pop.log_like).any():
+        raise SMCError("no prior draw gives a finite likelihood (the model releases no usable gas)")
+    beta = np.zeros(R)
+    log_z = np.zeros(R)
+    stages = np.zeros(R, dtype=int)
+    kish = np.full(R, float(N))
+    scale = np.full(R, 2.38 / np.sqrt(pop.u.shape[1]))
+    acc_hist = []
+    while np.any(beta < 1.0):
+        active = np.flatnonzero(beta < 1.0)
+        if stages.max() >= max_stages:
+            raise SMCError(f"tempering did not reach beta = 1 in {max_stages} stages")
+        idx = np.arange(R * N)
+        for r in active:
+            sl = slice(r * N, (r + 1) * N)
+            ll = pop.log_like[sl]
+            new = _next_beta(beta[r], ll, ess_target)
+            lw = np.where(np.isfinite(ll), (new - beta[r]) * ll, -np.inf)
+            top = lw.max()
+            w = np.exp(lw - top)
+            log_z[r] += top + np.log(w.mean())
+            kish[r] = w.sum() ** 2 / (w * w).sum()
+            idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
+            beta[r] = new
+            stages[r] += 1
+        pop = pop.take(idx)
+        acc = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves)
+        acc_hist.append(acc)
+    shape = (R, N)
+    distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
+    return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
+                     aux={k: v.reshape(shape + v.shape[1:]) for k, v in pop.aux.items()},
+                     log_z=log_z, n_stages=stages, kish_ess_last=kish, distinct=distinct,
+                     n_evals=evaluate.n_evals, n_failed=evaluate.n_failed, acceptance=acc_hist)
+
+
+def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves):
+    """Metropolis moves of the active runs' particles; returns the mean acceptance."""
+    rows = np.concatenate([np.arange(r * N, (r + 1) * N) for r in active])
+    run_of = np.repeat(active, N)
+    b = beta[run_of]
+    frozen = pop.u[rows].copy()
+    chol = {r: _scaled_cholesky(pop.u[r * N:(r + 1) * N]) for r in active}
+    n_moves, k, acc_mean = min_moves, 0, 0.0
+    while k < n_moves:
+        sub = pop.take(rows)
+        if k % 2 == 0:
+            prop_u = propose_random_walk(sub.u, run_of, chol, scale, rngs)
+        else:
+            prop_u = propose_de(sub.u, run_of, frozen, active, N, rngs)
+        prop = evaluate(prop_u)
+        log_ratio = (prop.log_prior + b * _finite(prop.log_like)) - (sub.log_prior + b * _finite(sub.log_like))
+        log_ratio = np.where(np.isfinite(prop.log_prior) & (np.isfinite(prop.log_like) | (b == 0)),
+                             log_ratio, -np.inf)
+        draws = np.concatenate([rngs[r].random(N) for r in active])
+        accept = np.log(draws) < log_ratio
+        sub.put(accept, prop)
+        for name in ("u", "theta", "log_prior", "log_like"):
+            getattr(pop, name)[rows] = getattr(sub, name)
+        for key in pop.aux:
+            pop.aux[key][rows] = sub.aux[key]
+        rates = np.array([accept[run_of == r].mean() for r in active])
+        if k % 2 == 0:  # adapt the random-walk scale toward 0.25 acceptance
+            scale[active] *= np.exp(rates - 0.25)
+        acc_mean = float(rates.mean())
+        k += 1
+        if k == 2:
+            a = max(min(acc_mean, 0.99), 1e-3)
+            n_moves = int(min(max_moves, max(min_moves, np.ceil(np.log(0.05) / np.log1p(-a)))))
+    return acc_mean
+
+
+def _finite(x):
+    return np.where(np.isfinite(x), x, -1e300)
+
+
+def _scaled_cholesky(u):
+    cov = np.cov(u, rowvar=False).reshape(u.shape[1], u.shape[1])
+    cov += 1e-9 * np.eye(u.shape[1]) * max(1.0, float(np.trace(cov)) / u.shape[1])
+    try:
+        return np.linalg.cholesky(cov)
+    except np.linalg.LinAlgError:
+        return np.diag(np.sqrt(np.maximum(np.diag(cov), 1e-12)))
