@@ -4,11 +4,11 @@ Laws (ids are stable; the registry maps names to them):
   LAW_SHISHKINA2014 = 0  Shishkina et al. (2014), Chem. Geol. 388:112-129, basaltic melts:
                          ln CO2(ppm) = 1.150 ln P(MPa) + 6.71 Pi* - 1.345, with
                          Pi* = (Ca + 0.8 K + 0.7 Na + 0.4 Mg + 0.4 Fe) / (Si + Al) in cation
-                         fractions. Coefficients FROM MEMORY. P is taken as the CO2 partial
+                         fractions. Coefficients from memory, recalled twice. P is taken as the CO2 partial
                          pressure (the paper's fit is to CO2-dominated fluid).
   LAW_LIU2005       = 1  Liu, Zhang & Behrens (2005), J. Volcanol. Geotherm. Res. 143:219-235,
                          rhyolite: CO2(ppm) = Pc (5668 - 55.99 Pw)/T + Pc (0.4133 Pw^0.5
-                         + 2.041e-3 Pw^1.5), Pw, Pc partial pressures in MPa. FROM MEMORY.
+                         + 2.041e-3 Pw^1.5), Pw, Pc partial pressures in MPa. From memory, recalled twice.
 
 Kernel signature (all laws):
   co2_ppm(law_id, params, p_h2o_bar, p_co2_bar, f_h2o_bar, f_co2_bar, pressure_bar, temperature_k)
@@ -23,8 +23,10 @@ from ventsource.magma import melt as _melt
 LAW_SHISHKINA2014 = 0
 LAW_LIU2005 = 1
 
-SHISHKINA2014 = (1.150, 6.71, -1.345)  # from memory
-LIU2005_CO2 = (5668.0, -55.99, 0.4133, 2.041e-3)  # from memory
+# Neither CO2 law is checked against experiments yet: no open experiment with a full melt
+# composition and measured CO2 could be read (README.md, solubility check table).
+SHISHKINA2014 = (1.150, 6.71, -1.345)  # from memory, recalled twice
+LIU2005_CO2 = (5668.0, -55.99, 0.4133, 2.041e-3)  # from memory, recalled twice
 
 _BAR_PER_MPA = 10.0
 
