@@ -9,6 +9,7 @@ neither side's clock; absolute times still vary between machines, the ratios
 are what to compare between runs.
 """
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -134,7 +135,11 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "series")
+SECTIONS = ("speciation", "forward", "inference", "emcee", "series")
+
+
+def _prior_path(name):
+    return Path(__file__).resolve().parents[3] / "priors" / f"{name}.toml"
 
 
 def run_benchmarks(quick=False, only=None):
@@ -145,6 +150,10 @@ def run_benchmarks(quick=False, only=None):
     if "forward" in sections:
         bench_forward(cantera, quick=quick)
     if "inference" in sections:
+        from ventsource.bench.smc import bench_smc
+        from ventsource.inference.priors import load_prior_file
+        bench_smc(load_prior_file(_prior_path("arc_basalt")), quick=quick)
+    if "emcee" in sections:
         from ventsource.bench.inference import bench_inference
         bench_inference(quick=quick)
     if "series" in sections:

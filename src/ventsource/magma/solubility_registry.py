@@ -25,10 +25,12 @@ SULFUR_OPTIONS = {
 LAW_NOTES = {
     ("h2o", "moore1998"): ("coefficients from memory, squared-mole-fraction form ln X^2 (c=1.171, d=-14.21); "
                            "passes magnitude checks (MORB ~3.3 wt% at 1200 C/100 MPa, rhyolite ~6.0 wt% at "
-                           "850 C/200 MPa); not checked against the paper's own table; calibrated to 3 kbar"),
-    ("h2o", "liu2005"): "coefficients from memory; rhyolite only; matches 5.5-6.0 wt% at 850 C, 200 MPa",
-    ("co2", "shishkina2014"): "coefficients from memory; basaltic melts",
-    ("co2", "liu2005"): "coefficients from memory; rhyolite only",
+                           "850 C/200 MPa); within 8 % of pure-H2O experiments on haplogranite and albite "
+                           "(tests/test_solubility_experiments.py); calibrated to 3 kbar"),
+    ("h2o", "liu2005"): ("coefficients from memory; rhyolite only; within 9 % of pure-H2O experiments on "
+                          "haplogranite and pantellerite (tests/test_solubility_experiments.py)"),
+    ("co2", "shishkina2014"): "coefficients from memory; basaltic melts; not yet checked against experiments",
+    ("co2", "liu2005"): "coefficients from memory; rhyolite only; not yet checked against experiments",
 }
 
 
