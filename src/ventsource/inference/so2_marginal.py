@@ -39,11 +39,21 @@ N_COARSE, N_FINE = 64, 96  # grid points of the general path
 WINDOW_CELLS = 6           # the fine grid spans this many coarse cells each side of the peak
 
 
+def log_ratios_of(gas, top, bottom):
+    """ln of molar ratios (n, m) from weight matrices; -inf/NaN where undefined."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.log(gas @ top) - np.log(gas @ bottom)
+
+
 def _log_diff_ndtr(alpha, beta):
     """log(Phi(beta) - Phi(alpha)) for alpha <= beta, accurate in both tails."""
-    upper = alpha > 0.0  # both far right: use the survival side Phi(-alpha) - Phi(-beta)
-    hi = np.where(upper, special.log_ndtr(-alpha), special.log_ndtr(beta))
-    lo = np.where(upper, special.log_ndtr(-beta), special.log_ndtr(alpha))
+    alpha, beta = np.broadcast_arrays(np.asarray(alpha, float), np.asarray(beta, float))
+    hi = special.log_ndtr(beta)
+    lo = special.log_ndtr(alpha)
+    upper = alpha > 0.0  # both far right: the survival side Phi(-alpha) - Phi(-beta) keeps precision
+    if np.any(upper):
+        hi = np.where(upper, special.log_ndtr(-np.where(upper, alpha, 0.0)), hi)
+        lo = np.where(upper, special.log_ndtr(-np.where(upper, beta, 0.0)), lo)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = hi + np.log1p(-np.exp(lo - hi))
     return np.where(beta > alpha, out, -np.inf)
@@ -85,6 +95,10 @@ class ScrubbingMarginal:
         if self.fast:
             s = likelihood.s
             self.precision = float(np.sum(self.k ** 2 / s ** 2))
+            self._inv_var = 1.0 / s ** 2
+            self._k_inv_var = self.k / s ** 2
+            self._all_exact_normal = not np.any(likelihood.c)
+            self._ll0_const = float(-np.sum(np.log(s)) - 0.5 * s.size * np.log(2.0 * np.pi))
         self.uniform = isinstance(distribution, Uniform)
         self.gl_x, self.gl_w = np.polynomial.legendre.leggauss(N_GAUSS)
 
@@ -109,22 +123,29 @@ class ScrubbingMarginal:
             out = self.dist.log_pdf(s) + v
         return np.where(np.isnan(out), -np.inf, out)
 
-    def log_likelihoods(self, gas, h2s_return=1.0):
-        """(log L0, log L1), each (n,), for magmatic gas (n, n_species) after any H2S change."""
+    def log_likelihoods(self, gas, h2s_return=1.0, log_ratios=None):
+        """(log L0, log L1), each (n,), for magmatic gas (n, n_species) after any H2S change.
+
+        log_ratios: optional (n, n_forward_ratios) ln of the forward model's ratios of the
+        same gas (computed once and shared by the rows of a window; fast path only)."""
         if self.fast:
-            return self._fast(gas)
+            if log_ratios is None:
+                log_ratios = log_ratios_of(gas, self.top, self.bottom)
+            else:
+                log_ratios = log_ratios[:, self.lik._cols]
+            return self._fast(log_ratios)
         return self._general(gas, h2s_return)[:2]
 
     # ---- fast path
-    def _fast(self, gas):
+    def _fast(self, mu):
         lik = self.lik
-        with np.errstate(divide="ignore", invalid="ignore"):
-            mu = np.log(gas @ self.top) - np.log(gas @ self.bottom)
         bad = ~np.isfinite(mu).all(axis=1)
-        mu = np.where(np.isfinite(mu), mu, 0.0)
-        ll0 = self._pointwise_from_log(mu).sum(axis=1)
-        resid = lik.y[None, :] - mu
-        b = (resid * (self.k / lik.s ** 2)[None, :]).sum(axis=1)
+        resid = lik.y[None, :] - np.where(bad[:, None], 0.0, mu)
+        if self._all_exact_normal:
+            ll0 = self._ll0_const - 0.5 * np.einsum("ij,ij,j->i", resid, resid, self._inv_var)
+        else:
+            ll0 = self._pointwise_from_log(lik.y[None, :] - resid).sum(axis=1)
+        b = resid @ self._k_inv_var
         tau = 1.0 / np.sqrt(self.precision)
         m = b / self.precision
         log_avg = self._log_gauss_avg_prior(m, tau)

@@ -1,0 +1,136 @@
+"""Window model: rows that share one magma source.
+
+Rows of a window share the magma's parameters psi (temperature, redox, bulk
+volatiles, sulfur content and partitioning, and every other parameter of the prior
+file except the per-row ones); each row i keeps its own degassing pressure P_i and
+its own scrubbed fraction s_i, which is exactly 0 with prior probability pi0.
+Given psi the rows are independent, so
+
+    L(psi) = prod_i integral p(P) [pi0 L0_i(psi, P) + (1 - pi0) L1_i(psi, P)] dP,
+
+with L1_i the scrubbed fraction integrated out (so2_marginal.py) and the pressure
+integral done by quadrature: one batch of forward solves on a grid of pressures
+(uniform in ln P, which resolves the fast change of the gas at low pressure) serves
+every row; the gas composition is interpolated linearly in ln(mole fraction)
+between the solved pressures onto a finer quadrature grid. The cost per draw of
+psi does not grow with the number of rows beyond the cheap per-row likelihoods.
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy import special
+
+from ventsource.ascent import observables
+from ventsource.inference.so2_marginal import ScrubbingMarginal, log_ratios_of
+
+PER_ROW = ("pressure_bar", "scrubbed_so2")
+N_SOLVE = 24   # forward solves per draw of psi
+REFINE = 3     # quadrature points per solved interval
+
+
+def pressure_grid(distribution, n_solve=N_SOLVE, refine=REFINE):
+    """(solve nodes, quadrature nodes, log quadrature weights) in bar for a pressure prior."""
+    lo, hi = float(distribution.lower), float(distribution.upper)
+    ln_solve = np.linspace(np.log(lo), np.log(hi), n_solve)
+    ln_quad = np.linspace(np.log(lo), np.log(hi), (n_solve - 1) * refine + 1)
+    w = np.full(ln_quad.size, ln_quad[1] - ln_quad[0])
+    w[0] *= 0.5
+    w[-1] *= 0.5
+    p_quad = np.exp(ln_quad)
+    with np.errstate(divide="ignore"):
+        log_w = np.log(w) + ln_quad + distribution.log_pdf(p_quad)  # dP = P d ln P
+    log_w -= special.logsumexp(log_w)  # the prior's own normalisation on the grid
+    return np.exp(ln_solve), p_quad, log_w
+
+
+def interpolate_gas(gas_solve, n_solve, refine):
+    """(n, n_solve, s) gas -> (n, (n_solve-1)*refine+1, s), linear in ln x between nodes."""
+    with np.errstate(divide="ignore"):
+        lx = np.log(gas_solve)
+    frac = np.arange(refine) / refine
+    left, right = lx[:, :-1, None, :], lx[:, 1:, None, :]
+    mid = (left * (1.0 - frac)[None, None, :, None] + right * frac[None, None, :, None])
+    n, k, _, s = mid.shape
+    out = np.concatenate([mid.reshape(n, k * refine, s), lx[:, -1:, :]], axis=1)
+    return np.exp(out)
+
+
+def _log_sum_weighted(log_f, log_w):
+    """log sum_k exp(log_f[..., k] + log_w[k]) (scipy's logsumexp without its overhead)."""
+    x = log_f + log_w
+    top = np.max(x, axis=-1, keepdims=True)
+    top = np.where(np.isfinite(top), top, 0.0)
+    with np.errstate(divide="ignore"):
+        return np.log(np.sum(np.exp(x - top), axis=-1)) + top[..., 0]
+
+
+class WindowTarget:
+    """log L(psi) of a window and the per-row log Z0_i(psi), log Z1_i(psi)."""
+
+    def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE):
+        for name in PER_ROW:
+            if name not in prior.free_names:
+                raise ValueError(f"window model: {name} must be a free parameter of the prior")
+        self.prior = prior
+        self.shared_prior = prior.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower)
+                                             ).with_fixed("scrubbed_so2", 0.0)
+        self.forward = forward
+        self.pi0 = float(pi0)
+        self.n_solve, self.refine = n_solve, refine
+        self.p_solve, self.p_quad, self.log_w = pressure_grid(prior.distributions["pressure_bar"],
+                                                              n_solve, refine)
+        dist_s = prior.distributions["scrubbed_so2"]
+        self.marginals = [ScrubbingMarginal(lik, forward.ratio_names, forward.product, dist_s)
+                          for lik in likelihoods]
+        self._weights = observables.weight_matrices(forward.ratio_names)
+        names = tuple(self.shared_prior.parameter_names)
+        self._j_p = names.index("pressure_bar")
+        self._j_h = names.index("h2s_return") if "h2s_return" in names else None
+
+    @property
+    def n_rows(self):
+        return len(self.marginals)
+
+    def gas_on_grid(self, psi):
+        """(gas (n, K, species) on the quadrature grid, h2s_return (n,) or 1.0)."""
+        full = self.shared_prior.full(psi)
+        n = full.shape[0]
+        rep = np.repeat(full, self.n_solve, axis=0)
+        rep[:, self._j_p] = np.tile(self.p_solve, n)
+        st = self.forward.state(rep, saturation=self.forward.style == "open")
+        gas = np.where((st["status"] == 0)[:, None], st["gas"], np.nan)
+        gas = interpolate_gas(gas.reshape(n, self.n_solve, -1), self.n_solve, self.refine)
+        h2s = full[:, self._j_h] if self._j_h is not None else 1.0
+        return gas, h2s
+
+    def row_log_likelihoods(self, gas, h2s):
+        """(ll0, ll1), each (rows, n, K): per row and grid point, NaN gas -> -inf."""
+        n, K, s = gas.shape
+        flat = gas.reshape(n * K, s)
+        bad = ~np.isfinite(flat).all(axis=1)
+        flat = np.where(bad[:, None], 1.0, flat)
+        h = np.repeat(h2s, K) if np.ndim(h2s) else h2s
+        log_ratios = log_ratios_of(flat, *self._weights)  # shared by every row
+        out0, out1 = [], []
+        for marg in self.marginals:
+            ll0, ll1 = marg.log_likelihoods(flat, h, log_ratios=log_ratios)
+            ll0[bad] = -np.inf
+            ll1[bad] = -np.inf
+            out0.append(ll0.reshape(n, K))
+            out1.append(ll1.reshape(n, K))
+        return np.stack(out0), np.stack(out1)
+
+    def row_evidences(self, psi):
+        """(log Z0, log Z1), each (n, rows): pressure integrated out for each row."""
+        gas, h2s = self.gas_on_grid(psi)
+        ll0, ll1 = self.row_log_likelihoods(gas, h2s)
+        return _log_sum_weighted(ll0, self.log_w).T, _log_sum_weighted(ll1, self.log_w).T
+
+    def row_mixture(self, lz0, lz1):
+        return np.logaddexp(np.log(self.pi0) + lz0, np.log1p(-self.pi0) + lz1)
+
+    def __call__(self, psi):
+        lz0, lz1 = self.row_evidences(psi)
+        mix = self.row_mixture(lz0, lz1)
+        total = mix.sum(axis=1)
+        return np.where(np.isnan(total), -np.inf, total), {"lz0": lz0, "lz1": lz1}
