@@ -277,12 +277,20 @@ def _series_options(p):
                        help="run on a local dask.distributed cluster of --workers processes")
     p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
     p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--window", default=None, metavar="SPAN|1|column",
+                   help="rows that share one magma source: a time span such as 30d, 12h or 2w "
+                        "(consecutive windows from the first row), 'column' (the file's window "
+                        "column), or 1 (every row alone); default: the file's window column if "
+                        "it has one, else 1")
+    p.add_argument("--engine", choices=["smc", "emcee"], default=None,
+                   help="sampling engine for row-by-row inversion (default: smc)")
     p.add_argument("--sigma", action="append", default=None, metavar="[RATIO=]VALUE",
                    help="default relative 1-sigma: a number for every ratio and/or RATIO=VALUE "
                         "per column, repeatable (else the prior file's likelihood.relative_sigma)")
     p.add_argument("--target-ess", type=float, default=None,
-                   help="effective sample size the sampler aims for (default: infer's, 2000)")
-    p.add_argument("--max-steps", type=int, default=None, help="cap on MCMC steps per model")
+                   help="emcee engine only: effective sample size it aims for (default 1000)")
+    p.add_argument("--max-steps", type=int, default=None,
+                   help="emcee engine only: cap on MCMC steps per model (default 20000)")
     p.add_argument("--infer-option", action="append", default=[], metavar="NAME=VALUE",
                    help="any other option of ventsource.infer, e.g. n_proposal=5000 (repeatable)")
 
@@ -308,7 +316,14 @@ def _inference_options(args):
         except ValueError:
             value = text
         opts[name] = value
+    if getattr(args, "engine", None):
+        opts["engine"] = args.engine
     return opts
+
+
+def _window_option(args):
+    from ventsource.workflow.windows import parse_window_option
+    return parse_window_option(args.window) if args.window is not None else None
 
 
 def _check_series_args(args):
@@ -345,9 +360,10 @@ def cmd_run(args):
     for rid in args.corner:
         if rid not in series.ids:
             raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
+    window = _window_option(args)
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
-               dask_local=args.dask_local)
+               dask_local=args.dask_local, window=window)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
@@ -374,7 +390,8 @@ def cmd_compare(args):
               for path, spec in zip(args.prior, specs)}
     out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                       resume=args.resume, options=_inference_options(args),
-                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local)
+                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
+                      window=_window_option(args))
     print(f"comparison in {args.out}/: {', '.join(os.path.relpath(p, args.out) for p in out)}")
     print(f"Caution: {CAUTION}")
     return 0

@@ -24,6 +24,7 @@ from ventsource.inference.likelihood import Measurement
 from ventsource.ascent.observables import ratio_weights
 
 SIGMA_PREFIX = "sigma "
+WINDOW_COLUMN = "window"  # optional: rows with the same label share one magma source
 
 
 @dataclass
@@ -33,6 +34,7 @@ class MeasurementSeries:
     times: list           # numpy datetime64[s] per row (UTC)
     ratio_names: tuple
     measurements: list    # likelihood.Measurement per row
+    windows: list | None = None  # the optional `window` column: the user's own periods
 
     def __len__(self):
         return len(self.ids)
@@ -123,7 +125,7 @@ def read_measurements(path, default_sigma=0.15):
         seen.add(col)
     ratio_cols, sigma_cols = [], {}
     for col in header:
-        if col in ("id", "time") or col == "":
+        if col in ("id", "time", WINDOW_COLUMN) or col == "":
             if col == "":
                 _fail(path, 1, col, "empty column name")
             continue
@@ -146,7 +148,7 @@ def read_measurements(path, default_sigma=0.15):
             _fail(path, 1, SIGMA_PREFIX + name, f"uncertainty column for '{name}', which is not a ratio column")
     if len(rows) < 2:
         raise InputError(f"{path}: no data rows under the header")
-    ids, times, ms = [], [], []
+    ids, times, ms, windows = [], [], [], []
     for r, cells in enumerate(rows[1:], start=2):
         if not any(c.strip() for c in cells):
             continue
@@ -180,6 +182,12 @@ def read_measurements(path, default_sigma=0.15):
         ids.append(row_id)
         times.append(t)
         ms.append(Measurement(ratio_cols, values, sigmas, flags, label=row_id))
+        if WINDOW_COLUMN in header:
+            label = cells[header.index(WINDOW_COLUMN)].strip()
+            if not label:
+                _fail(path, r, WINDOW_COLUMN, "empty window label (give every row one)")
+            windows.append(label)
     if not ids:
         raise InputError(f"{path}: no data rows under the header")
-    return MeasurementSeries(str(path), ids, times, tuple(ratio_cols), ms)
+    return MeasurementSeries(str(path), ids, times, tuple(ratio_cols), ms,
+                             windows if WINDOW_COLUMN in header else None)

@@ -26,6 +26,8 @@ import numpy as np
 
 from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
+from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
+                                         window_summary_columns)
 
 SUMMARY_NAME = "summary.csv"
 RUNNING_NAME = "summary.running.csv"
@@ -48,7 +50,8 @@ def file_sha256(path):
 
 def summary_columns(free_names, ratio_names):
     cols = ["id", "time", "p_magmatic", "p_magmatic_error", "p_scrubbed_below_epsilon",
-            "p_scrubbed_below_epsilon_error", "flags", "seed"]
+            "p_scrubbed_below_epsilon_error", "flags", "seed",
+            "scrubbed_so2_avg_q05", "scrubbed_so2_avg_median", "scrubbed_so2_avg_q95"]
     for name in free_names:
         cols += [f"{name}_median", f"{name}_q05", f"{name}_q95", f"{name}_rhat", f"{name}_ess_bulk"]
     for r in ratio_names:  # posterior predictive of each measured ratio (for the figures)
@@ -103,6 +106,9 @@ def _invert_row(args):
            "p_scrubbed_below_epsilon": _num(result.p_scrubbed_below_epsilon),
            "p_scrubbed_below_epsilon_error": _num(result.p_scrubbed_below_epsilon_error),
            "flags": ";".join(result.flags), "seed": int(seed)}
+    if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
+        (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
+         row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
     for name in spec.free_names:
         s = summary.loc[name]
         row[f"{name}_median"] = float(s["median"])
@@ -118,11 +124,15 @@ def _invert_row(args):
         if x.size:
             q = np.quantile(x, [0.05, 0.5, 0.95])
             row[f"pp {name}_q05"], row[f"pp {name}_median"], row[f"pp {name}_q95"] = map(float, q)
+    write_row_json(out_dir, key, row)
+    return row
+
+
+def write_row_json(out_dir, key, row):
     js = os.path.join(out_dir, "rows", f"{key}.json")
     with open(js + ".part", "w") as fh:
         json.dump(row, fh)
     os.replace(js + ".part", js)
-    return row
 
 
 def _dask_client(scheduler, local_workers):
@@ -197,7 +207,8 @@ def _read_done(out_dir, ids):
 
 
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
-               dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None):
+               dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
+               window=None):
     """Invert every row; returns the list of summary rows in file order.
 
     workers: local processes (or LocalCluster workers with dask_local);
@@ -219,14 +230,14 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     run_path = os.path.join(out_dir, "run.json")
     settings = {"data": os.path.abspath(series.path), "data_sha256": file_sha256(series.path),
                 "prior": os.path.abspath(str(prior_path)), "prior_sha256": file_sha256(prior_path),
-                "seed": int(seed), "options": options}
+                "seed": int(seed), "options": options, "window": window}
     if os.path.exists(run_path):
         with open(run_path) as fh:
             old = json.load(fh)
         if not resume:
             raise InputError(f"{out_dir}: holds an earlier run; use --resume to continue it or "
                              "choose another --out")
-        for k in ("data_sha256", "prior_sha256", "seed", "options"):
+        for k in ("data_sha256", "prior_sha256", "seed", "options", "window"):
             if old.get(k) != settings[k]:
                 raise InputError(f"{out_dir}: --resume with a different {k.replace('_sha256', ' file')} "
                                  f"than the run there; choose another --out")
@@ -236,16 +247,32 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
             os.remove(p)  # re-written complete at the end
     _write_json(run_path, dict(settings, status="running", package_version=__version__,
                                caution=CAUTION))
-    cols = summary_columns(spec.free_names, series.ratio_names)
-    done = _read_done(out_dir, series.ids) if resume else {}
+    groups = assign_windows(series, window)
+    if groups is None:
+        cols = summary_columns(spec.free_names, series.ratio_names)
+        done = _read_done(out_dir, series.ids) if resume else {}
+        todo = [(str(prior_path), m, rid, _time_text(t), row_seed(seed, rid), options, out_dir)
+                for rid, t, m in zip(series.ids, series.times, series.measurements) if rid not in done]
+        work = _invert_row
+    else:
+        os.makedirs(os.path.join(out_dir, "windows"), exist_ok=True)
+        cols = window_summary_columns(series.ratio_names)
+        done = read_done_windows(out_dir, groups, series.ids) if resume else {}
+        todo = [(str(prior_path), label, [series.ids[i] for i in idx],
+                 [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
+                 row_seed(seed, f"window-{label}"), options, out_dir)
+                for label, idx in groups if series.ids[idx[0]] not in done]
+        work = invert_window
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
-    todo = [(str(prior_path), m, rid, _time_text(t), row_seed(seed, rid), options, out_dir)
-            for rid, t, m in zip(series.ids, series.times, series.measurements) if rid not in done]
     bar = Progress(len(series.ids), len(done), stream=progress_stream)
     bar.show("resumed" if done else "")
 
-    def record(row):
+    def record(result):
+        for row in (result if isinstance(result, list) else [result]):
+            record_row(row)
+
+    def record_row(row):
         with open(running, "a") as fh:
             fh.write(",".join(_csv_cell(_fmt(row.get(c))) for c in cols) + "\n")
             fh.flush()
@@ -258,7 +285,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
         from dask.distributed import as_completed as dask_completed
         client, cluster = _dask_client(dask_scheduler, workers)
         try:
-            futures = [client.submit(_invert_row, job, pure=False) for job in todo]
+            futures = [client.submit(work, job, pure=False) for job in todo]
             for fut in dask_completed(futures):
                 record(fut.result())
         finally:
@@ -267,12 +294,12 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
                 cluster.close()
     elif todo and workers > 1:
         with ProcessPoolExecutor(max_workers=workers) as pool:
-            futures = [pool.submit(_invert_row, job) for job in todo]
+            futures = [pool.submit(work, job) for job in todo]
             for fut in as_completed(futures):
                 record(fut.result())
     else:
         for job in todo:
-            record(_invert_row(job))
+            record(work(job))
     rows = [done[i] for i in series.ids]
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, seed, options, model_note)
@@ -302,6 +329,9 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
                   "p_magmatic_error": r.get("p_magmatic_error"),
                   "p_scrubbed_below_epsilon": r.get("p_scrubbed_below_epsilon"),
                   "p_scrubbed_below_epsilon_error": r.get("p_scrubbed_below_epsilon_error"),
+                  "scrubbed_so2_model_averaged": {q: r.get(f"scrubbed_so2_avg_{q}")
+                                                  for q in ("q05", "median", "q95")},
+                  "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
                   "flags": [f for f in r.get("flags", "").split(";") if f], "seed": r.get("seed")}
                  for r in rows],
     }

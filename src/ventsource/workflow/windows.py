@@ -1,0 +1,134 @@
+"""Windows of a series: which rows share one magma source, and their inversion.
+
+A window is chosen by the user: `--window 30d` (consecutive spans of time from the
+first measurement: s, min, h, d, w), a `window` column in the measurement file (the
+user's own periods), or `--window 1` (every row alone, the row-by-row inversion).
+Each window's rows are inverted together (ventsource.inference.window_inference);
+each row's summary is written as rows/KEY.json and the shared posterior as
+windows/WKEY.nc, so an interrupted run keeps every finished window.
+"""
+from __future__ import annotations
+
+import json
+import os
+import re
+import warnings
+
+import numpy as np
+
+from ventsource.common.errors import InputError
+
+_UNITS_S = {"s": 1, "min": 60, "h": 3600, "d": 86400, "w": 7 * 86400}
+WINDOW_SUMMARY_EXTRA = ("window", "log10_bf_one_source")
+
+
+def parse_window_option(text):
+    """'1' -> "rows" (row by row); '30d' -> seconds; 'column' -> the file's window column."""
+    s = str(text).strip()
+    if s == "1":
+        return "rows"
+    if s == "column":
+        return "column"
+    m = re.fullmatch(r"(\d+(?:\.\d+)?)\s*(s|min|h|d|w)", s)
+    if not m or float(m.group(1)) <= 0:
+        raise InputError(f"--window '{text}': give 1 (row by row), a time span such as 30d, 12h, "
+                         f"2w, or 'column' (the measurement file's window column)")
+    return float(m.group(1)) * _UNITS_S[m.group(2)]
+
+
+def assign_windows(series, window):
+    """Ordered list of (window label, [row indices]) or None for row-by-row."""
+    if window == "rows" or (window is None and series.windows is None):
+        return None
+    if window == "column" or (window is None and series.windows is not None):
+        if series.windows is None:
+            raise InputError(f"{series.path}: --window column needs a 'window' column in the file")
+        labels = series.windows
+    else:
+        t = np.array(series.times, dtype="datetime64[s]").astype(np.int64)
+        k = np.floor((t - t.min()) / window).astype(int)
+        labels = [f"w{v:04d}" for v in k]
+    groups = {}
+    for i, lab in enumerate(labels):
+        groups.setdefault(lab, []).append(i)
+    return list(groups.items())
+
+
+def window_key(label):
+    from ventsource.workflow.series import row_key
+    return row_key(f"window-{label}")
+
+
+def invert_window(args):
+    """Invert one window and write its files; returns the summary rows of its rows."""
+    prior_path, label, ids, times, measurements, seed, options, out_dir = args
+    from ventsource.common.threads import limit_blas_threads
+    limit_blas_threads()
+    from ventsource.inference.priors import load_prior_file
+    from ventsource.inference.window_inference import WindowError, infer_window
+    from ventsource.workflow.series import row_key, write_row_json
+    spec = load_prior_file(prior_path)
+    opts = {k: v for k, v in options.items() if k in _WINDOW_OPTION_NAMES}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            res = infer_window(measurements, spec, seed=seed, **opts)
+        except WindowError as exc:
+            raise InputError(f"window '{label}': {exc}") from None
+    nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")
+    res.idata().to_netcdf(nc + ".part")
+    os.replace(nc + ".part", nc)
+    rows = []
+    for rid, t, r in zip(ids, times, res.rows):
+        row = window_row_summary(rid, t, label, r, res, seed)
+        write_row_json(out_dir, row_key(rid), row)
+        rows.append(row)
+    return rows
+
+
+_WINDOW_OPTION_NAMES = ("n_particles", "n_runs", "ess_target", "max_moves", "alpha", "pi0", "kind",
+                        "dof", "n_source_check")
+
+
+def window_row_summary(rid, time_text, label, r, res, seed):
+    row = {"id": rid, "time": time_text, "window": label, "p_magmatic": r.p_magmatic,
+           "p_magmatic_error": r.p_magmatic_error, "flags": ";".join(r.flags + res.flags),
+           "seed": int(seed), "log10_bf_one_source": res.log10_bf_shared}
+    for tag, q in (("scrubbed_so2_avg", r.scrubbed_model_averaged),
+                   ("scrubbed_so2_if_scrubbed", r.scrubbed_if_scrubbed),
+                   ("pressure_bar", r.pressure_bar)):
+        row[f"{tag}_q05"], row[f"{tag}_median"], row[f"{tag}_q95"] = (float(v) for v in q)
+    for name, q in r.predictive.items():
+        row[f"pp {name}_q05"], row[f"pp {name}_median"], row[f"pp {name}_q95"] = (float(v) for v in q)
+    return row
+
+
+def window_summary_columns(ratio_names):
+    cols = ["id", "time", "window", "p_magmatic", "p_magmatic_error", "flags", "seed",
+            "log10_bf_one_source"]
+    for tag in ("scrubbed_so2_avg", "scrubbed_so2_if_scrubbed", "pressure_bar"):
+        cols += [f"{tag}_q05", f"{tag}_median", f"{tag}_q95"]
+    for r in ratio_names:
+        cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
+    return cols
+
+
+def read_done_windows(out_dir, groups, ids):
+    """Rows of windows whose files are all present (resume)."""
+    from ventsource.workflow.series import row_key
+    done = {}
+    for label, idx in groups:
+        if not os.path.exists(os.path.join(out_dir, "windows", f"{window_key(label)}.nc")):
+            continue
+        rows = {}
+        for i in idx:
+            js = os.path.join(out_dir, "rows", f"{row_key(ids[i])}.json")
+            try:
+                with open(js) as fh:
+                    rows[ids[i]] = json.load(fh)
+            except (OSError, ValueError):
+                rows = None
+                break
+        if rows:
+            done.update(rows)
+    return done
