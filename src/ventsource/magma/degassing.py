@@ -59,19 +59,20 @@ def _degas_state(ctx, psat, pressure_bar, open_system, n_open_steps, h_law, h_pa
 
 
 @_kernel
-def _store_state(st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_row, melt_row):
-    """Gas fraction of one state; writes its melt H2O wt%, CO2 ppm, S ppm (the bulk
-    where no gas) and NaN gas mole fractions where there is no gas."""
-    melt_row[0] = mg[3] * M_H2O * 100.0 / 2.0
-    melt_row[1] = mg[4] * M_CO2 * 1e6
-    melt_row[2] = mg[5] * M_S * 1e6
+def _store_state(j, st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out):
+    """Gas fraction of state j; writes its melt H2O wt%, CO2 ppm, S ppm (the bulk
+    where no gas) and NaN gas mole fractions where there is no gas. Takes the
+    whole output arrays: a row view made by the caller would cost reference counts."""
+    melt_out[j, 0] = mg[3] * M_H2O * 100.0 / 2.0
+    melt_out[j, 1] = mg[4] * M_CO2 * 1e6
+    melt_out[j, 2] = mg[5] * M_S * 1e6
     if st != STATUS_GAS:
         for i in range(10):
-            x_row[i] = math.nan
+            x_out[j, i] = math.nan
         if st == STATUS_NO_GAS:
-            melt_row[0] = h2o_wt
-            melt_row[1] = co2_ppm_bulk
-            melt_row[2] = s_ppm
+            melt_out[j, 0] = h2o_wt
+            melt_out[j, 1] = co2_ppm_bulk
+            melt_out[j, 2] = s_ppm
     return z[3] if st == STATUS_GAS else 0.0
 
 
@@ -99,8 +100,7 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
                           c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
         status_out[j] = st
-        g_out[j] = _store_state(st, z, mg, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out[j],
-                                melt_out[j])
+        g_out[j] = _store_state(j, st, z, mg, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out, melt_out)
 
 
 class DegassingResult:
