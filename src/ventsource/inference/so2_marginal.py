@@ -87,7 +87,8 @@ class ScrubbingMarginal:
         top, bottom = observables.weight_matrices(tuple(ratio_names))
         cols = likelihood._cols
         self.top, self.bottom = top[:, cols], bottom[:, cols]
-        self.v_lo = max(float(np.log1p(-min(distribution.upper, 1.0))), V_FLOOR)
+        with np.errstate(divide="ignore"):  # s up to 1: ln(0) = -inf, floored
+            self.v_lo = max(float(np.log1p(-min(distribution.upper, 1.0))), V_FLOOR)
         self.v_hi = float(np.log1p(-max(distribution.lower, 0.0)))
         self.k = self._powers()
         self.fast = (product == "loss" and likelihood.kind == "normal" and self.k is not None

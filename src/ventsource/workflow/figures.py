@@ -33,8 +33,11 @@ def plot_time_series(summary_csv, path, series=None, truth_csv=None, title=""):
     s = pd.read_csv(summary_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     times = pd.to_datetime(s["time"].str.rstrip("Z"))
     ratios = [c[3:-4] for c in s.columns if c.startswith("pp ") and c.endswith("_q05")]
-    n = len(ratios) + 2
+    has_p = "pressure_bar_median" in s
+    n = len(ratios) + 2 + int(has_p)
     fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.0), sharex=True)
+    if has_p:
+        _pressure_panel(axes[-3], s, times, truth)
     truth = pd.read_csv(truth_csv) if truth_csv else None
     for ax, r in zip(axes, ratios):
         lo, med, hi = (s[f"pp {r}_{q}"].astype(float) for q in ("q05", "median", "q95"))
@@ -61,23 +64,79 @@ def plot_time_series(summary_csv, path, series=None, truth_csv=None, title=""):
     err = s["p_magmatic_error"].astype(float).fillna(0.0)
     ax.errorbar(times, s["p_magmatic"].astype(float), yerr=err, fmt="s", ms=3.5, color=INK,
                 ecolor="#8da9c4", capsize=2)
-    ax.axhline(0.5, color="#999999", lw=0.8, ls=":")
+    ax.axhline(0.5, color="#999999", lw=0.8, ls=":", label="even prior odds (0.5)")
+    ax.legend(fontsize=7, frameon=False, loc="lower left")
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("P(M0)\npurely magmatic", fontsize=9)
     ax = axes[-1]
-    if "scrubbed_so2_median" in s:
-        ax.fill_between(times, s["scrubbed_so2_q05"].astype(float), s["scrubbed_so2_q95"].astype(float),
-                        color=SCRUB, alpha=0.2, lw=0, label="5-95 % credible")
-        ax.plot(times, s["scrubbed_so2_median"].astype(float), "-o", ms=3, color=SCRUB,
-                label="posterior median")
-        if truth is not None and "scrubbed_so2" in truth:
-            ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["scrubbed_so2"], "x",
-                    ms=4, color="#777777", label="synthetic truth")
-        ax.legend(fontsize=7, frameon=False, loc="upper left")
-    ax.set_ylim(-0.03, 1.03)
-    ax.set_ylabel("scrubbed SO2\nfraction", fontsize=9)
+    _scrubbed_panel(ax, s, times, truth)
     if title:
         fig.suptitle(title, fontsize=11)
+    _footnote(fig)
+    fig.tight_layout(rect=(0, 0.025, 1, 1))
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
+def _scrubbed_panel(ax, s, times, truth):
+    """Model-averaged scrubbed fraction (point mass at 0 with weight P(M0)) where present,
+    else the posterior if scrubbed, labelled so."""
+    avg = "scrubbed_so2_avg_median" in s and s["scrubbed_so2_avg_median"].notna().any()
+    tag, label = (("scrubbed_so2_avg", "model-averaged") if avg else
+                  ("scrubbed_so2", "if scrubbed (model M1 only)"))
+    if f"{tag}_median" not in s:
+        return
+    ax.fill_between(times, s[f"{tag}_q05"].astype(float), s[f"{tag}_q95"].astype(float),
+                    color=SCRUB, alpha=0.2, lw=0, label=f"5-95 %, {label}")
+    ax.plot(times, s[f"{tag}_median"].astype(float), "-o", ms=3, color=SCRUB, label=f"median, {label}")
+    if truth is not None and "scrubbed_so2" in truth:
+        ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["scrubbed_so2"], "x",
+                ms=4, color="#777777", label="synthetic truth")
+    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    ax.set_ylim(-0.03, 1.03)
+    ax.set_ylabel("scrubbed SO2\nfraction", fontsize=9)
+
+
+def _pressure_panel(ax, s, times, truth):
+    ax.fill_between(times, s["pressure_bar_q05"].astype(float), s["pressure_bar_q95"].astype(float),
+                    color=INK, alpha=0.15, lw=0, label="5-95 %")
+    ax.plot(times, s["pressure_bar_median"].astype(float), "-o", ms=3, color=INK, label="median")
+    if truth is not None and "pressure_bar" in truth:
+        ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["pressure_bar"], "x",
+                ms=4, color="#777777", label="synthetic truth")
+    ax.set_yscale("log")
+    ax.set_ylabel("degassing\npressure (bar)", fontsize=9)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=3)
+
+
+def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title=""):
+    """P(M0) and the model-averaged scrubbed fraction: row by row beside by windows."""
+    plt = _plt()
+    a = pd.read_csv(rows_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    b = pd.read_csv(windows_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
+    t = pd.to_datetime(a["time"].str.rstrip("Z"))
+    fig, axes = plt.subplots(2, 1, figsize=(9, 6.5), sharex=True)
+    for s, mk, col, lab in ((a, "o", "#8da9c4", "row by row"), (b, "s", INK, "by windows (shared source)")):
+        axes[0].errorbar(t, s["p_magmatic"].astype(float), yerr=s["p_magmatic_error"].astype(float).fillna(0),
+                         fmt=mk, ms=4, color=col, capsize=2, label=lab)
+        axes[1].plot(t, s["scrubbed_so2_avg_median"].astype(float), mk + "-", ms=3, color=col, label=lab)
+    mixed = b["flags"].fillna("").str.contains("mixed_sources")
+    for ax in axes:
+        for tm in t[mixed.to_numpy()]:
+            ax.axvspan(tm - pd.Timedelta(days=5), tm + pd.Timedelta(days=5), color="#f4a261", alpha=0.25, lw=0)
+    if truth_csv:
+        tr = pd.read_csv(truth_csv)
+        axes[1].plot(pd.to_datetime(tr["time"].str.rstrip("Z")), tr["scrubbed_so2"], "x", color="#777777",
+                     label="synthetic truth")
+    axes[0].axhline(0.5, color="#999999", lw=0.8, ls=":", label="prior P(M0) = 0.5")
+    axes[0].set_ylabel("P(M0)\npurely magmatic", fontsize=9)
+    axes[1].set_ylabel("scrubbed SO2 fraction\n(model-averaged median)", fontsize=9)
+    for ax in axes:
+        ax.set_ylim(-0.03, 1.03)
+        ax.legend(fontsize=7, frameon=False, loc="center left")
+    axes[0].set_title((title + "\n" if title else "") + "shaded: window flagged mixed_sources "
+                      "(a change of magma inside the window)", fontsize=9)
     _footnote(fig)
     fig.tight_layout(rect=(0, 0.025, 1, 1))
     fig.savefig(path, dpi=120)
@@ -131,7 +190,7 @@ def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", 
     os.makedirs(fig_dir, exist_ok=True)
     paths = [plot_time_series(os.path.join(out_dir, "summary.csv"), os.path.join(fig_dir, "series.png"),
                               series=series, truth_csv=truth_csv, title=title)]
-    if len(series.ratio_names) >= 2:
+    if len(series.ratio_names) >= 2 and n_prior > 0:
         paths.append(plot_ratio_plane_with_data(spec, series, os.path.join(fig_dir, "ratio_plane.png"),
                                                 n=n_prior))
     if corner_ids:
