@@ -135,7 +135,7 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "emcee", "series")
+SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series")
 
 
 def _prior_path(name):
@@ -153,6 +153,10 @@ def run_benchmarks(quick=False, only=None):
         from ventsource.bench.smc import bench_smc
         from ventsource.inference.priors import load_prior_file
         bench_smc(load_prior_file(_prior_path("arc_basalt")), quick=quick)
+    if "window" in sections:
+        from ventsource.bench.window import bench_window
+        from ventsource.inference.priors import load_prior_file
+        bench_window(load_prior_file(_prior_path("arc_basalt")), quick=quick)
     if "emcee" in sections:
         from ventsource.bench.inference import bench_inference
         bench_inference(quick=quick)
