@@ -46,7 +46,7 @@ def plot_window(w, figure_dir):
             line, band = line_band(r.fit, xs)
             ax.plot(xs, line, color="#b03a2e", lw=1.2)
             ax.fill_between(xs, line - band, line + band, color="#b03a2e", alpha=0.25)
-        value = (f"{r.censor}{r.value:.3g}" + (f" +- {100 * r.relative_sigma:.0f} %" if not r.censor else "")
+        value = (f"{r.censor}{r.value:.3g}" + (f" +- {100 * r.relative_sigma:.2g} %" if not r.censor else "")
                  if np.isfinite(r.value) else "dropped")
         ax.set_title(f"{r.ratio} = {value}\nR2 {r.r_squared:.2f}, n {r.n_points}", fontsize=8)
         ax.set_xlabel(f"{bottom} (ppmv)", fontsize=8)
@@ -84,7 +84,7 @@ def plot_overview(windows, ratios, path):
         if (cen != "").any():
             ax.legend(fontsize=7, loc="best")
         ax.set_ylabel(ratio)
-        if exact.any() and (v[exact] > 0).all():
+        if exact.any() and v[exact].max() > 3 * v[exact].min():
             ax.set_yscale("log")
     axes[-1, 0].set_xlabel("time (UTC)")
     fig.suptitle("Gas ratios per window (slope through each window)", fontsize=10)

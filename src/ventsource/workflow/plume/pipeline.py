@@ -60,6 +60,12 @@ def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200
     if settings.tracer not in _available(layout):
         raise InputError(f"{raw_path}: row {layout.comment_lines + 1}, column '{settings.tracer}': "
                          "missing column of the tracer gas (--tracer)")
+    for option, table in (("--noise", settings.noise_ppmv), ("--detection-limit", settings.detection_limit_ppmv),
+                          ("--max-reading", settings.max_reading_ppmv), ("--min-range", settings.min_range_ppmv),
+                          ("--lag", settings.lag_s)):
+        for name in table:
+            if name not in gases:
+                raise InputError(f"{option}: '{name}' is none of the gases in use ({', '.join(gases)})")
     derive_h2o = "H2O" in gases and "H2O" not in layout.columns
     needed = [g for g in gases if not (g == "H2O" and derive_h2o)] + (list(METEO) if derive_h2o else [])
     chunks = read_chunks(layout, needed, chunk_rows=chunk_rows, assume_utc=assume_utc)
