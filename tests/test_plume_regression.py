@@ -106,3 +106,12 @@ def test_h2o_mole_fraction_against_coolprop_humid_air(t_c, rh, p_hpa):
     ref = HA.HAPropsSI("psi_w", "T", t_c + 273.15, "P", p_hpa * 100, "R", rh / 100) * 1e6
     # CoolProp humid air (Hyland and Wexler enhancement factor) vs Buck (1981)
     assert h2o_ppmv(t_c, rh, p_hpa) == pytest.approx(ref, rel=3e-3)
+
+
+def test_equal_sigma_shortcut_equals_the_general_york_iteration():
+    x, y = _synthetic_windows(3, 90, 0.3, 1.5, 0.2, seed=21)
+    x[2, 60:] = np.nan
+    short = york_fit(x, y, np.array([[1.5], [1.5], [1.5]]), 0.2)
+    general = york_fit(x, y, np.full(x.shape, 1.5), np.full(x.shape, 0.2))
+    for name in ("slope", "intercept", "slope_sigma", "intercept_sigma", "mswd", "r_squared"):
+        assert np.allclose(getattr(short, name), getattr(general, name), rtol=1e-9), name

@@ -70,16 +70,18 @@ def noise_sigma(values, background):
     """1-sigma white noise per gas from point-to-point differences of background rows:
     1.4826 MAD(diff) / sqrt(2) (robust to a slowly drifting background; common practice,
     no source), floored at the quantisation noise step / sqrt(12)."""
-    out = {}
-    for g, v in values.items():
-        use = v[background] if background.sum() >= 10 else v
-        d = np.diff(use)
-        mad = 1.4826 * np.median(np.abs(d - np.median(d))) / np.sqrt(2) if d.size else 0.0
-        steps = np.abs(np.diff(v))
-        steps = steps[steps > 0]
-        floor = steps.min() / np.sqrt(12) if steps.size else 1e-9
-        out[g] = max(mad, floor)
-    return out
+    names = list(values)
+    stack = np.array([values[g] for g in names])
+    use = stack[:, background] if background.sum() >= 10 else stack
+    d = np.diff(use, axis=1)
+    if d.shape[1]:
+        mad = 1.4826 * np.median(np.abs(d - np.median(d, axis=1, keepdims=True)), axis=1) / np.sqrt(2)
+    else:
+        mad = np.zeros(len(names))
+    steps = np.abs(np.diff(stack, axis=1))
+    steps = np.where(steps > 0, steps, np.inf).min(axis=1) if steps.shape[1] else np.full(len(names), np.inf)
+    floor = np.where(np.isfinite(steps), steps / np.sqrt(12), 1e-9)
+    return {g: float(max(m, f)) for g, m, f in zip(names, mad, floor)}
 
 
 @dataclass
@@ -143,17 +145,23 @@ def analyse_window(window, gases, settings, keep_data=False):
     noise.update({g: v for g, v in s.noise_ppmv.items() if g in noise})
     dl = {g: s.detection_limit_ppmv.get(g, s.detection_sigmas * noise[g]) for g in gases}
     results = ratio_results(aligned, noise, dl, saturated, flags, s)
+    if not keep_data:
+        for r in results:
+            r.fit = None     # keeps a year of window results small
     wid = np.datetime64(int(t[0]), "ns").astype("datetime64[s]").astype(str).replace("-", "").replace(":", "")
     return WindowResult(f"W{wid}Z", int(t[0]), int(t[-1]), int(window.lines[0]), int(window.lines[-1]),
                         {g: lags[g] * dt for g in gases}, noise, dl, flags, results,
                         aligned if keep_data else None)
 
 
-def _robust_range(v):
-    if v.size < 2:
-        return 0.0
-    lo, hi = np.percentile(v, [2, 98])
-    return float(hi - lo)
+def robust_ranges(aligned):
+    """Range of each gas from its 2nd to its 98th percentile (robust to single spikes)."""
+    names = list(aligned)
+    stack = np.array([aligned[g] for g in names])
+    if stack.shape[1] < 2:
+        return {g: 0.0 for g in names}
+    lo, hi = np.percentile(stack, [2, 98], axis=1)
+    return {g: float(h - l) for g, l, h in zip(names, lo, hi)}
 
 
 def ratio_results(aligned, noise, dl, saturated, window_flags, s):
@@ -167,7 +175,7 @@ def ratio_results(aligned, noise, dl, saturated, window_flags, s):
         fit = york_fit(x, y, sx, sy, tol=1e-10)
     else:
         fit = ols_fit(x, y)
-    ranges = {g: _robust_range(v) for g, v in aligned.items()}
+    ranges = robust_ranges(aligned)
     out = []
     for k, (ratio, (top, bottom)) in enumerate(zip(s.ratios, pairs)):
         one = type(fit)(*(np.asarray(f)[k:k + 1] for f in vars(fit).values()))

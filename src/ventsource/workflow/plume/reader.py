@@ -16,7 +16,6 @@ from ventsource.workflow.plume.humidity import h2o_ppmv
 from ventsource.workflow.plume.units import canonical_name, conversion, split_header
 
 _AWARE = r"[T ]\d\d:\d\d(?::\d\d(?:\.\d+)?)?(?:Z|[+-]\d\d:?\d\d)$"
-_ANY_TIME = r"[T ]\d\d:\d\d"
 
 
 @dataclass
@@ -87,20 +86,33 @@ def inspect_header(path, unit_overrides=None):
     return RawLayout(str(path), comments, time_cols[0], columns, scale, ignored)
 
 
+def _parse_times(text):
+    """Fast path: one pandas parse; a column mixing offsets (or offsets and none) falls back
+    to UTC conversion plus a per-row check for a missing offset."""
+    try:
+        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce")
+        if isinstance(parsed.dtype, pd.DatetimeTZDtype):
+            return parsed, np.zeros(len(text), dtype=bool)
+        if parsed.dtype.kind == "M":
+            return parsed.dt.tz_localize("UTC"), np.ones(len(text), dtype=bool)
+    except (ValueError, TypeError):
+        pass
+    parsed = pd.to_datetime(text, format="ISO8601", utc=True, errors="coerce")
+    return parsed, ~text.str.contains(_AWARE, na=False).to_numpy()
+
+
 def _check_times(layout, text, first_line, previous_ns, assume_utc):
     path, col = layout.path, layout.time_column
     text = text.astype(str)
-    parsed = pd.to_datetime(text, format="ISO8601", utc=True, errors="coerce")
-    bad = np.flatnonzero(parsed.isna().to_numpy() | ~text.str.contains(_ANY_TIME, na=False).to_numpy())
+    parsed, naive = _parse_times(text)
+    bad = np.flatnonzero(parsed.isna().to_numpy())
     if bad.size:
         i = bad[0]
         _fail(path, first_line + i, col, f"'{text.iloc[i]}' is not an ISO 8601 date-time")
-    if not assume_utc:
-        naive = np.flatnonzero(~text.str.contains(_AWARE, na=False).to_numpy())
-        if naive.size:
-            i = naive[0]
-            _fail(path, first_line + i, col, f"'{text.iloc[i]}' has no UTC offset; add 'Z' or an "
-                  "offset such as +01:00, or pass --assume-utc")
+    if not assume_utc and naive.any():
+        i = np.flatnonzero(naive)[0]
+        _fail(path, first_line + i, col, f"'{text.iloc[i]}' has no UTC offset; add 'Z' or an "
+              "offset such as +01:00, or pass --assume-utc")
     ns = parsed.dt.tz_convert(None).to_numpy().astype("datetime64[ns]").astype(np.int64)
     steps = np.diff(ns, prepend=ns[0] if previous_ns is None else previous_ns)
     if previous_ns is None:

@@ -58,6 +58,8 @@ def york_fit(x, y, sigma_x, sigma_y, r_xy=0.0, tol=1e-12, max_iter=100):
     from the OLS slope, then gives the standard errors of slope and intercept
     from the adjusted points (their section III, steps 7-8).
     """
+    if _per_window(sigma_x) and _per_window(sigma_y) and np.all(np.asarray(r_xy) == 0):
+        return _york_constant_sigma(x, y, sigma_x, sigma_y, tol, max_iter)
     x, y, sx, sy = _as_2d(x, y, sigma_x, sigma_y)
     with np.errstate(divide="ignore"):
         wx_raw, wy_raw = 1.0 / sx ** 2, 1.0 / sy ** 2
@@ -93,6 +95,45 @@ def york_fit(x, y, sigma_x, sigma_y, r_xy=0.0, tol=1e-12, max_iter=100):
         mswd = chi2 / (n - 2)
     return LineFit(b, a, sigma_b, sigma_a, n, mswd, pearson_r_squared(x, y, used), converged,
                    x_mean_adj)
+
+
+def _per_window(sigma):
+    """A scalar, or an (n_windows, 1) column: one sigma for every point of a window."""
+    return np.size(sigma) == 1 or (np.ndim(sigma) == 2 and np.shape(sigma)[1] == 1)
+
+
+def _york_constant_sigma(x, y, sigma_x, sigma_y, tol, max_iter):
+    """York et al. (2004) when every point of a window has the same sigma_x, sigma_y and
+    r = 0: the weights W = 1 / (sigma_y^2 + b^2 sigma_x^2) are equal within a window, so
+    the iteration (13a, 13c) and the standard errors need only the sums Suu, Suv, Svv."""
+    x, y = _as_2d(x, y)
+    used = np.isfinite(x) & np.isfinite(y)
+    n = used.sum(axis=1)
+    vx = np.broadcast_to(np.asarray(sigma_x, dtype=float).reshape(-1), n.shape) ** 2
+    vy = np.broadcast_to(np.asarray(sigma_y, dtype=float).reshape(-1), n.shape) ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x_bar = np.where(used, x, 0).sum(1) / n
+        y_bar = np.where(used, y, 0).sum(1) / n
+        u = np.where(used, x - x_bar[:, None], 0.0)
+        v = np.where(used, y - y_bar[:, None], 0.0)
+        suu, suv, svv = (u * u).sum(1), (u * v).sum(1), (v * v).sum(1)
+        b = suv / suu
+        converged = np.zeros(n.shape, dtype=bool)
+        for _ in range(max_iter):     # beta_i = W (u_i vy + b v_i vx); b = sum(beta v) / sum(beta u)
+            b_new = (vy * suv + b * vx * svv) / (vy * suu + b * vx * suv)
+            step = np.abs(b_new - b)
+            b = np.where(converged, b, b_new)
+            converged |= step <= tol * np.maximum(np.abs(b_new), 1e-300)
+            if converged.all():
+                break
+        w = 1.0 / (vy + b * b * vx)
+        a = y_bar - b * x_bar
+        sum_beta2 = w * w * (vy * vy * suu + 2 * b * vx * vy * suv + b * b * vx * vx * svv)
+        sigma_b = np.sqrt(1.0 / (w * sum_beta2))
+        sigma_a = np.sqrt(1.0 / (w * n) + x_bar ** 2 * sigma_b ** 2)
+        mswd = w * (svv - 2 * b * suv + b * b * suu) / (n - 2)
+        r2 = suv ** 2 / (suu * svv)
+    return LineFit(b, a, sigma_b, sigma_a, n, mswd, r2, converged, x_bar)
 
 
 def ols_fit(x, y):
