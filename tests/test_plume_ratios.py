@@ -172,6 +172,9 @@ BAD_RAW = {
                      "unknown unit"),
     "nan": (GOOD_HEAD + "".join(_lines(r4="2026-03-14T00:00:04Z,NaN,0.4\n")), "row 6", "NaN"),
     "empty": (GOOD_HEAD + "".join(_lines(r4="2026-03-14T00:00:04Z,424,\n")), "row 6", "empty"),
+    "extra cell": (GOOD_HEAD + "".join(_lines(r6="2026-03-14T00:00:06Z,426,0.6,7\n")), "row 8",
+                   "4 cells but the header has 3"),
+    "no rows": (GOOD_HEAD, "", "no data rows"),
     "text": (GOOD_HEAD + "".join(_lines(r8="2026-03-14T00:00:08Z,428,high\n")), "row 10",
              "'high' is not a finite number"),
 }
@@ -223,8 +226,8 @@ def test_figures_carry_the_caution(raw_day, tmp_path):
     figs = tmp_path / "figs"
     assert main(["ratios", raw_day, "--out", str(tmp_path / "m.csv"), "--window", "6h", "--figures",
                  str(figs), "--window-figures"]) == 0
-    names = sorted(p.name for p in figs.iterdir())
-    assert names[0] == "ratios_overview.png" and len(names) == 2
+    assert sorted(p.name for p in figs.iterdir()) == ["ratios_overview.png", "windows"]
+    assert [p.name for p in (figs / "windows").iterdir()] == ["window_W20260314T000000Z.png"]
 
 
 def test_ratios_then_run_end_to_end(tmp_path, capsys):
@@ -239,3 +242,17 @@ def test_ratios_then_run_end_to_end(tmp_path, capsys):
     summary = _rows(out / "summary.csv")
     assert [r["id"] for r in summary] == [r["id"] for r in _rows(data)]
     assert 0.0 <= float(summary[0]["p_magmatic"]) <= 1.0
+
+
+def test_an_error_deep_in_the_file_leaves_no_output(tmp_path, capsys):
+    frame = synthetic_record(2 * 3600, seed=10)
+    frame["CO2 [ppmv]"] = frame["CO2 [ppmv]"].astype(object)
+    frame.loc[5000, "CO2 [ppmv]"] = "ERR"      # after windows were already analysed
+    raw = _write(tmp_path / "raw.csv", frame)
+    figs = tmp_path / "figs"
+    code = main(["ratios", raw, "--out", str(tmp_path / "m.csv"), "--chunk-rows", "1000",
+                 "--figures", str(figs), "--window-figures"])
+    err = capsys.readouterr().err
+    assert code == 2 and "row 5003" in err and "'ERR'" in err, err     # file line = index + 3 (comment line, header)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["figs", "raw.csv"]
+    assert list(figs.iterdir()) == []

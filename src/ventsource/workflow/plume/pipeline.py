@@ -3,6 +3,7 @@ import datetime
 import hashlib
 import os
 import platform
+import shutil
 
 from ventsource import __version__
 from ventsource.common.errors import InputError
@@ -51,6 +52,23 @@ def _sha256(path):
     return h.hexdigest()
 
 
+def _analyse_all(windows, gases, settings, figure_stage):
+    """WindowResult per window; per-window figures into figure_stage when given."""
+    if figure_stage:
+        from ventsource.workflow.plume.figures import plot_window
+        shutil.rmtree(figure_stage, ignore_errors=True)
+    results = []
+    for window in windows:
+        w = analyse_window(window, gases, settings, keep_data=bool(figure_stage))
+        if figure_stage:
+            plot_window(w, figure_stage)
+            w.aligned = None
+            for r in w.results:
+                r.fit = None
+        results.append(w)
+    return results
+
+
 def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200_000,
                assume_utc=False, figure_dir=None, window_figures=False, hash_input=True):
     """Read raw_path in chunks, analyse each window, write the outputs; returns a summary dict."""
@@ -74,14 +92,13 @@ def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200
     windower = (PlumeWindows(settings.plume_threshold, settings.pad_s, settings.merge_gap_s,
                              settings.max_duration_s) if settings.plume_threshold is not None
                 else FixedWindows(settings.window_s))
-    results, figures = [], []
-    for window in iter_windows(chunks, windower, settings.tracer):
-        w = analyse_window(window, gases, settings, keep_data=window_figures)
-        if window_figures and figure_dir:
-            from ventsource.workflow.plume.figures import plot_window
-            figures.append(plot_window(w, figure_dir))
-            w.aligned = None
-        results.append(w)
+    stage = os.path.join(figure_dir, "windows.part") if window_figures and figure_dir else None
+    try:
+        results = _analyse_all(iter_windows(chunks, windower, settings.tracer), gases, settings, stage)
+    except BaseException:
+        if stage:
+            shutil.rmtree(stage, ignore_errors=True)   # no partial set of window figures
+        raise
     if not results:
         raise InputError(f"{raw_path}: no data rows under the header")
     record = {
@@ -104,6 +121,12 @@ def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200
         raise InputError(f"{raw_path}: none of the {len(results)} windows gave a usable ratio under the "
                          f"rules; reasons per window in {sidecar_paths(out_path)[0]}")
     windows_path, record_path = write_outputs(out_path, settings.ratios, gases, results, record)
+    figures = []
+    if stage:
+        final = os.path.join(figure_dir, "windows")
+        shutil.rmtree(final, ignore_errors=True)
+        os.replace(stage, final)
+        figures.append(final)
     if figure_dir:
         from ventsource.workflow.plume.figures import plot_overview
         figures.append(plot_overview(results, settings.ratios, os.path.join(figure_dir, "ratios_overview.png")))

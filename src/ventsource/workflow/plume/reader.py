@@ -6,6 +6,8 @@ meteorological quantity with its unit in brackets (`SO2 [ppmv]`, `T [C]`,
 `RH [%]`, `P [hPa]`); other columns are ignored. Every problem is one
 InputError naming file, row (line number in the file) and column.
 """
+import re
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -141,23 +143,34 @@ def _check_numbers(layout, name, series, first_line):
 
 def read_chunks(layout, needed, chunk_rows=200_000, assume_utc=False):
     """Yield Chunk objects of at most chunk_rows rows; `needed` lists canonical names."""
-    wanted = {layout.time_column} | {layout.columns[n] for n in needed}
     first_line = layout.comment_lines + 2
     previous = None
-    reader = pd.read_csv(layout.path, skiprows=layout.comment_lines, usecols=lambda c: c.strip() in wanted,
-                         dtype={layout.time_column: str}, chunksize=chunk_rows,
+    # every column is parsed (no usecols), so a row with more cells than the header is an error
+    reader = pd.read_csv(layout.path, skiprows=layout.comment_lines,
+                         dtype={layout.time_column: str}, chunksize=chunk_rows, index_col=False,
                          skip_blank_lines=False, encoding="utf-8-sig", skipinitialspace=True)
-    try:
-        for frame in reader:
-            frame.columns = [c.strip() for c in frame.columns]
-            ns = _check_times(layout, frame[layout.time_column], first_line, previous, assume_utc)
-            values = {n: _check_numbers(layout, n, frame[layout.columns[n]], first_line) for n in needed}
-            lines = np.arange(first_line, first_line + len(frame), dtype=np.int64)
-            yield Chunk(ns, values, lines)
-            previous = ns[-1]
-            first_line += len(frame)
-    except pd.errors.ParserError as exc:
-        raise InputError(f"{layout.path}: malformed CSV ({str(exc).splitlines()[0]})") from None
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", pd.errors.ParserWarning)
+        try:
+            for frame in reader:
+                if len(frame) == 0:
+                    continue
+                frame.columns = [c.strip() for c in frame.columns]
+                ns = _check_times(layout, frame[layout.time_column], first_line, previous, assume_utc)
+                values = {n: _check_numbers(layout, n, frame[layout.columns[n]], first_line) for n in needed}
+                lines = np.arange(first_line, first_line + len(frame), dtype=np.int64)
+                yield Chunk(ns, values, lines)
+                previous = ns[-1]
+                first_line += len(frame)
+        except pd.errors.ParserWarning:
+            raise InputError(f"{layout.path}: row {first_line}: more cells than the header has "
+                             "columns") from None
+        except pd.errors.ParserError as exc:
+            found = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
+            if found:
+                raise InputError(f"{layout.path}: row {int(found.group(2))}: "
+                                 f"{found.group(3)} cells but the header has {found.group(1)} columns") from None
+            raise InputError(f"{layout.path}: malformed CSV ({str(exc).splitlines()[0]})") from None
 
 
 def add_h2o(chunk):
