@@ -58,7 +58,9 @@ def add_parser(subparsers):
     p.add_argument("--lag", action="append", metavar="GAS=SECONDS",
                    help="fixed lag of a gas behind the tracer (else searched by cross-correlation)")
     p.add_argument("--max-lag-s", type=float, default=30.0, help="lag search bound (0: no search)")
-    p.add_argument("--min-lag-correlation", type=float, default=0.5)
+    p.add_argument("--min-lag-correlation", type=float, default=0.8,
+                   help="a window's own lag is used when its peak correlation reaches this and it lies "
+                   "inside the bound; else the median of recent accepted lags (marked '~' in the output)")
     p.add_argument("--min-points", type=int, default=30)
     p.add_argument("--min-range", action="append", metavar="GAS=PPMV",
                    help="least range (2nd-98th percentile) of the x gas of a ratio")

@@ -18,6 +18,8 @@ import numpy as np
 from ventsource.workflow.plume.york import ols_fit, york_fit
 
 NS = 1_000_000_000
+LAG_SWITCH_MARGIN = 0.01  # least gain in r to leave the usual lag (common practice, no source)
+MIN_LAG_PROMINENCE = 0.2   # least drop of the correlation away from its peak (common practice, no source)
 
 
 @dataclass
@@ -38,23 +40,46 @@ def sampling_interval_s(times_ns):
     return float(np.median(np.diff(times_ns))) / NS if times_ns.size > 1 else 1.0
 
 
-def find_lag_samples(reference, signal, max_lag, min_correlation):
-    """Shift L (samples) maximising the correlation of signal[i + L] with reference[i],
-    |L| <= max_lag; 0 when no shift reaches min_correlation. Returns (L, r)."""
+def lag_correlations(reference, signal, max_lag):
+    """Pearson r of signal[i + L] with reference[i] over their overlap, L = -max_lag..max_lag;
+    None when the window is too short for the bound."""
     n = reference.size
     if max_lag < 1 or n < 4 * max_lag + 3:
-        return 0, np.nan
-    ref = reference[max_lag:n - max_lag]
-    ref = ref - ref.mean()
-    segs = np.lib.stride_tricks.sliding_window_view(signal, ref.size)   # (2 L + 1, m), no copy
-    seg_mean = segs.mean(axis=1)
-    cov = segs @ ref
-    seg_ss = np.einsum("ij,ij->i", segs, segs) - ref.size * seg_mean ** 2
+        return None
+    ref = reference - reference.mean()
+    sig = signal - signal.mean()
+    padded = np.concatenate([np.zeros(max_lag), sig, np.zeros(max_lag)])
+    segs = np.lib.stride_tricks.sliding_window_view(padded, n)   # row k: sig shifted by k - max_lag
+    cross = segs @ ref            # sum over the overlap of each shift (zeros outside it)
+    lags = np.arange(-max_lag, max_lag + 1)
+    m = n - np.abs(lags)
+    c_ref, c_ref2 = np.concatenate([[0], np.cumsum(ref)]), np.concatenate([[0], np.cumsum(ref * ref)])
+    c_sig, c_sig2 = np.concatenate([[0], np.cumsum(sig)]), np.concatenate([[0], np.cumsum(sig * sig)])
+    r_lo, r_hi = np.maximum(0, -lags), n - np.maximum(0, lags)       # ref indices of the overlap
+    s_lo, s_hi = r_lo + lags, r_hi + lags                            # signal indices
+    s_r, s_rr = c_ref[r_hi] - c_ref[r_lo], c_ref2[r_hi] - c_ref2[r_lo]
+    s_s, s_ss = c_sig[s_hi] - c_sig[s_lo], c_sig2[s_hi] - c_sig2[s_lo]
     with np.errstate(invalid="ignore", divide="ignore"):
-        r = cov / np.sqrt(np.maximum(seg_ss, 0) * (ref @ ref))
-    r = np.where(np.isfinite(r), r, -np.inf)
+        r = (cross - s_r * s_s / m) / np.sqrt(np.maximum(s_rr - s_r ** 2 / m, 0)
+                                              * np.maximum(s_ss - s_s ** 2 / m, 0))
+    return r
+
+
+def find_lag_samples(reference, signal, max_lag, min_correlation):
+    """Shift L (samples) maximising the correlation of signal[i + L] with reference[i],
+    |L| <= max_lag; 0 when no shift reaches min_correlation. Returns (L, r); r is NaN
+    when the correlation curve is flat (drops by less than MIN_LAG_PROMINENCE)."""
+    r = lag_correlations(reference, signal, max_lag)
+    if r is None:
+        return 0, np.nan
+    finite = np.isfinite(r)
+    if not finite.any():
+        return 0, np.nan
+    r = np.where(finite, r, -np.inf)
     best = int(np.argmax(r))
     lag, best_r = best - max_lag, float(r[best])
+    if best_r - r[finite].min() < MIN_LAG_PROMINENCE:
+        best_r = np.nan      # a flat curve (a trend, no plume peak) locates no lag
     return (lag, best_r) if best_r >= min_correlation else (0, best_r)
 
 
@@ -96,6 +121,7 @@ class WindowResult:
     detection_limit_ppmv: dict
     flags: list
     results: list          # RatioResult per requested ratio
+    lags_kept: set         # gases whose lag came from earlier windows (weak own search)
     aligned: dict = None   # concentrations used (for figures)
 
 
@@ -109,27 +135,56 @@ def _window_flags(t, values, s):
     return flags, saturated
 
 
-def _lags(values, s, dt):
-    lags, found = {s.tracer: 0}, {}
+class LagMemory:
+    """Lags accepted in earlier windows, per gas. A sensor's lag is a property of the
+    instrument: a window moves away from the median of the last `keep` accepted lags
+    only when its own correlation there is higher by LAG_SWITCH_MARGIN; a window whose
+    own search is weak (peak below min_lag_correlation, a flat curve, or a peak on the
+    search bound) keeps that median (0 before any). Depends only on the window order."""
+
+    def __init__(self, keep=25):
+        self.keep, self.accepted = keep, {}
+
+    def choose(self, gas, reference, signal, max_lag, min_correlation):
+        """(lag, True when the window's own search gave it)."""
+        history = self.accepted.setdefault(gas, [])
+        usual = int(np.median(history)) if history else 0
+        found, r = find_lag_samples(reference, signal, max_lag, min_correlation)
+        if not (np.isfinite(r) and r >= min_correlation and abs(found) < max_lag):
+            return usual, False
+        history.append(found)
+        del history[:-self.keep]
+        if len(history) > 1 and found != usual:
+            curve = lag_correlations(reference, signal, max_lag)
+            if curve[found + max_lag] - curve[usual + max_lag] < LAG_SWITCH_MARGIN:
+                return usual, True
+        return found, True
+
+
+def _lags(values, s, dt, memory):
+    lags, searched = {s.tracer: 0}, {}
+    max_lag = int(s.max_lag_s / dt)
     for g, v in values.items():
         if g == s.tracer:
             continue
         if g in s.lag_s:
             lags[g] = int(round(s.lag_s[g] / dt))
+        elif max_lag >= 1:
+            lags[g], searched[g] = memory.choose(g, values[s.tracer], v, max_lag, s.min_lag_correlation)
         else:
-            lags[g], _ = find_lag_samples(values[s.tracer], v, int(s.max_lag_s / dt),
-                                          s.min_lag_correlation)
-    return lags
+            lags[g] = 0
+    return lags, searched
 
 
-def analyse_window(window, gases, settings, keep_data=False):
-    """Ratios of one window (a reader.Chunk) -> WindowResult."""
+def analyse_window(window, gases, settings, keep_data=False, lag_memory=None):
+    """Ratios of one window (a reader.Chunk) -> WindowResult. Pass one LagMemory for
+    all windows of a record, in time order."""
     s = settings
     t = window.times_ns
     values = {g: window.values[g] for g in gases}
     flags, saturated = _window_flags(t, values, s)
     dt = sampling_interval_s(t)
-    lags = _lags(values, s, dt)
+    lags, searched = _lags(values, s, dt, lag_memory if lag_memory is not None else LagMemory())
     aligned, lo, hi = align(values, lags)
     if "H2S" in aligned and "SO2" in aligned and s.h2s_so2_cross_sensitivity:
         aligned["H2S"] = aligned["H2S"] - s.h2s_so2_cross_sensitivity * aligned["SO2"]
@@ -144,13 +199,15 @@ def analyse_window(window, gases, settings, keep_data=False):
     noise = noise_sigma(aligned, background) if hi - lo >= 3 else {g: np.nan for g in gases}
     noise.update({g: v for g, v in s.noise_ppmv.items() if g in noise})
     dl = {g: s.detection_limit_ppmv.get(g, s.detection_sigmas * noise[g]) for g in gases}
-    results = ratio_results(aligned, noise, dl, saturated, flags, s)
+    sigmas = point_sigmas(aligned, noise, background, s) if hi - lo >= 3 else noise
+    results = ratio_results(aligned, noise, sigmas, dl, saturated, flags, s)
     if not keep_data:
         for r in results:
             r.fit = None     # keeps a year of window results small
     wid = np.datetime64(int(t[0]), "ns").astype("datetime64[s]").astype(str).replace("-", "").replace(":", "")
     return WindowResult(f"W{wid}Z", int(t[0]), int(t[-1]), int(window.lines[0]), int(window.lines[-1]),
                         {g: lags[g] * dt for g in gases}, noise, dl, flags, results,
+                        {g for g, own in searched.items() if not own},
                         aligned if keep_data else None)
 
 
@@ -164,23 +221,37 @@ def robust_ranges(aligned):
     return {g: float(h - l) for g, l, h in zip(names, lo, hi)}
 
 
-def ratio_results(aligned, noise, dl, saturated, window_flags, s):
-    pairs = [r.split("/") for r in s.ratios]
+def point_sigmas(aligned, noise, background, settings):
+    """1-sigma per gas: the background noise, or for gases with a relative error model
+    (H2O derived from RH and T: RH and e_s(T) errors scale with the level) the
+    background's relative noise times each point's level."""
+    out = dict(noise)
+    for g in settings.relative_noise_gases:
+        if g in aligned and g not in settings.noise_ppmv:
+            base = aligned[g][background] if background.sum() >= 10 else aligned[g]
+            level = float(np.median(base)) if base.size else np.nan
+            if np.isfinite(level) and level > 0:
+                out[g] = noise[g] / level * np.abs(aligned[g])
+    return out
+
+
+def ratio_results(aligned, noise, sigmas, dl, saturated, window_flags, s):
     n = next(iter(aligned.values())).size
-    x = np.array([aligned[b] for _, b in pairs]).reshape(len(pairs), n)
-    y = np.array([aligned[a] for a, _ in pairs]).reshape(len(pairs), n)
-    if s.method == "york":
-        sx = np.array([[noise[b]] for _, b in pairs])
-        sy = np.array([[noise[a]] for a, _ in pairs])
-        fit = york_fit(x, y, sx, sy, tol=1e-10)
-    else:
-        fit = ols_fit(x, y)
     ranges = robust_ranges(aligned)
     out = []
-    for k, (ratio, (top, bottom)) in enumerate(zip(s.ratios, pairs)):
-        one = type(fit)(*(np.asarray(f)[k:k + 1] for f in vars(fit).values()))
-        out.append(_judge(ratio, top, bottom, one, ranges, noise, dl, saturated, window_flags, n, s))
+    for ratio in s.ratios:
+        top, bottom = ratio.split("/")
+        if s.method == "york":
+            fit = york_fit(aligned[bottom], aligned[top], _sigma_arg(sigmas[bottom]),
+                           _sigma_arg(sigmas[top]), tol=1e-10)
+        else:
+            fit = ols_fit(aligned[bottom], aligned[top])
+        out.append(_judge(ratio, top, bottom, fit, ranges, noise, dl, saturated, window_flags, n, s))
     return out
+
+
+def _sigma_arg(sigma):
+    return sigma if np.ndim(sigma) == 0 else np.asarray(sigma)[None, :]
 
 
 def _least_range(gas, noise, s):

@@ -7,7 +7,7 @@ import shutil
 
 from ventsource import __version__
 from ventsource.common.errors import InputError
-from ventsource.workflow.plume.analysis import analyse_window
+from ventsource.workflow.plume.analysis import LagMemory, analyse_window
 from ventsource.workflow.plume.reader import add_h2o, inspect_header, read_chunks
 from ventsource.workflow.plume.windows import FixedWindows, PlumeWindows, iter_windows
 from ventsource.workflow.plume.writer import write_outputs
@@ -57,9 +57,9 @@ def _analyse_all(windows, gases, settings, figure_stage):
     if figure_stage:
         from ventsource.workflow.plume.figures import plot_window
         shutil.rmtree(figure_stage, ignore_errors=True)
-    results = []
+    results, lag_memory = [], LagMemory()
     for window in windows:
-        w = analyse_window(window, gases, settings, keep_data=bool(figure_stage))
+        w = analyse_window(window, gases, settings, keep_data=bool(figure_stage), lag_memory=lag_memory)
         if figure_stage:
             plot_window(w, figure_stage)
             w.aligned = None
@@ -85,6 +85,7 @@ def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200
             if name not in gases:
                 raise InputError(f"{option}: '{name}' is none of the gases in use ({', '.join(gases)})")
     derive_h2o = "H2O" in gases and "H2O" not in layout.columns
+    settings.relative_noise_gases = ("H2O",) if derive_h2o else ()
     needed = [g for g in gases if not (g == "H2O" and derive_h2o)] + (list(METEO) if derive_h2o else [])
     chunks = read_chunks(layout, needed, chunk_rows=chunk_rows, assume_utc=assume_utc)
     if derive_h2o:

@@ -19,7 +19,7 @@ class RatioSettings:
     h2s_so2_cross_sensitivity: float = 0.0  # ppmv H2S signal per ppmv SO2
     lag_s: dict = field(default_factory=dict)  # gas -> fixed lag (s); else searched
     max_lag_s: float = 30.0
-    min_lag_correlation: float = 0.5
+    min_lag_correlation: float = 0.8
     min_points: int = 30
     min_range_ppmv: dict = field(default_factory=dict)  # gas -> least x-gas range
     min_range_noise: float = 10.0        # least x-gas range in units of its noise
@@ -28,7 +28,8 @@ class RatioSettings:
     keep_flagged: bool = False
     scale_by_mswd: bool = True
     max_gap_s: float = 10.0
-    background_quantile: float = 0.2
+    background_quantile: float = 0.5     # background rows: lower half of the smoothed tracer
+    relative_noise_gases: tuple = ()     # set by the pipeline: ("H2O",) when H2O comes from RH, T, P
 
     def record(self):
         return asdict(self)

@@ -40,7 +40,8 @@ def row_cells(w, gases):
         cells.append("" if not np.isfinite(r.value) else f"{r.censor}{r.value:.6g}")
     for r in w.results:
         cells.append("" if r.censor or not np.isfinite(r.value) else _num(r.relative_sigma, 4))
-    lags = ";".join(f"{g}={v:+g}" for g, v in w.lags_s.items() if v)
+    lags = ";".join(f"{g}={'~' if g in w.lags_kept else ''}{v:+g}" for g, v in w.lags_s.items()
+                    if v or g in w.lags_kept)
     cells += [iso_utc(w.start_ns), iso_utc(w.end_ns), f"{w.first_line}-{w.last_line}", lags]
     ranges = {}
     for r in w.results:
