@@ -40,47 +40,56 @@ def sampling_interval_s(times_ns):
     return float(np.median(np.diff(times_ns))) / NS if times_ns.size > 1 else 1.0
 
 
-def lag_correlations(reference, signal, max_lag):
-    """Pearson r of signal[i + L] with reference[i] over their overlap, L = -max_lag..max_lag;
-    None when the window is too short for the bound."""
+def lag_correlations(reference, signals, max_lag):
+    """Pearson r of signal[i + L] with reference[i] over their overlap, L = -max_lag..max_lag,
+    for each row of signals (G, n) -> (G, 2 max_lag + 1); None when the window is too
+    short for the bound."""
     n = reference.size
     if max_lag < 1 or n < 4 * max_lag + 3:
         return None
     ref = reference - reference.mean()
-    sig = signal - signal.mean()
-    padded = np.concatenate([np.zeros(max_lag), sig, np.zeros(max_lag)])
-    segs = np.lib.stride_tricks.sliding_window_view(padded, n)   # row k: sig shifted by k - max_lag
-    cross = segs @ ref            # sum over the overlap of each shift (zeros outside it)
+    sig = signals - signals.mean(axis=1, keepdims=True)
+    pad = np.zeros((sig.shape[0], max_lag))
+    padded = np.concatenate([pad, sig, pad], axis=1)
+    segs = np.lib.stride_tricks.sliding_window_view(padded, n, axis=1)  # [g, k]: shift k - max_lag
+    cross = segs @ ref            # sums over the overlap of each shift (zeros outside it)
     lags = np.arange(-max_lag, max_lag + 1)
     m = n - np.abs(lags)
-    c_ref, c_ref2 = np.concatenate([[0], np.cumsum(ref)]), np.concatenate([[0], np.cumsum(ref * ref)])
-    c_sig, c_sig2 = np.concatenate([[0], np.cumsum(sig)]), np.concatenate([[0], np.cumsum(sig * sig)])
+    zero = np.zeros((1,))
+    c_ref, c_ref2 = np.concatenate([zero, np.cumsum(ref)]), np.concatenate([zero, np.cumsum(ref * ref)])
+    zeros = np.zeros((sig.shape[0], 1))
+    c_sig = np.concatenate([zeros, np.cumsum(sig, axis=1)], axis=1)
+    c_sig2 = np.concatenate([zeros, np.cumsum(sig * sig, axis=1)], axis=1)
     r_lo, r_hi = np.maximum(0, -lags), n - np.maximum(0, lags)       # ref indices of the overlap
     s_lo, s_hi = r_lo + lags, r_hi + lags                            # signal indices
     s_r, s_rr = c_ref[r_hi] - c_ref[r_lo], c_ref2[r_hi] - c_ref2[r_lo]
-    s_s, s_ss = c_sig[s_hi] - c_sig[s_lo], c_sig2[s_hi] - c_sig2[s_lo]
+    s_s, s_ss = c_sig[:, s_hi] - c_sig[:, s_lo], c_sig2[:, s_hi] - c_sig2[:, s_lo]
     with np.errstate(invalid="ignore", divide="ignore"):
-        r = (cross - s_r * s_s / m) / np.sqrt(np.maximum(s_rr - s_r ** 2 / m, 0)
-                                              * np.maximum(s_ss - s_s ** 2 / m, 0))
-    return r
+        return (cross - s_r * s_s / m) / np.sqrt(np.maximum(s_rr - s_r ** 2 / m, 0)
+                                                 * np.maximum(s_ss - s_s ** 2 / m, 0))
 
 
-def find_lag_samples(reference, signal, max_lag, min_correlation):
-    """Shift L (samples) maximising the correlation of signal[i + L] with reference[i],
-    |L| <= max_lag; 0 when no shift reaches min_correlation. Returns (L, r); r is NaN
-    when the correlation curve is flat (drops by less than MIN_LAG_PROMINENCE)."""
-    r = lag_correlations(reference, signal, max_lag)
-    if r is None:
+def best_lag(curve, max_lag, min_correlation):
+    """(L, r) at the peak of one correlation curve; L = 0 when r < min_correlation, and
+    r = NaN when the curve is flat (drops by less than MIN_LAG_PROMINENCE)."""
+    if curve is None:
         return 0, np.nan
-    finite = np.isfinite(r)
+    finite = np.isfinite(curve)
     if not finite.any():
         return 0, np.nan
-    r = np.where(finite, r, -np.inf)
+    r = np.where(finite, curve, -np.inf)
     best = int(np.argmax(r))
     lag, best_r = best - max_lag, float(r[best])
     if best_r - r[finite].min() < MIN_LAG_PROMINENCE:
         best_r = np.nan      # a flat curve (a trend, no plume peak) locates no lag
     return (lag, best_r) if best_r >= min_correlation else (0, best_r)
+
+
+def find_lag_samples(reference, signal, max_lag, min_correlation):
+    """Shift L (samples) maximising the correlation of signal[i + L] with reference[i],
+    |L| <= max_lag (see best_lag). Returns (L, r)."""
+    curves = lag_correlations(reference, np.asarray(signal, dtype=float)[None, :], max_lag)
+    return best_lag(None if curves is None else curves[0], max_lag, min_correlation)
 
 
 def align(values, lags):
@@ -145,17 +154,16 @@ class LagMemory:
     def __init__(self, keep=25):
         self.keep, self.accepted = keep, {}
 
-    def choose(self, gas, reference, signal, max_lag, min_correlation):
-        """(lag, True when the window's own search gave it)."""
+    def choose(self, gas, curve, max_lag, min_correlation):
+        """(lag, True when the window's own search gave it) from the window's curve."""
         history = self.accepted.setdefault(gas, [])
         usual = int(np.median(history)) if history else 0
-        found, r = find_lag_samples(reference, signal, max_lag, min_correlation)
+        found, r = best_lag(curve, max_lag, min_correlation)
         if not (np.isfinite(r) and r >= min_correlation and abs(found) < max_lag):
             return usual, False
         history.append(found)
         del history[:-self.keep]
-        if len(history) > 1 and found != usual:
-            curve = lag_correlations(reference, signal, max_lag)
+        if len(history) > 1 and found != usual and abs(usual) <= max_lag:
             if curve[found + max_lag] - curve[usual + max_lag] < LAG_SWITCH_MARGIN:
                 return usual, True
         return found, True
@@ -164,15 +172,15 @@ class LagMemory:
 def _lags(values, s, dt, memory):
     lags, searched = {s.tracer: 0}, {}
     max_lag = int(s.max_lag_s / dt)
-    for g, v in values.items():
-        if g == s.tracer:
-            continue
-        if g in s.lag_s:
-            lags[g] = int(round(s.lag_s[g] / dt))
-        elif max_lag >= 1:
-            lags[g], searched[g] = memory.choose(g, values[s.tracer], v, max_lag, s.min_lag_correlation)
-        else:
-            lags[g] = 0
+    search = [g for g in values if g != s.tracer and g not in s.lag_s] if max_lag >= 1 else []
+    for g in values:
+        if g != s.tracer and g not in search:
+            lags[g] = int(round(s.lag_s.get(g, 0.0) / dt))
+    if search:
+        curves = lag_correlations(values[s.tracer], np.array([values[g] for g in search]), max_lag)
+        for k, g in enumerate(search):
+            lags[g], searched[g] = memory.choose(g, None if curves is None else curves[k], max_lag,
+                                                 s.min_lag_correlation)
     return lags, searched
 
 
@@ -238,16 +246,26 @@ def point_sigmas(aligned, noise, background, settings):
 def ratio_results(aligned, noise, sigmas, dl, saturated, window_flags, s):
     n = next(iter(aligned.values())).size
     ranges = robust_ranges(aligned)
-    out = []
-    for ratio in s.ratios:
-        top, bottom = ratio.split("/")
-        if s.method == "york":
-            fit = york_fit(aligned[bottom], aligned[top], _sigma_arg(sigmas[bottom]),
-                           _sigma_arg(sigmas[top]), tol=1e-10)
-        else:
-            fit = ols_fit(aligned[bottom], aligned[top])
-        out.append(_judge(ratio, top, bottom, fit, ranges, noise, dl, saturated, window_flags, n, s))
-    return out
+    pairs = [r.split("/") for r in s.ratios]
+    fits = [None] * len(pairs)
+    if s.method == "york":
+        batch = [k for k, (a, b) in enumerate(pairs) if np.ndim(sigmas[a]) == 0 and np.ndim(sigmas[b]) == 0]
+        if batch:   # one sigma per gas and window: one vectorised call for these ratios
+            x = np.array([aligned[pairs[k][1]] for k in batch])
+            y = np.array([aligned[pairs[k][0]] for k in batch])
+            sx = np.array([[sigmas[pairs[k][1]]] for k in batch])
+            sy = np.array([[sigmas[pairs[k][0]]] for k in batch])
+            fit = york_fit(x, y, sx, sy, tol=1e-10)
+            for j, k in enumerate(batch):
+                fits[k] = type(fit)(*(np.asarray(f)[j:j + 1] for f in vars(fit).values()))
+        for k, (a, b) in enumerate(pairs):
+            if fits[k] is None:
+                fits[k] = york_fit(aligned[b], aligned[a], _sigma_arg(sigmas[b]), _sigma_arg(sigmas[a]),
+                                   tol=1e-10)
+    else:
+        fits = [ols_fit(aligned[b], aligned[a]) for a, b in pairs]
+    return [_judge(ratio, a, b, fit, ranges, noise, dl, saturated, window_flags, n, s)
+            for ratio, (a, b), fit in zip(s.ratios, pairs, fits)]
 
 
 def _sigma_arg(sigma):
