@@ -256,3 +256,32 @@ def test_an_error_deep_in_the_file_leaves_no_output(tmp_path, capsys):
     assert code == 2 and "row 5003" in err and "'ERR'" in err, err     # file line = index + 3 (comment line, header)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["figs", "raw.csv"]
     assert list(figs.iterdir()) == []
+
+
+def _puff_pair(centre, lag, n=600, seed=0):
+    rng = np.random.default_rng(seed)
+    t = np.arange(n, dtype=float)
+    puff = 5.0 * np.exp(-0.5 * ((t - centre) / 20.0) ** 2)
+    late = np.concatenate([np.zeros(lag), puff[:n - lag]])      # the sensor sees it `lag` s later
+    return puff + 0.02 * rng.standard_normal(n), 420 + late / 0.3 + 0.5 * rng.standard_normal(n)
+
+
+@pytest.mark.parametrize("centre", [300, 15, 585])   # mid-window, and puffs cut by the window edges
+def test_lag_found_by_cross_correlation(centre):
+    from ventsource.workflow.plume.analysis import find_lag_samples
+    so2, co2 = _puff_pair(centre, lag=7)
+    lag, r = find_lag_samples(so2, co2, 30, 0.8)
+    assert lag == 7 and r > 0.9
+
+
+def test_lag_search_refuses_a_plain_trend_and_keeps_the_usual_lag():
+    from ventsource.workflow.plume.analysis import LagMemory, find_lag_samples, lag_correlations
+    rng = np.random.default_rng(1)
+    trend = np.linspace(0, 5, 600)
+    so2, co2 = trend + 0.01 * rng.standard_normal(600), 420 + trend / 0.3 + 0.01 * rng.standard_normal(600)
+    assert np.isnan(find_lag_samples(so2, co2, 30, 0.8)[1])     # flat correlation curve: no lag
+    memory = LagMemory()
+    for seed in range(3):
+        a, b = _puff_pair(300, 7, seed=seed)
+        assert memory.choose("CO2", lag_correlations(a, b[None, :], 30)[0], 30, 0.8) == (7, True)
+    assert memory.choose("CO2", lag_correlations(so2, co2[None, :], 30)[0], 30, 0.8) == (7, False)
