@@ -285,3 +285,12 @@ def test_lag_search_refuses_a_plain_trend_and_keeps_the_usual_lag():
         a, b = _puff_pair(300, 7, seed=seed)
         assert memory.choose("CO2", lag_correlations(a, b[None, :], 30)[0], 30, 0.8) == (7, True)
     assert memory.choose("CO2", lag_correlations(so2, co2[None, :], 30)[0], 30, 0.8) == (7, False)
+
+
+def test_times_with_an_offset_come_out_in_utc(tmp_path):
+    frame = synthetic_record(1800, seed=12, start="2026-03-14T01:00:00")
+    frame["time"] = frame["time"].str.replace("Z", "+01:00")
+    raw = _write(tmp_path / "raw.csv", frame)
+    assert main(["ratios", raw, "--out", str(tmp_path / "m.csv")]) == 0
+    row = _rows(tmp_path / "m.csv")[0]
+    assert row["quality start"] == "2026-03-14T00:00:00Z" and row["time"] == "2026-03-14T00:14:59Z"
