@@ -69,6 +69,24 @@ def _analyse_all(windows, gases, settings, figure_stage):
     return results
 
 
+def _run_record(raw_path, layout, needed, derive_h2o, gases, settings, chunk_rows, assume_utc,
+                unit_overrides, hash_input):
+    """Every setting and what was read, for the run record JSON."""
+    return {
+        "program": f"ventsource {__version__} ratios", "python": platform.python_version(),
+        "created_utc": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
+        "input": {"path": os.path.abspath(raw_path), "bytes": os.path.getsize(raw_path),
+                  "sha256": _sha256(raw_path) if hash_input else None,
+                  "columns_used": {g: layout.columns[g] for g in needed},
+                  "unit_conversion": {g: layout.scale[g] for g in needed},
+                  "columns_ignored": layout.ignored,
+                  "h2o": "from T, RH, P: Buck (1981) e_w1 with enhancement factor" if derive_h2o
+                  else "measured column" if "H2O" in gases else "not used"},
+        "settings": settings.record(), "chunk_rows": chunk_rows, "assume_utc": assume_utc,
+        "units_given": dict(unit_overrides or {}),
+    }
+
+
 def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200_000,
                assume_utc=False, figure_dir=None, window_figures=False, hash_input=True):
     """Read raw_path in chunks, analyse each window, write the outputs; returns a summary dict."""
@@ -102,19 +120,8 @@ def run_ratios(raw_path, out_path, settings, unit_overrides=None, chunk_rows=200
         raise
     if not results:
         raise InputError(f"{raw_path}: no data rows under the header")
-    record = {
-        "program": f"ventsource {__version__} ratios", "python": platform.python_version(),
-        "created_utc": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
-        "input": {"path": os.path.abspath(raw_path), "bytes": os.path.getsize(raw_path),
-                  "sha256": _sha256(raw_path) if hash_input else None,
-                  "columns_used": {g: layout.columns[g] for g in needed},
-                  "unit_conversion": {g: layout.scale[g] for g in needed},
-                  "columns_ignored": layout.ignored,
-                  "h2o": "from T, RH, P: Buck (1981) e_w1 with enhancement factor" if derive_h2o
-                  else "measured column" if "H2O" in gases else "not used"},
-        "settings": settings.record(), "chunk_rows": chunk_rows, "assume_utc": assume_utc,
-        "units_given": dict(unit_overrides or {}),
-    }
+    record = _run_record(raw_path, layout, needed, derive_h2o, gases, settings, chunk_rows, assume_utc,
+                         unit_overrides, hash_input)
     if not any(any(r.value == r.value for r in w.results) for w in results):
         from ventsource.workflow.plume.writer import sidecar_paths, write_csv_atomic, header, row_cells
         write_csv_atomic(sidecar_paths(out_path)[0], header(settings.ratios, gases),
