@@ -135,7 +135,7 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series")
+SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series", "ratios")
 
 
 def _prior_path(name):
@@ -163,3 +163,6 @@ def run_benchmarks(quick=False, only=None):
     if "series" in sections:
         from ventsource.bench.series import bench_series
         bench_series(quick=quick)
+    if "ratios" in sections:
+        from ventsource.bench.ratios import bench_ratios
+        bench_ratios(quick=quick)

@@ -9,7 +9,9 @@ Format (CSV, comma-separated, UTF-8, header row):
   (below a detection limit x), `>x` (above the range), or nothing (missing);
 * optional `sigma SO2/CO2`-style columns: relative 1-sigma for that ratio
   per cell (0.15 = 15 %); an empty cell, or no such column, takes the
-  default (the prior file's likelihood.relative_sigma, or --sigma).
+  default (the prior file's likelihood.relative_sigma, or --sigma);
+* optional `quality ...` columns (any name starting with "quality "): notes
+  for people (e.g. points, R^2 and flags of a regression window), not read.
 
 Every problem is reported as one line naming file, row and column.
 """
@@ -25,6 +27,7 @@ from ventsource.ascent.observables import ratio_weights
 
 SIGMA_PREFIX = "sigma "
 WINDOW_COLUMN = "window"  # optional: rows with the same label share one magma source
+QUALITY_PREFIX = "quality "
 
 
 @dataclass
@@ -128,6 +131,8 @@ def read_measurements(path, default_sigma=0.15):
         if col in ("id", "time", WINDOW_COLUMN) or col == "":
             if col == "":
                 _fail(path, 1, col, "empty column name")
+            continue
+        if col.startswith(QUALITY_PREFIX):
             continue
         if col.startswith(SIGMA_PREFIX):
             sigma_cols[col[len(SIGMA_PREFIX):].strip()] = header.index(col)
