@@ -30,7 +30,7 @@ from scipy import special
 
 from ventsource.ascent import observables
 from ventsource.chemistry.species import INDEX, SPECIES
-from ventsource.inference.priors.distributions import Uniform
+from ventsource.inference.priors.distributions import Beta, Uniform
 
 _SO2, _H2S, _H2O = INDEX["SO2"], INDEX["H2S"], INDEX["H2O"]
 V_FLOOR = np.log(1e-6)     # s up to 1 - 1e-6: beyond it SO2 is below any sensor's limit
@@ -100,7 +100,9 @@ class ScrubbingMarginal:
             self._k_inv_var = self.k / s ** 2
             self._all_exact_normal = not np.any(likelihood.c)
             self._ll0_const = float(-np.sum(np.log(s)) - 0.5 * s.size * np.log(2.0 * np.pi))
-        self.uniform = isinstance(distribution, Uniform)
+        # beta(1, 1) is the uniform distribution: same closed form
+        self.uniform = isinstance(distribution, Uniform) or (
+            isinstance(distribution, Beta) and distribution.a == 1.0 and distribution.b == 1.0)
         self.gl_x, self.gl_w = np.polynomial.legendre.leggauss(N_GAUSS)
 
     def _powers(self):
