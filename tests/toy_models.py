@@ -34,6 +34,13 @@ class ToyPrior:
             out[n] = (a, b) if kind == "uniform" else (-np.inf, np.inf)
         return out
 
+    @property
+    def distributions(self) -> dict:
+        """The package's distribution objects (engines that integrate a parameter out need them)."""
+        from ventsource.inference.priors.distributions import TruncNormal, Uniform
+        return {n: Uniform(a, b) if kind == "uniform" else TruncNormal(a, b)
+                for n, (kind, a, b) in self.params.items()}
+
     def sample(self, rng, n):
         cols = []
         for name in self.free_names:
@@ -132,6 +139,27 @@ class ScrubToyForward:
     def status(self, theta_full):
         th = np.atleast_2d(theta_full)
         return np.where(th[:, self.i_depth] > self.no_gas_above, 1, 0)
+
+    # the same toy as a gas composition, for engines that scrub the gas themselves
+    product = "loss"
+    style = "closed"
+
+    def state(self, theta_full, saturation=False):
+        """Gas (n, species) whose ratios are the ones above: CO2 = 1, SO2 = exp(1 - 2 depth)
+        (1 - s), H2S = exp(1 - 2 depth) exp(-2 + depth), H2O = exp(4 - 3 depth)."""
+        from ventsource.chemistry.species import INDEX, SPECIES
+        th = np.atleast_2d(theta_full)
+        z, s = th[:, self.i_depth], th[:, self.i_s]
+        gas = np.zeros((th.shape[0], len(SPECIES)))
+        gas[:, INDEX["CO2"]] = 1.0
+        gas[:, INDEX["SO2"]] = np.exp(1.0 - 2.0 * z) * (1.0 - s)
+        gas[:, INDEX["H2S"]] = np.exp(1.0 - 2.0 * z) * np.exp(-2.0 + z)
+        gas[:, INDEX["H2O"]] = np.exp(4.0 - 3.0 * z)
+        gas /= gas.sum(axis=1, keepdims=True)
+        status = self.status(th)
+        gas[status != 0] = np.nan
+        self.n_calls += th.shape[0]
+        return {"gas": gas, "status": status}
 
 
 def scrub_toy_prior(p_magmatic=0.5, s_max=0.9, likelihood=None):

@@ -271,8 +271,9 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     do_choice = bool(opt["model_choice"])
     if opt["engine"] == "smc":
         if not do_choice or scrub not in tuple(prior.free_names):
-            raise InferenceError(f"infer: engine 'smc' integrates {scrub!r} out and needs it free "
-                                 f"in the prior; use engine='emcee' with model_choice=False")
+            raise InferenceError(f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter "
+                                 f"{scrub!r} (the smc engine integrates it out); use engine='emcee' "
+                                 f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.smc_inference import infer_smc
         return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
     if do_choice and scrub not in tuple(prior.free_names):

@@ -21,7 +21,10 @@ DEMO_PRIOR = ROOT / "priors" / "demo_mount_kerrow.toml"
 DEMO_FAST_PRIOR = ROOT / "priors" / "demo_mount_kerrow_fast.toml"
 # The demo runs with the engine's default settings, as a real run does.
 DEMO_OPTIONS = {}
-DEMO_WINDOW_S = 90 * 86400  # windows of 90 days: about seven measurements share one source
+# Windows of the demo: the user's own periods of one magma supply (a `window` column). The
+# quiet and the scrubbing episodes share the supply (the quiet rows are the magmatic
+# reference that pins it); the deep pulse of fresh magma is a period of its own.
+DEMO_WINDOWS = {"quiet": "steady supply", "scrubbing": "steady supply", "deep pulse": "fresh magma pulse"}
 RATIOS = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 RELATIVE_SIGMA = 0.15  # in-plume sensor ratios carry roughly 10-20 % (common practice, no source)
 DEMO_ROWS = 60
@@ -66,7 +69,8 @@ def make_demo_data(out_dir, n_rows=DEMO_ROWS, seed=2026):
     clean = model.ratios(theta)
     rng = np.random.default_rng(seed)
     noisy = clean * np.exp(rng.normal(0.0, np.log(1 + RELATIVE_SIGMA), clean.shape))
-    data = pd.DataFrame({"id": truth["id"], "time": truth["time"]})
+    data = pd.DataFrame({"id": truth["id"], "time": truth["time"],
+                         "window": truth["episode"].map(DEMO_WINDOWS)})
     for k, r in enumerate(RATIOS):
         data[r] = [f"{v:.5g}" for v in noisy[:, k]]
         truth[f"true {r}"] = clean[:, k]
@@ -91,7 +95,7 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     note = "synthetic demo at a fictional volcano; demo prior with five free parameters"
     run_series(series, str(DEMO_FAST_PRIOR), out_dir, seed=seed, workers=workers, resume=resume,
                options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note,
-               window=DEMO_WINDOW_S)
+               window="column")
     by_row = os.path.join(out_dir, "row_by_row")
     run_series(series, str(DEMO_FAST_PRIOR), by_row, seed=seed, workers=workers, resume=resume,
                options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note)

@@ -36,9 +36,9 @@ def plot_time_series(summary_csv, path, series=None, truth_csv=None, title=""):
     has_p = "pressure_bar_median" in s
     n = len(ratios) + 2 + int(has_p)
     fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.0), sharex=True)
+    truth = pd.read_csv(truth_csv) if truth_csv else None
     if has_p:
         _pressure_panel(axes[-3], s, times, truth)
-    truth = pd.read_csv(truth_csv) if truth_csv else None
     for ax, r in zip(axes, ratios):
         lo, med, hi = (s[f"pp {r}_{q}"].astype(float) for q in ("q05", "median", "q95"))
         ax.fill_between(times, lo, hi, color=BAND, alpha=0.25, lw=0, label="posterior predictive 5-95 %")
