@@ -88,10 +88,10 @@ def bench_speciation(n=100_000, n_cantera=2000):
 def bench_forward(cantera_per_state, quick=False):
     from ventsource.forward.model import ForwardModel
     from ventsource.inference.priors import load_prior_file
-    from pathlib import Path
-    prior = Path(__file__).resolve().parents[3] / "priors" / "arc_basalt.toml"
-    if not prior.exists():
-        print("[forward] skipped: priors/arc_basalt.toml not found next to the package")
+    from ventsource.inference.priors.shipped import shipped_prior_path
+    prior = shipped_prior_path("arc_basalt")
+    if prior is None:
+        print("[forward] skipped: shipped prior arc_basalt not found")
         return
     spec = load_prior_file(prior)
     model = ForwardModel(spec)

@@ -58,7 +58,8 @@ def build_parser():
     sp.set_defaults(handler=cmd_speciate)
 
     fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
-    fp.add_argument("--prior", required=True, help="prior file (TOML) giving melt and model choices")
+    fp.add_argument("--prior", required=True,
+                    help="prior file (TOML) or shipped prior name (see `ventsource priors`)")
     fp.add_argument("--set", nargs="+", default=[], metavar="NAME=VALUE",
                     help="parameter values, e.g. pressure_bar=200 temperature_c=1100")
     fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2")
@@ -100,6 +101,9 @@ def build_parser():
     dp.add_argument("--workers", type=int, default=2)
     dp.add_argument("--resume", action="store_true")
     dp.set_defaults(handler=cmd_demo)
+
+    lp = sub.add_parser("priors", help="list the shipped prior files (usable by name: --prior NAME)")
+    lp.set_defaults(handler=cmd_priors)
 
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
     bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
@@ -399,6 +403,27 @@ def cmd_demo(args):
     return 0
 
 
+def cmd_priors(args):
+    from ventsource.inference.priors.shipped import shipped_prior_descriptions
+    entries = shipped_prior_descriptions()
+    if not entries:
+        raise InputError("no shipped prior files found in this installation")
+    width = max(len(name) for name, _ in entries)
+    for name, text in entries:
+        print(f"{name:<{width}}  {text}")
+    return 0
+
+
+def _resolve_prior_args(args):
+    """--prior NAME of a shipped prior -> its path, wherever a prior file path is accepted."""
+    from ventsource.inference.priors.shipped import resolve_prior
+    prior = getattr(args, "prior", None)
+    if isinstance(prior, list):
+        args.prior = [resolve_prior(p) for p in prior]
+    elif prior is not None:
+        args.prior = resolve_prior(prior)
+
+
 def cmd_bench(args):
     from ventsource.bench.speed import run_benchmarks
     run_benchmarks(quick=args.quick, only=args.only)
@@ -412,6 +437,7 @@ def main(argv=None):
         if not getattr(args, "handler", None):
             parser.print_help()
             return EXIT_USAGE
+        _resolve_prior_args(args)
         if args.command in ("run", "compare", "demo", "bench"):
             from ventsource.common.threads import single_thread_environment
             single_thread_environment()  # before NumPy loads: one BLAS thread per process

@@ -7,18 +7,18 @@ CO2-rich gas from fresh magma, and growing SO2 scrubbing as a shallow
 hydrothermal system develops.
 """
 import os
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from ventsource.inference.priors.shipped import shipped_prior_path
 
-ROOT = Path(__file__).resolve().parents[3]
-DEMO_PRIOR = ROOT / "priors" / "demo_mount_kerrow.toml"
+# shipped prior files (package data of an installed package, priors/ of a source checkout)
+DEMO_PRIOR = shipped_prior_path("demo_mount_kerrow")
 # Demo setting: the inversion uses a variant of the demo prior with five free parameters
 # (pressure_bar, dfmq, scrubbed_so2, co2_ppm, s_ppm); the others are held at the values
 # the synthetic series was made with, so 60 rows invert in minutes on two cores.
-DEMO_FAST_PRIOR = ROOT / "priors" / "demo_mount_kerrow_fast.toml"
+DEMO_FAST_PRIOR = shipped_prior_path("demo_mount_kerrow_fast")
 # Demo setting: a low target ESS and a short chain cap (see README); real runs use the defaults.
 DEMO_OPTIONS = dict(n_walkers=40, target_ess=150, max_steps=600, n_proposal=3000,
                     n_prior_draws=500, min_tau_factor=10, rhat_target=1.05)
