@@ -312,6 +312,12 @@ def _inference_options(args):
         except ValueError:
             value = text
         opts[name] = value
+    from ventsource.inference.option_rules import OptionError, check_option
+    for name, value in opts.items():  # type and range of every option, before anything runs
+        try:
+            opts[name] = check_option(name, value, _DEFAULTS)
+        except OptionError as exc:
+            raise InputError(f"--infer-{exc}") from None
     return opts
 
 
