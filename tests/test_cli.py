@@ -158,13 +158,13 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     data = tmp_path / "m.csv"
     data.write_text(GOOD_DATA)
     out = tmp_path / "out"
-    # alpha outside (0, 0.5) is refused by infer for the first row
+    # 4 walkers for 5 free parameters: refused by the sampler for the first row
     code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
-                        "--out", str(out), "--infer-option", "alpha=0.9"], capsys)
+                        "--out", str(out), "--infer-option", "n_walkers=4"], capsys)
     assert code == 2
     lines = err.strip().splitlines()   # progress lines, then the error as the last line
     assert lines[-1].startswith("error: ") and sum(ln.startswith("error") for ln in lines) == 1
-    assert "Traceback" not in err and "KRW-001" in lines[-1] and "alpha" in lines[-1]
+    assert "Traceback" not in err and "KRW-001" in lines[-1] and "n_walkers" in lines[-1]
     assert not (out / "summary.csv").exists() and not (out / "hazard.json").exists()
     assert json.loads((out / "run.json").read_text())["status"] == "running"
 

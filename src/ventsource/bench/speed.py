@@ -134,7 +134,7 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "series")
+SECTIONS = ("speciation", "forward", "inference", "series", "reader")
 
 
 def run_benchmarks(quick=False, only=None):
@@ -150,3 +150,6 @@ def run_benchmarks(quick=False, only=None):
     if "series" in sections:
         from ventsource.bench.series import bench_series
         bench_series(quick=quick)
+    if "reader" in sections:
+        from ventsource.bench.reader import bench_reader
+        bench_reader(quick=quick)

@@ -107,7 +107,7 @@ def build_parser():
 
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
     bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
-    bp.add_argument("--only", choices=["speciation", "forward", "inference", "series"], action="append",
+    bp.add_argument("--only", choices=["speciation", "forward", "inference", "series", "reader"], action="append",
                     help="run only the named benchmark sections")
     bp.set_defaults(handler=cmd_bench)
     return parser
