@@ -273,7 +273,9 @@ def cmd_prior_predictive(args):
 
 
 def _series_options(p):
-    p.add_argument("--workers", type=int, default=1, help="local worker processes")
+    p.add_argument("--workers", type=int, default=1,
+                   help="local worker processes (capped at the rows to invert and the cores)")
+    p.add_argument("--oversubscribe", action="store_true", help="allow more --workers than cores")
     where = p.add_mutually_exclusive_group()
     where.add_argument("--dask-scheduler", metavar="ADDRESS",
                        help="run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786")
@@ -357,7 +359,7 @@ def cmd_run(args):
             raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
-               dask_local=args.dask_local)
+               dask_local=args.dask_local, oversubscribe=args.oversubscribe)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
