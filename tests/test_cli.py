@@ -133,6 +133,14 @@ def test_run_with_malformed_prior(prior, tmp_path, capsys):
     (["--dask-local", "--dask-scheduler", "tcp://x:1"], "not allowed with"),
     (["--sigma", "-1"], "--sigma"),
     (["--sigma", "CO/CO2=0.2"], "not a ratio column"),
+    (["--infer-option", "pi0=1.5"], "pi0=1.5: outside the allowed range (0, 1)"),
+    (["--infer-option", "max_steps=0"], "max_steps=0: outside the allowed range"),
+    (["--infer-option", "target_ess=x"], "target_ess='x': must be a number"),
+    (["--infer-option", "target_ess=-5"], "target_ess=-5.0: outside the allowed range"),
+    (["--infer-option", "epsilon=2"], "epsilon=2.0: outside the allowed range (0, 1)"),
+    (["--infer-option", "model_choice=yes"], "model_choice='yes': must be true or false"),
+    (["--seed", "abc"], "--seed"),
+    (["--out", "/dev/null/x"], "is a file, not a folder"),
 ])
 def test_run_bad_options(extra, needle, tmp_path, capsys):
     data = tmp_path / "m.csv"
