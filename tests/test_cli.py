@@ -174,7 +174,8 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     assert lines[-1].startswith("error: ") and sum(ln.startswith("error") for ln in lines) == 1
     assert "Traceback" not in err and "KRW-001" in lines[-1] and "n_walkers" in lines[-1]
     assert not (out / "summary.csv").exists() and not (out / "hazard.json").exists()
-    assert json.loads((out / "run.json").read_text())["status"] == "running"
+    record = json.loads((out / "run.json").read_text())
+    assert record["status"] == "stopped" and "n_walkers" in record["error"]   # and resumable
 
 
 def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):

@@ -453,6 +453,10 @@ def main(argv=None):
     except InputError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_USAGE
+    except OSError as exc:  # a write the run could not make (disk full, read-only folder...)
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"error: {where}cannot read or write ({exc.strerror or exc})", file=sys.stderr)
+        return EXIT_USAGE
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130

@@ -305,8 +305,11 @@ class _FolderLock:
         self.path, self.fh = os.path.join(out_dir, LOCK_NAME), None
 
     def __enter__(self):
-        os.makedirs(os.path.dirname(self.path), exist_ok=True)
-        self.fh = open(self.path, "a")
+        try:
+            os.makedirs(os.path.dirname(self.path), exist_ok=True)
+            self.fh = open(self.path, "a")
+        except OSError as exc:
+            raise InputError(f"{os.path.dirname(self.path)}: cannot write ({exc.strerror or exc})") from None
         try:
             fcntl.flock(self.fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
         except OSError:
