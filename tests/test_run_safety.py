@@ -186,11 +186,12 @@ def test_second_run_into_a_locked_folder_is_refused(inputs, finished, tmp_path, 
     with open(os.path.join(out, ".lock"), "a") as held:   # another run holds the folder
         fcntl.flock(held.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
         before = snapshot(out)
-        code = main(["run", inputs[0], "--prior", inputs[1], "--out", out, *TINY_CLI, "--resume"])
-        err = capsys.readouterr().err
-        one_line_exit_2(code, err)
-        assert "another run is using this folder" in err
-        assert snapshot(out) == before
+        for resume in (["--resume"], []):   # with or without --resume: the live run is named
+            code = main(["run", inputs[0], "--prior", inputs[1], "--out", out, *TINY_CLI, *resume])
+            err = capsys.readouterr().err
+            one_line_exit_2(code, err)
+            assert "another run is using this folder" in err
+            assert snapshot(out) == before
 
 
 def test_worker_count_is_capped_at_rows_and_cores():

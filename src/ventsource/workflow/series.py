@@ -298,6 +298,14 @@ def _short(value):
     return text if len(text) <= 40 else text[:12] + "..."
 
 
+def _refuse_if_in_use(out_dir):
+    """A run holding the folder's lock is named as such, whatever else the folder holds."""
+    path = os.path.join(out_dir, LOCK_NAME)
+    if os.path.exists(path):
+        with _FolderLock(out_dir):
+            pass
+
+
 class _FolderLock:
     """An exclusive flock on OUT/.lock for the life of a run."""
 
@@ -341,6 +349,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     prior_sha = file_sha256(prior_path)
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     _check_output_folder(out_dir)
+    _refuse_if_in_use(out_dir)
     _earlier_run(out_dir, settings, resume)
     with _FolderLock(out_dir):
         old = _earlier_run(out_dir, settings, resume)  # again, now that no other run can write
