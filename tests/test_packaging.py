@@ -112,3 +112,7 @@ def test_editable_install_finds_shipped_priors(tmp_path):
     listed = subprocess.run([str(venv / "bin" / "ventsource"), "priors"], cwd=tmp_path, env=env,
                             capture_output=True, text=True)
     assert listed.returncode == 0 and "arc_basalt" in listed.stdout, listed.stderr
+
+
+def test_python_api_takes_a_shipped_name_too():
+    assert load_prior_file("rhyolite_silicic").path == resolve_prior("rhyolite_silicic")

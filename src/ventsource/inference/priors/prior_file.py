@@ -445,8 +445,10 @@ _TOML_EOF = re.compile(r"^(?P<msg>.*?)\s*\(at end of document\)\s*$")
 
 
 def load_prior_file(path: str | os.PathLike) -> "PriorSpec":
-    """Read, validate and return the prior in the TOML file at ``path``."""
-    file = os.fspath(path)
+    """Read, validate and return the prior in the TOML file at ``path`` (or the shipped prior
+    of that name, e.g. "arc_basalt", when no such file exists)."""
+    from ventsource.inference.priors.shipped import resolve_prior
+    file = resolve_prior(os.fspath(path))
     try:
         with open(file, "rb") as fh:
             raw = fh.read()
