@@ -386,7 +386,8 @@ def cmd_compare(args):
               for path, spec in zip(args.prior, specs)}
     out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                       resume=args.resume, options=_inference_options(args),
-                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local)
+                      dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
+                      oversubscribe=args.oversubscribe)
     print(f"comparison in {args.out}/: {', '.join(os.path.relpath(p, args.out) for p in out)}")
     print(f"Caution: {CAUTION}")
     return 0
