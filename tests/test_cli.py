@@ -133,6 +133,14 @@ def test_run_with_malformed_prior(prior, tmp_path, capsys):
     (["--dask-local", "--dask-scheduler", "tcp://x:1"], "not allowed with"),
     (["--sigma", "-1"], "--sigma"),
     (["--sigma", "CO/CO2=0.2"], "not a ratio column"),
+    (["--infer-option", "pi0=1.5"], "pi0=1.5: outside the allowed range (0, 1)"),
+    (["--infer-option", "max_steps=0"], "max_steps=0: outside the allowed range"),
+    (["--infer-option", "target_ess=x"], "target_ess='x': must be a number"),
+    (["--infer-option", "target_ess=-5"], "target_ess=-5.0: outside the allowed range"),
+    (["--infer-option", "epsilon=2"], "epsilon=2.0: outside the allowed range (0, 1)"),
+    (["--infer-option", "model_choice=yes"], "model_choice='yes': must be true or false"),
+    (["--seed", "abc"], "--seed"),
+    (["--out", "/dev/null/x"], "is a file, not a folder"),
 ])
 def test_run_bad_options(extra, needle, tmp_path, capsys):
     data = tmp_path / "m.csv"
@@ -158,15 +166,16 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     data = tmp_path / "m.csv"
     data.write_text(GOOD_DATA)
     out = tmp_path / "out"
-    # alpha outside (0, 0.5) is refused by infer for the first row
+    # 4 walkers for 5 free parameters: refused by the sampler for the first row
     code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
-                        "--out", str(out), "--infer-option", "alpha=0.9"], capsys)
+                        "--out", str(out), "--infer-option", "n_walkers=4"], capsys)
     assert code == 2
     lines = err.strip().splitlines()   # progress lines, then the error as the last line
     assert lines[-1].startswith("error: ") and sum(ln.startswith("error") for ln in lines) == 1
-    assert "Traceback" not in err and "KRW-001" in lines[-1] and "alpha" in lines[-1]
+    assert "Traceback" not in err and "KRW-001" in lines[-1] and "n_walkers" in lines[-1]
     assert not (out / "summary.csv").exists() and not (out / "hazard.json").exists()
-    assert json.loads((out / "run.json").read_text())["status"] == "running"
+    record = json.loads((out / "run.json").read_text())
+    assert record["status"] == "stopped" and "n_walkers" in record["error"]   # and resumable
 
 
 def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):

@@ -325,12 +325,21 @@ def test_bad_prior_file_gives_one_line_error(path):
     assert msg.startswith(f"{path}: "), msg
     if expect.startswith("key "):
         assert msg.startswith(f"{path}: {expect}: "), msg
-    else:  # TOML syntax error: the line number instead of a key
+    elif expect == "file":  # unreadable as a whole: no key or line to name
+        assert "not readable as TOML" in msg, msg
+    else:  # TOML syntax error or nesting beyond the limit: the line number instead of a key
         assert re.fullmatch(r"line \d+", expect)
         assert msg.startswith(f"{path}: {expect}, column "), msg
-        assert "TOML syntax error" in msg
+        assert "TOML syntax error" in msg or "nested more than" in msg
     # explanation after the key is not empty
     assert len(msg.split(": ", 2)[-1]) > 5
+
+
+def test_utf8_bom_is_accepted(tmp_path):
+    # a byte-order mark, as some editors write it, is not part of the TOML text
+    path = tmp_path / "bom.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + (PRIOR_DIR / "arc_basalt.toml").read_bytes())
+    assert load_prior_file(path).to_dict()["parameters"] == load_prior_file(PRIOR_DIR / "arc_basalt.toml").to_dict()["parameters"]
 
 
 def test_missing_file():

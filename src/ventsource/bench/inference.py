@@ -16,7 +16,6 @@ Targets of the issue: <= 3 s per measurement and >= 20x fewer forward evaluation
 brute force.  The numbers are printed as measured, never adjusted.
 """
 import time
-from pathlib import Path
 
 import numpy as np
 
@@ -43,9 +42,10 @@ def bench_inference(quick=False):
     from ventsource.inference.model_choice import posterior_model_probability
     from ventsource.inference.priors import load_prior_file
 
-    path = Path(__file__).resolve().parents[3] / "priors" / "arc_basalt.toml"
-    if not path.exists():
-        print("[inference] skipped: priors/arc_basalt.toml not found next to the package")
+    from ventsource.inference.priors.shipped import shipped_prior_path
+    path = shipped_prior_path("arc_basalt")
+    if path is None:
+        print("[inference] skipped: shipped prior arc_basalt not found")
         return None
     spec = load_prior_file(path)
     forward = ForwardModel(spec, ratio_names=("SO2/CO2", "H2S/SO2", "H2O/CO2"))

@@ -89,10 +89,10 @@ def bench_speciation(n=100_000, n_cantera=2000):
 def bench_forward(cantera_per_state, quick=False):
     from ventsource.forward.model import ForwardModel
     from ventsource.inference.priors import load_prior_file
-    from pathlib import Path
-    prior = Path(__file__).resolve().parents[3] / "priors" / "arc_basalt.toml"
-    if not prior.exists():
-        print("[forward] skipped: priors/arc_basalt.toml not found next to the package")
+    from ventsource.inference.priors.shipped import shipped_prior_path
+    prior = shipped_prior_path("arc_basalt")
+    if prior is None:
+        print("[forward] skipped: shipped prior arc_basalt not found")
         return
     spec = load_prior_file(prior)
     model = ForwardModel(spec)
@@ -135,11 +135,12 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series", "ratios")
+SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series", "ratios", "reader")
 
 
 def _prior_path(name):
-    return Path(__file__).resolve().parents[3] / "priors" / f"{name}.toml"
+    from ventsource.inference.priors.shipped import shipped_prior_path
+    return shipped_prior_path(name)
 
 
 def run_benchmarks(quick=False, only=None):
@@ -166,3 +167,6 @@ def run_benchmarks(quick=False, only=None):
     if "ratios" in sections:
         from ventsource.bench.ratios import bench_ratios
         bench_ratios(quick=quick)
+    if "reader" in sections:
+        from ventsource.bench.reader import bench_reader
+        bench_reader(quick=quick)

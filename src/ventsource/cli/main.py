@@ -58,7 +58,8 @@ def build_parser():
     sp.set_defaults(handler=cmd_speciate)
 
     fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
-    fp.add_argument("--prior", required=True, help="prior file (TOML) giving melt and model choices")
+    fp.add_argument("--prior", required=True,
+                    help="prior file (TOML) or shipped prior name (see `ventsource priors`)")
     fp.add_argument("--set", nargs="+", default=[], metavar="NAME=VALUE",
                     help="parameter values, e.g. pressure_bar=200 temperature_c=1100")
     fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2")
@@ -101,9 +102,12 @@ def build_parser():
     dp.add_argument("--resume", action="store_true")
     dp.set_defaults(handler=cmd_demo)
 
+    lp = sub.add_parser("priors", help="list the shipped prior files (usable by name: --prior NAME)")
+    lp.set_defaults(handler=cmd_priors)
+
     bp = sub.add_parser("bench", help="speed benchmarks, as ratios to a reference in the same run")
     bp.add_argument("--quick", action="store_true", help="smaller batches (for a smoke test)")
-    bp.add_argument("--only", choices=["speciation", "forward", "inference", "window", "emcee", "series", "ratios"], action="append",
+    bp.add_argument("--only", choices=["speciation", "forward", "inference", "window", "emcee", "series", "ratios", "reader"], action="append",
                     help="run only the named benchmark sections")
     bp.set_defaults(handler=cmd_bench)
     from ventsource.cli import ratios_command
@@ -271,7 +275,9 @@ def cmd_prior_predictive(args):
 
 
 def _series_options(p):
-    p.add_argument("--workers", type=int, default=1, help="local worker processes")
+    p.add_argument("--workers", type=int, default=1,
+                   help="local worker processes (capped at the rows to invert and the cores)")
+    p.add_argument("--oversubscribe", action="store_true", help="allow more --workers than cores")
     where = p.add_mutually_exclusive_group()
     where.add_argument("--dask-scheduler", metavar="ADDRESS",
                        help="run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786")
@@ -320,6 +326,12 @@ def _inference_options(args):
         opts[name] = value
     if getattr(args, "engine", None):
         opts["engine"] = args.engine
+    from ventsource.inference.option_rules import OptionError, check_option
+    for name, value in opts.items():  # type and range of every option, before anything runs
+        try:
+            opts[name] = check_option(name, value, _DEFAULTS)
+        except OptionError as exc:
+            raise InputError(f"--infer-{exc}") from None
     return opts
 
 
@@ -365,7 +377,7 @@ def cmd_run(args):
     window = _window_option(args)
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
-               dask_local=args.dask_local, window=window)
+               dask_local=args.dask_local, window=window, oversubscribe=args.oversubscribe)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
@@ -393,7 +405,7 @@ def cmd_compare(args):
     out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                       resume=args.resume, options=_inference_options(args),
                       dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
-                      window=_window_option(args))
+                      window=_window_option(args), oversubscribe=args.oversubscribe)
     print(f"comparison in {args.out}/: {', '.join(os.path.relpath(p, args.out) for p in out)}")
     print(f"Caution: {CAUTION}")
     return 0
@@ -418,6 +430,27 @@ def cmd_demo(args):
     return 0
 
 
+def cmd_priors(args):
+    from ventsource.inference.priors.shipped import shipped_prior_descriptions
+    entries = shipped_prior_descriptions()
+    if not entries:
+        raise InputError("no shipped prior files found in this installation")
+    width = max(len(name) for name, _ in entries)
+    for name, text in entries:
+        print(f"{name:<{width}}  {text}")
+    return 0
+
+
+def _resolve_prior_args(args):
+    """--prior NAME of a shipped prior -> its path, wherever a prior file path is accepted."""
+    from ventsource.inference.priors.shipped import resolve_prior
+    prior = getattr(args, "prior", None)
+    if isinstance(prior, list):
+        args.prior = [resolve_prior(p) for p in prior]
+    elif prior is not None:
+        args.prior = resolve_prior(prior)
+
+
 def cmd_bench(args):
     from ventsource.bench.speed import run_benchmarks
     run_benchmarks(quick=args.quick, only=args.only)
@@ -431,12 +464,17 @@ def main(argv=None):
         if not getattr(args, "handler", None):
             parser.print_help()
             return EXIT_USAGE
+        _resolve_prior_args(args)
         if args.command in ("run", "compare", "demo", "bench"):
             from ventsource.common.threads import single_thread_environment
             single_thread_environment()  # before NumPy loads: one BLAS thread per process
         return args.handler(args)
     except InputError as exc:
         print(f"error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    except OSError as exc:  # a write the run could not make (disk full, read-only folder...)
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"error: {where}cannot read or write ({exc.strerror or exc})", file=sys.stderr)
         return EXIT_USAGE
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)

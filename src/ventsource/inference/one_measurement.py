@@ -15,6 +15,7 @@ import numpy as np
 
 from ventsource.inference.evidence.bridge import BridgeResult, bridge_sampling, prior_monte_carlo_evidence, support_bounds, _likelihood_options
 from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError
+from ventsource.inference.option_rules import OptionError, check_options
 from ventsource.inference.model_choice import (PredictiveCheck, model_flags, posterior_model_probability,
                            predictive_check, probability_below)
 from ventsource.inference.engines.emcee_engine import LogPosterior, SampleResult, SamplerError, sample_posterior
@@ -146,14 +147,20 @@ def _check_options(options: dict) -> dict:
     if unknown:
         raise InferenceError(f"infer: unknown option(s) {unknown}; known: {sorted(_DEFAULTS)}")
     out = dict(_DEFAULTS)
-    out.update(options)
-    if not (0.0 < out["alpha"] < 0.5):
-        raise InferenceError(f"infer: alpha must be in (0, 0.5), got {out['alpha']!r}")
-    if not (out["epsilon"] > 0):
-        raise InferenceError(f"infer: epsilon must be positive, got {out['epsilon']!r}")
-    if out["engine"] not in ENGINES:
-        raise InferenceError(f"infer: engine must be one of {', '.join(ENGINES)}, got {out['engine']!r}")
+    try:  # type and range of each option: the table in option_rules
+        out.update(check_options(options, _DEFAULTS))
+    except OptionError as exc:
+        raise InferenceError(f"infer: {exc}") from None
     return out
+
+
+def _check_call(measurement, prior, seed):
+    if not isinstance(measurement, Measurement):
+        raise InferenceError(f"infer: measurement must be a ventsource.inference.likelihood.Measurement, got {type(measurement).__name__}")
+    if not all(hasattr(prior, a) for a in ("free_names", "sample", "log_prob", "with_fixed")):
+        raise InferenceError(f"infer: prior must be a PriorSpec (see load_prior_file), got {type(prior).__name__}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InferenceError(f"infer: seed must be a whole number >= 0, got {seed!r}")
 
 
 def _run_model(name, prior, forward, lik, seeds, opt) -> ModelRun:
@@ -254,8 +261,7 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     0.15); the prior file's likelihood.relative_sigma is not applied here - readers of
     measurement files use it when a file gives no uncertainty.
     """
-    if not isinstance(measurement, Measurement):
-        raise InferenceError(f"infer: measurement must be a ventsource.inference.likelihood.Measurement, got {type(measurement).__name__}")
+    _check_call(measurement, prior, seed)
     opt = _check_options(options)
     if forward is None:
         from ventsource.forward.model import ForwardModel  # lazy: the physics is heavy and optional for tests

@@ -42,7 +42,7 @@ def _posterior(out_dir, rid):
 
 def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume=False,
                 options=None, dask_scheduler=None, dask_local=False, progress_stream=None,
-                window=None):
+                window=None, oversubscribe=False):
     """Run every prior, write compare.csv and compare.png; returns their paths."""
     from ventsource.inference.priors import load_prior_file
     specs = [load_prior_file(p) for p in prior_paths]
@@ -52,7 +52,8 @@ def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume
     for path, spec in zip(prior_paths, specs):
         rows = run_series(series_by_prior[path], path, run_dirs[spec.name], seed=seed, workers=workers,
                           resume=resume, options=options, dask_scheduler=dask_scheduler,
-                          dask_local=dask_local, progress_stream=progress_stream, window=window)
+                          dask_local=dask_local, progress_stream=progress_stream, window=window,
+                          oversubscribe=oversubscribe)
         results[spec.name] = {r["id"]: r for r in rows}
     series = series_by_prior[prior_paths[0]]
     table = compare_table(series.ids, names, specs, results, run_dirs)

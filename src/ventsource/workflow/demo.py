@@ -7,18 +7,18 @@ CO2-rich gas from fresh magma, and growing SO2 scrubbing as a shallow
 hydrothermal system develops.
 """
 import os
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from ventsource.inference.priors.shipped import shipped_prior_path
 
-ROOT = Path(__file__).resolve().parents[3]
-DEMO_PRIOR = ROOT / "priors" / "demo_mount_kerrow.toml"
+# shipped prior files (package data of an installed package, priors/ of a source checkout)
+DEMO_PRIOR = shipped_prior_path("demo_mount_kerrow")
 # Demo setting: the inversion uses a variant of the demo prior with five free parameters
 # (pressure_bar, dfmq, scrubbed_so2, co2_ppm, s_ppm); the others are held at the values
 # the synthetic series was made with, so 60 rows invert in minutes on two cores.
-DEMO_FAST_PRIOR = ROOT / "priors" / "demo_mount_kerrow_fast.toml"
+DEMO_FAST_PRIOR = shipped_prior_path("demo_mount_kerrow_fast")
 # The demo runs with the engine's default settings, as a real run does.
 DEMO_OPTIONS = {}
 # Windows of the demo: the user's own periods of one magma supply (a `window` column). The

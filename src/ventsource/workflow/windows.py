@@ -61,13 +61,12 @@ def window_key(label):
 
 def invert_window(args):
     """Invert one window and write its files; returns the summary rows of its rows."""
-    prior_path, label, ids, times, measurements, seed, options, out_dir = args
+    prior_path, prior_ref, label, ids, times, measurements, seed, options, out_dir = args
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()
-    from ventsource.inference.priors import load_prior_file
     from ventsource.inference.window_inference import WindowError, infer_window
-    from ventsource.workflow.series import row_key, write_row_json
-    spec = load_prior_file(prior_path)
+    from ventsource.workflow.series import _atomic, _cached_spec, _dump_json, file_sha256, row_key
+    spec = _cached_spec(prior_path, prior_ref["sha256"])
     opts = {k: v for k, v in options.items() if k in _WINDOW_OPTION_NAMES}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -75,13 +74,16 @@ def invert_window(args):
             res = infer_window(measurements, spec, seed=seed, **opts)
         except WindowError as exc:
             raise InputError(f"window '{label}': {exc}") from None
+    idata = res.idata()
+    idata.posterior.attrs["prior"] = json.dumps(prior_ref)
     nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")
-    res.idata().to_netcdf(nc + ".part")
-    os.replace(nc + ".part", nc)
+    _atomic(nc, idata.to_netcdf)
+    nc_sha = file_sha256(nc)
     rows = []
     for rid, t, r in zip(ids, times, res.rows):
         row = window_row_summary(rid, t, label, r, res, seed)
-        write_row_json(out_dir, row_key(rid), row)
+        row["nc_sha256"], row["prior_sha256"] = nc_sha, prior_ref["sha256"]
+        _atomic(os.path.join(out_dir, "rows", f"{row_key(rid)}.json"), lambda part: _dump_json(part, row, None))
         rows.append(row)
     return rows
 
@@ -114,21 +116,25 @@ def window_summary_columns(ratio_names):
 
 
 def read_done_windows(out_dir, groups, ids):
-    """Rows of windows whose files are all present (resume)."""
-    from ventsource.workflow.series import row_key
+    """Rows of windows whose files are all present and agree (resume): every row's summary
+    names the window file's sha256; anything else is inverted again."""
+    from ventsource.workflow.series import file_sha256, row_key
     done = {}
     for label, idx in groups:
-        if not os.path.exists(os.path.join(out_dir, "windows", f"{window_key(label)}.nc")):
+        nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")
+        if not os.path.exists(nc):
             continue
-        rows = {}
+        sha, rows = file_sha256(nc), {}
         for i in idx:
-            js = os.path.join(out_dir, "rows", f"{row_key(ids[i])}.json")
             try:
-                with open(js) as fh:
-                    rows[ids[i]] = json.load(fh)
+                with open(os.path.join(out_dir, "rows", f"{row_key(ids[i])}.json")) as fh:
+                    row = json.load(fh)
             except (OSError, ValueError):
+                row = None
+            if not isinstance(row, dict) or row.get("id") != ids[i] or row.get("nc_sha256") != sha:
                 rows = None
                 break
+            rows[ids[i]] = row
         if rows:
             done.update(rows)
     return done

@@ -52,7 +52,10 @@ def read_number(file: str, table: Mapping, key: str, keypath: str, required: boo
     value = table[key]
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise key_error(file, keypath, f"must be a number, got {type_name(value)} {value!r}")
-    value = float(value)
+    try:
+        value = float(value)
+    except OverflowError:  # an integer beyond the float range (about 1.8e308)
+        raise key_error(file, keypath, f"number too large ({value.bit_length()}-bit integer)") from None
     if not math.isfinite(value):
         raise key_error(file, keypath, f"must be finite, got {value}")
     return value
