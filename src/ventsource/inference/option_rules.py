@@ -41,7 +41,6 @@ OPTION_RULES = {
     "ess_target": ("float", (0.0, 1.0, True, True)),
     "max_moves": ("int", (1, 1000, False, False)),
     "smc_rhat_max": ("float", (1.0, INF, True, True)),
-    "n_source_check": ("int", (10, 10_000_000, False, False)),  # window model only
 }
 # options that may also be given as Python objects the table cannot describe
 PYTHON_OBJECT_OK = {"moves": list}
