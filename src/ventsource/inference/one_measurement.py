@@ -9,6 +9,7 @@ into an ArviZ InferenceData with units in attributes.
 from __future__ import annotations
 
 import json
+from numbers import Integral, Real
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -41,6 +42,14 @@ _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, ta
                  engine="smc", n_particles=500, n_runs=4, ess_target=0.5, max_moves=30,
                  smc_rhat_max=1.01)
 ENGINES = ("smc", "emcee")
+# SMC options checked before any sampling: name -> (types, min, max, wording)
+_SMC_OPTION_RANGES = {
+    "n_particles": (Integral, 2, 10**7, "an integer >= 2"),
+    "n_runs": (Integral, 2, 1000, "an integer >= 2 (the Monte Carlo error needs independent runs)"),
+    "ess_target": (Real, 0.0, 1.0, "a number strictly between 0 and 1"),
+    "max_moves": (Integral, 1, 10**5, "an integer >= 1"),
+    "smc_rhat_max": (Real, 1.0, np.inf, "a number >= 1"),
+}
 
 
 class InferenceError(ValueError):
@@ -153,6 +162,11 @@ def _check_options(options: dict) -> dict:
         raise InferenceError(f"infer: epsilon must be positive, got {out['epsilon']!r}")
     if out["engine"] not in ENGINES:
         raise InferenceError(f"infer: engine must be one of {', '.join(ENGINES)}, got {out['engine']!r}")
+    for name, (kind, lo, hi, text) in _SMC_OPTION_RANGES.items():
+        v = out[name]
+        ok = isinstance(v, kind) and not isinstance(v, bool) and lo <= v <= hi
+        if not ok or (name == "ess_target" and v in (0.0, 1.0)):
+            raise InferenceError(f"infer: {name} must be {text}, got {v!r}")
     return out
 
 
