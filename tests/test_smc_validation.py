@@ -101,6 +101,8 @@ def test_sbc_toy_200():
         res = tempered_smc(*_toy_problem(y), n_particles=300, n_runs=2, seed=int(rng.integers(2**31)))
         ranks[i] = _rank(res.theta.reshape(-1, 2), truth, rng)
     p = _rank_p_values(ranks)
+    # measured: p = 0.036 (x0), 0.443 (x1) with these 300 replicates; 1000 replicates with
+    # another seed gave 0.252 and 0.414
     print("toy SBC chi-square p-values", np.round(p, 3),
           [np.histogram(c, N_BINS, (0, N_RANK + 1))[0].tolist() for c in ranks.T])
     assert np.all(p > 0.01), p
@@ -125,7 +127,8 @@ def _noisy(pred, rng):
 
 
 def test_sbc_reduced_real_model(reduced):
-    # 200 replicates, 300 particles x 2 runs each (about 0.5 s per replicate on 2 cores)
+    # 200 replicates, 300 particles x 2 runs each (38 CPU s in all). Measured p-values:
+    # dfmq 0.504, scrubbed_so2 0.699, s_ppm 0.319
     spec, fw = reduced
     rng = np.random.default_rng(99)
     n_rep, d = 200, len(spec.free_names)
@@ -164,6 +167,9 @@ def test_p_magmatic_calibration(reduced):
             warnings.simplefilter("ignore")
             res, _ = run_smc(spec, fw, lik, pi0, int(rng.integers(2**31)), 200, 2)
         p_m0[i] = model_probabilities(res, pi0)[0].mean()
+    # measured (32 CPU s): bins [0,.2) .. [.8,1]: n 27/32/115/52/14, mean P(M0)
+    # 0.014/0.336/0.494/0.695/0.859, share from M0 0.037/0.250/0.409/0.673/1.000, all inside
+    # 2 sigma; Brier 0.198 against 0.250 for the constant pi0
     edges = np.linspace(0.0, 1.0, 6)
     which = np.clip(np.digitize(p_m0, edges) - 1, 0, 4)
     rows = []
