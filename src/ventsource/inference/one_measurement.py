@@ -42,7 +42,7 @@ _DEFAULTS = dict(kind=None, dof=None, epsilon=0.05, pi0=None, n_walkers=None, ta
                  engine="smc", n_particles=500, n_runs=4, ess_target=0.5, max_moves=30,
                  smc_rhat_max=1.01)
 ENGINES = ("smc", "emcee")
-
+# SMC options checked before any sampling: name -> (types, min, max, wording)
 
 class InferenceError(ValueError):
     """Inference cannot be run with these inputs; one-line message."""

@@ -187,10 +187,14 @@ class ScrubbingMarginal:
         log_mass = _log_diff_ndtr(a, b)
         # mirrored scale where the window sits in the right tail keeps the precision
         right = a > 0.0
-        pa = np.where(right, special.ndtr(-b), special.ndtr(a))
-        pb = np.where(right, special.ndtr(-a), special.ndtr(b))
-        t = pa[:, None] + (pb - pa)[:, None] * 0.5 * (self.gl_x[None, :] + 1.0)
-        z = special.ndtri(np.clip(t, 1e-300, 1.0 - 1e-16))
+        # in log probability (ndtri_exp): a window far in a tail underflows ndtr to 0,
+        # which collapsed every node onto the support's edge
+        log_pa = np.where(right, special.log_ndtr(-b), special.log_ndtr(a))
+        log_pb = np.where(right, special.log_ndtr(-a), special.log_ndtr(b))
+        x = 0.5 * (self.gl_x[None, :] + 1.0)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            log_t = log_pb[:, None] + np.log(x + (1.0 - x) * np.exp(log_pa - log_pb)[:, None])
+        z = special.ndtri_exp(np.minimum(log_t, -1e-16))
         z = np.where(right[:, None], -z, z)
         v = np.clip(m[:, None] + tau * z, self.v_lo, self.v_hi)
         return v, log_mass

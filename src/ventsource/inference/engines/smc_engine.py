@@ -176,39 +176,48 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
 
 
 def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves):
-    """Metropolis moves of the active runs' particles; returns the mean acceptance."""
-    rows = np.concatenate([np.arange(r * N, (r + 1) * N) for r in active])
-    run_of = np.repeat(active, N)
-    b = beta[run_of]
-    frozen = pop.u[rows].copy()
-    chol = {r: _scaled_cholesky(pop.u[r * N:(r + 1) * N]) for r in active}
-    n_moves, k, acc_mean = min_moves, 0, 0.0
-    while k < n_moves:
+    """Metropolis moves of the active runs' particles; returns the mean acceptance.
+
+    Each run sets its own number of moves from its own acceptance, so a run's numbers do
+    not depend on the other runs (nor on how many there are)."""
+    frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
+    chol = {r: _scaled_cholesky(frozen[r]) for r in active}
+    n_moves = {r: min_moves for r in active}
+    last_rate = {}
+    k = 0
+    while True:
+        moving = [r for r in active if k < n_moves[r]]
+        if not moving:
+            break
+        rows = np.concatenate([np.arange(r * N, (r + 1) * N) for r in moving])
+        run_of = np.repeat(moving, N)
+        b = beta[run_of]
         sub = pop.take(rows)
         if k % 2 == 0:
-            prop_u = propose_random_walk(sub.u, run_of, chol, scale, rngs)
+            prop_u = propose_random_walk(sub.u, run_of, {r: chol[r] for r in moving}, scale, rngs)
         else:
-            prop_u = propose_de(sub.u, run_of, frozen, active, N, rngs)
+            prop_u = propose_de(sub.u, run_of, np.concatenate([frozen[r] for r in moving]), moving, N, rngs)
         prop = evaluate(prop_u)
         log_ratio = (prop.log_prior + b * _finite(prop.log_like)) - (sub.log_prior + b * _finite(sub.log_like))
         log_ratio = np.where(np.isfinite(prop.log_prior) & (np.isfinite(prop.log_like) | (b == 0)),
                              log_ratio, -np.inf)
-        draws = np.concatenate([rngs[r].random(N) for r in active])
+        draws = np.concatenate([rngs[r].random(N) for r in moving])
         accept = np.log(draws) < log_ratio
         sub.put(accept, prop)
         for name in ("u", "theta", "log_prior", "log_like"):
             getattr(pop, name)[rows] = getattr(sub, name)
         for key in pop.aux:
             pop.aux[key][rows] = sub.aux[key]
-        rates = np.array([accept[run_of == r].mean() for r in active])
-        if k % 2 == 0:  # adapt the random-walk scale toward 0.25 acceptance
-            scale[active] *= np.exp(rates - 0.25)
-        acc_mean = float(rates.mean())
+        for r in moving:
+            last_rate[r] = float(accept[run_of == r].mean())
+            if k % 2 == 0:  # adapt the random-walk scale toward 0.25 acceptance
+                scale[r] *= np.exp(last_rate[r] - 0.25)
         k += 1
         if k == 2:
-            a = max(min(acc_mean, 0.99), 1e-3)
-            n_moves = int(min(max_moves, max(min_moves, np.ceil(np.log(0.05) / np.log1p(-a)))))
-    return acc_mean
+            for r in moving:
+                a = max(min(last_rate[r], 0.99), 1e-3)
+                n_moves[r] = int(min(max_moves, max(min_moves, np.ceil(np.log(0.05) / np.log1p(-a)))))
+    return float(np.mean([last_rate[r] for r in active]))
 
 
 def _finite(x):
