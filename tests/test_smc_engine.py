@@ -101,7 +101,7 @@ BAD_OPTIONS = [({"engine": "nested"}, "engine"), ({"n_particles": 0}, "n_particl
                ({"n_runs": 1}, "n_runs"), ({"n_runs": True}, "n_runs"),
                ({"ess_target": 1.5}, "ess_target"), ({"ess_target": 0.0}, "ess_target"),
                ({"ess_target": float("nan")}, "ess_target"), ({"ess_target": "0.5"}, "ess_target"),
-               ({"max_moves": 0}, "max_moves"), ({"max_moves": 2.0}, "max_moves"),
+               ({"max_moves": 0}, "max_moves"), ({"max_moves": 2.5}, "max_moves"),  # 2.0 is read as 2
                ({"smc_rhat_max": 0.9}, "smc_rhat_max"), ({"n_particle": 100}, "unknown")]
 
 

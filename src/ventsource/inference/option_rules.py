@@ -8,6 +8,9 @@ their kind (so 20 and 20.0 compare equal in a run's record) or raises
 OptionError with one line naming the option. A new option is one line here.
 """
 import math
+import numbers
+
+import numpy as np
 
 INF = math.inf
 
@@ -76,10 +79,10 @@ def check_option(name, value, defaults=None):
         if kind == "choice" and value not in allowed:
             raise OptionError(f"option {name}={value!r}: must be one of {', '.join(allowed)}")
         return value
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):  # numpy numbers too
         raise OptionError(f"option {name}={value!r}: must be a number")
     if kind == "int":
-        if isinstance(value, float) and not value.is_integer():
+        if not float(value).is_integer():
             raise OptionError(f"option {name}={value!r}: must be a whole number")
         value = int(value)
     else:
