@@ -91,10 +91,11 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     note = "synthetic demo at a fictional volcano; demo prior with five free parameters"
     run_series(series, str(DEMO_FAST_PRIOR), out_dir, seed=seed, workers=workers, resume=resume,
                options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note,
-               window=DEMO_WINDOW_S)
+               window=DEMO_WINDOW_S, synthetic_data=True)
     by_row = os.path.join(out_dir, "row_by_row")
     run_series(series, str(DEMO_FAST_PRIOR), by_row, seed=seed, workers=workers, resume=resume,
-               options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note)
+               options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note,
+               synthetic_data=True)
     spec = load_prior_file(DEMO_FAST_PRIOR)
     truth = os.path.join(out_dir, "truth.csv")
     title = "Mount Kerrow (fictional volcano), synthetic demo series"

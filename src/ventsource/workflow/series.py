@@ -154,8 +154,9 @@ def _dask_client(scheduler, local_workers):
 class Progress:
     """One-line progress bar with an estimate of the time left (from this session's rate)."""
 
-    def __init__(self, total, already, stream=None, width=28):
+    def __init__(self, total, already, stream=None, width=28, label=""):
         self.total, self.done, self.start_done = total, already, already
+        self.label = f"{label}: " if label else ""
         self.stream = stream if stream is not None else sys.stderr
         self.width = width
         self.t0 = time.monotonic()
@@ -174,7 +175,7 @@ class Progress:
             eta = f"done in {elapsed:.0f} s"
         else:
             eta = "estimating time left"
-        return f"[{bar}] {self.done}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
+        return f"{self.label}[{bar}] {self.done}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
 
     def update(self, last=""):
         self.done += 1
@@ -208,7 +209,7 @@ def _read_done(out_dir, ids):
 
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
-               window=None):
+               window=None, synthetic_data=False, progress_label=""):
     """Invert every row; returns the list of summary rows in file order.
 
     workers: local processes (or LocalCluster workers with dask_local);
@@ -265,7 +266,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
         work = invert_window
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
-    bar = Progress(len(series.ids), len(done), stream=progress_stream)
+    bar = Progress(len(series.ids), len(done), stream=progress_stream, label=progress_label)
     bar.show("resumed" if done else "")
 
     def record(result):
@@ -302,39 +303,58 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
             record(work(job))
     rows = [done[i] for i in series.ids]
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
-    hazard = hazard_document(series, spec, prior_path, rows, seed, options, model_note)
+    hazard = hazard_document(series, spec, prior_path, rows, seed, options, model_note,
+                             out_dir=out_dir, synthetic_data=synthetic_data)
     _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
+    from ventsource.workflow.table_notes import write_table_readme
+    write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
+                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
+                       synthetic=hazard["synthetic"])
     _write_json(run_path, dict(settings, status="complete", package_version=__version__,
                                caution=CAUTION))
     return rows
 
 
-def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None):
-    """Plain dict for elicitation panels: per-row probability with provenance."""
+def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, out_dir=None,
+                    synthetic_data=False):
+    """Plain dict for elicitation panels: per-row probability with provenance.
+
+    Paths are relative to the run folder; numbers are rounded by hazard_format's rule."""
     from ventsource import __version__
+    from ventsource.common.flag_glossary import glossary_for
+    from ventsource.workflow.hazard_format import ROUNDING_RULE, relative_path
+    flag_lists = [[f for f in (r.get("flags") or "").split(";") if f] for r in rows]
     return {
         "what": "P(M0 | data): posterior probability that the gas is purely magmatic "
                 "(no SO2 scrubbed), per measurement, under the model and prior below",
         "caution": CAUTION,
+        "synthetic": bool(getattr(spec, "fictional", False) or synthetic_data),
         "package": "ventsource", "package_version": __version__,
-        "input_file": os.path.abspath(series.path), "input_sha256": file_sha256(series.path),
+        "input_file": relative_path(series.path, out_dir), "input_sha256": file_sha256(series.path),
         "run_seed": int(seed), "row_seed_rule": "sha256('RUNSEED:ID'), first 8 bytes little-endian mod 2^63-1",
-        "priors": [{"file": os.path.abspath(str(prior_path)), "sha256": file_sha256(prior_path),
-                    "name": spec.name, "models": dict(spec.models), "p_magmatic_prior": spec.p_magmatic,
+        "priors": [{"file": relative_path(prior_path, out_dir), "sha256": file_sha256(prior_path),
+                    "name": spec.name, "fictional": bool(getattr(spec, "fictional", False)),
+                    "models": dict(spec.models), "p_magmatic_prior": spec.p_magmatic,
                     "epsilon": float(getattr(spec, "epsilon", 0.05)),
                     "likelihood": dict(spec.likelihood), "free_parameters": list(spec.free_names)}],
         "inference_options": options,
         "note": model_note or "",
-        "rows": [{"id": r["id"], "time": r["time"], "p_magmatic": r.get("p_magmatic"),
-                  "p_magmatic_error": r.get("p_magmatic_error"),
-                  "p_scrubbed_below_epsilon": r.get("p_scrubbed_below_epsilon"),
-                  "p_scrubbed_below_epsilon_error": r.get("p_scrubbed_below_epsilon_error"),
-                  "scrubbed_so2_model_averaged": {q: r.get(f"scrubbed_so2_avg_{q}")
-                                                  for q in ("q05", "median", "q95")},
-                  "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
-                  "flags": [f for f in r.get("flags", "").split(";") if f], "seed": r.get("seed")}
-                 for r in rows],
+        "rounding": ROUNDING_RULE,
+        "flag_glossary": glossary_for(flag_lists),
+        "rows": [_hazard_row(r, flags) for r, flags in zip(rows, flag_lists)],
     }
+
+
+def _hazard_row(r, flags):
+    from ventsource.workflow.hazard_format import round_fraction, round_probability
+    p, p_err = round_probability(r.get("p_magmatic"), r.get("p_magmatic_error"))
+    pb, pb_err = round_probability(r.get("p_scrubbed_below_epsilon"), r.get("p_scrubbed_below_epsilon_error"))
+    return {"id": r["id"], "time": r["time"], "p_magmatic": p, "p_magmatic_error": p_err,
+            "p_scrubbed_below_epsilon": pb, "p_scrubbed_below_epsilon_error": pb_err,
+            "scrubbed_so2_model_averaged": {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
+                                            for q in ("q05", "median", "q95")},
+            "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
+            "flags": flags, "seed": r.get("seed")}
 
 
 def _time_text(t):
