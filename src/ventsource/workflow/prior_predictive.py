@@ -37,6 +37,10 @@ def run_prior_predictive(spec, n, out_csv, plot_path=None, data_path=None, x_rat
     names = tuple(dict.fromkeys(names + (x_ratio, y_ratio)))
     table = prior_predictive_table(spec, n, seed=seed, ratio_names=names)
     table.to_csv(out_csv, index=False)
+    from ventsource.workflow.table_notes import write_table_sidecar
+    write_table_sidecar(out_csv, f"prior-predictive draws of prior '{spec.name}': one row per draw and "
+                        "model (M0 purely magmatic, M1 with scrubbing), parameters, status (0 = gas) and "
+                        "gas ratios in mol/mol", synthetic=bool(getattr(spec, "fictional", False)))
     if plot_path:
         data = _read_overlay(data_path, x_ratio, y_ratio) if data_path else None
         plot_ratio_plane(table, x_ratio, y_ratio, plot_path, data=data, title=spec.name)

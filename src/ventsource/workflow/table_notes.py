@@ -35,3 +35,17 @@ def write_table_readme(folder, files, synthetic=False):
         fh.write("\n".join(lines) + "\n")
     os.replace(path + ".part", path)
     return path
+
+
+def write_table_sidecar(table_path, description, synthetic=False):
+    """TABLE.README.txt beside a single table written where the user chose (never a shared
+    README.txt that could belong to someone else)."""
+    path = str(table_path) + ".README.txt"
+    lines = [f"{os.path.basename(str(table_path))}: {description}", "", "CAUTION: " + CAUTION]
+    if synthetic:
+        lines += ["", "SYNTHETIC: the prior is fictional (made for a demonstration or a test); it "
+                  "describes no real volcano."]
+    with open(path + ".part", "w") as fh:
+        fh.write("\n".join(lines) + "\n")
+    os.replace(path + ".part", path)
+    return path
