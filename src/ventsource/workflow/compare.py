@@ -99,6 +99,17 @@ def plot_compare(table, names, path):
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    fig = compare_figure(table, names)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
+def compare_figure(table, names):
+    """P(M0) against measurement time under each prior, and the mean posterior overlaps."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
     colours = ["#1d3557", "#b5651d", "#6a3d7a", "#457b9d", "#8c564b", "#555555"]
     markers = ["o", "s", "D", "^", "v", "P"]
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(9, 7.5), gridspec_kw={"height_ratios": [3, 2]})
@@ -112,7 +123,7 @@ def plot_compare(table, names, path):
     ax1.set_ylim(-0.03, 1.03)
     ax1.set_ylabel("P(M0) purely magmatic\n(probability)")
     ax1.set_xlabel("measurement time (UTC)")
-    fig.autofmt_xdate()
+    ax1.tick_params(axis="x", labelrotation=30)
     ax1.legend(fontsize=8, frameon=False)
     ax1.set_title("Same measurements, different prior files")
     ov = [c for c in table.columns if c.startswith("overlap ")]
@@ -132,6 +143,4 @@ def plot_compare(table, names, path):
         ax2.set_axis_off()
     fig.text(0.01, 0.005, "Caution: " + CAUTION, fontsize=7, color="#333333")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
-    return path
+    return fig
