@@ -129,7 +129,7 @@ def _p_magmatic_panel(ax, s, times, p_prior):
     p = s["p_magmatic"].astype(float)
     ax.errorbar(times, p, yerr=err, fmt="s", ms=3.5, color=INK, ecolor="#8da9c4", capsize=2,
                 label="P(M0), bar: Monte Carlo error")
-    flagged = s["flags"].fillna("").astype(str).str.len().to_numpy() > 0 if "flags" in s else None
+    flagged = s["flags"].astype("string").fillna("").str.len().to_numpy() > 0 if "flags" in s else None
     if flagged is not None and flagged.any():
         ax.plot(times[flagged], p[flagged], "o", ms=9, mfc="none", mec=FLAG_COLOUR, mew=1.2, ls="none",
                 label="row carries a flag (docs/flags.md)")
@@ -189,7 +189,7 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", 
         axes[0].errorbar(t, s["p_magmatic"].astype(float), yerr=s["p_magmatic_error"].astype(float).fillna(0),
                          fmt=mk, ms=4, color=col, capsize=2, label=lab)
         axes[1].plot(t, s["scrubbed_so2_avg_median"].astype(float), mk + "-", ms=3, color=col, label=lab)
-    mixed = b["flags"].fillna("").str.contains("mixed_sources")
+    mixed = b["flags"].astype("string").fillna("").str.contains("mixed_sources")
     for ax in axes:
         for tm in t[mixed.to_numpy()]:
             ax.axvspan(tm - pd.Timedelta(days=5), tm + pd.Timedelta(days=5), color="#f4a261", alpha=0.25, lw=0)
