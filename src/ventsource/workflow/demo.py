@@ -107,7 +107,7 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     figs.append(plot_rows_vs_windows(os.path.join(by_row, "summary.csv"),
                                      os.path.join(out_dir, "summary.csv"),
                                      os.path.join(out_dir, "figures", "rows_vs_windows.png"),
-                                     truth_csv=truth, title=title))
+                                     truth_csv=truth, title=title, p_magmatic_prior=spec.p_magmatic))
     return {"measurements": data_path, "truth": truth,
             "summary": os.path.join(out_dir, "summary.csv"),
             "hazard": os.path.join(out_dir, "hazard.json"), "figures": figs,
