@@ -312,3 +312,15 @@ def test_unknown_law_lists_citations(tmp_path):
     path.write_text(text)
     with pytest.raises(PriorFileError, match="Moore et al. 1998"):
         load_prior_file(path)
+
+
+def test_library_warnings_go_to_a_log(tmp_path, monkeypatch, capsys):
+    import warnings
+    from ventsource.cli.main import route_warnings
+    monkeypatch.setattr(warnings, "showwarning", warnings.showwarning)  # restored afterwards
+    route_warnings(str(tmp_path))
+    with warnings.catch_warnings():
+        warnings.simplefilter("always")
+        warnings.warn("a library speaks", UserWarning)
+    assert "a library speaks" not in capsys.readouterr().err
+    assert "a library speaks" in (tmp_path / "warnings.log").read_text()
