@@ -317,9 +317,14 @@ def kernel_cache_empty():
     import ventsource
     root = os.path.dirname(ventsource.__file__)
     places = [os.path.join(root, sub, "__pycache__", "*.nbi") for sub in ("chemistry", "magma")]
-    if os.environ.get("NUMBA_CACHE_DIR"):
-        places.append(os.path.join(os.environ["NUMBA_CACHE_DIR"], "**", "*.nbi"))
-    return not any(glob.glob(p, recursive=True) for p in places)
+    if any(glob.glob(p) for p in places):
+        return False
+    # numba falls back to a per-user cache when the package folder is read-only
+    for extra in (os.environ.get("NUMBA_CACHE_DIR"), os.path.expanduser("~/.cache/numba")):
+        for path in glob.glob(os.path.join(extra or "/nonexistent", "**", "*.nbi"), recursive=True):
+            if "ventsource" in path:
+                return False
+    return True
 
 
 def announce_compilation(stream=None):
