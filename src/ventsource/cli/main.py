@@ -447,7 +447,8 @@ def cmd_run(args):
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
-        figs = run_figures(args.out, series, spec, corner_ids=args.corner, title=spec.name)
+        figs = run_figures(args.out, series, spec, corner_ids=args.corner,
+                           title="Gas-ratio inversion, " + ("by windows" if window else "row by row"))
     print(f"results in {args.out}/: summary.csv, hazard.json, rows/*.nc"
           + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
     print(f"Caution: {CAUTION}")
