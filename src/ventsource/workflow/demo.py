@@ -108,6 +108,11 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
                                      os.path.join(out_dir, "summary.csv"),
                                      os.path.join(out_dir, "figures", "rows_vs_windows.png"),
                                      truth_csv=truth, title=title, p_magmatic_prior=spec.p_magmatic))
+    from ventsource.workflow.table_notes import write_table_readme
+    write_table_readme(out_dir, {"measurements.csv": "synthetic measurements at a fictional volcano "
+                                 "(forward model plus noise)", "truth.csv": "the true parameters and "
+                                 "noise-free ratios of every synthetic row", "row_by_row/": "the same "
+                                 "series inverted one row at a time, for comparison"}, synthetic=True)
     return {"measurements": data_path, "truth": truth,
             "summary": os.path.join(out_dir, "summary.csv"),
             "hazard": os.path.join(out_dir, "hazard.json"), "figures": figs,
