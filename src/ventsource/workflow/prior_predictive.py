@@ -177,12 +177,15 @@ def ratio_plane_figure(table, x_ratio, y_ratio, data=None, title=""):
                bbox_to_anchor=(0.45, 0.035))
     axes[0].set_ylabel(f"{y_ratio} (mol/mol)")
     if sc is not None:
-        cb = fig.colorbar(sc, cax=fig.add_axes([0.88, 0.24, 0.015, 0.62]))
+        cb = fig.colorbar(sc, cax=fig.add_axes([0.85, 0.24, 0.015, 0.62]))
         cb.set_label("measurement time")
-        cb.ax.yaxis.set_major_formatter(mdates.DateFormatter("%Y-%m-%d"))
+        times = pd.to_datetime(data["time"])
+        short = (times.max() - times.min()) < pd.Timedelta(days=3)
+        cb.ax.yaxis.set_major_locator(mdates.AutoDateLocator(maxticks=6))
+        cb.ax.yaxis.set_major_formatter(mdates.DateFormatter("%Y-%m-%d\n%H:%M" if short else "%Y-%m-%d"))
     fig.suptitle(f"What the prior allows, and the measurements: prior {title}", fontsize=10)
     fig.text(0.01, 0.01, "Caution: " + CAUTION, fontsize=7, color="#444444")
-    fig.subplots_adjust(left=0.08, right=0.86, bottom=0.24, top=0.86, wspace=0.08)
+    fig.subplots_adjust(left=0.08, right=0.83, bottom=0.24, top=0.86, wspace=0.08)
     return fig
 
 
