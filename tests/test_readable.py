@@ -324,3 +324,19 @@ def test_library_warnings_go_to_a_log(tmp_path, monkeypatch, capsys):
         warnings.warn("a library speaks", UserWarning)
     assert "a library speaks" not in capsys.readouterr().err
     assert "a library speaks" in (tmp_path / "warnings.log").read_text()
+
+
+def test_rows_vs_windows_figure(small_run, tmp_path):
+    import matplotlib.pyplot as plt
+    from ventsource.workflow.figures import rows_vs_windows_figure
+    _, out = small_run
+    rows = pd.read_csv(out / "summary.csv", dtype={"id": str}, keep_default_na=False)
+    windows = rows.copy()
+    windows["flags"] = ["", "mixed_sources", ""]
+    windows.to_csv(tmp_path / "windows.csv", index=False)
+    fig = rows_vs_windows_figure(out / "summary.csv", tmp_path / "windows.csv", p_magmatic_prior=0.4)
+    text = "\n".join(_texts(fig))
+    for needed in ("prior P(M0) = 0.4", "(probability)", "(fraction)", "time (UTC)", "row by row",
+                   "by windows", "mixed_sources", "Caution:"):
+        assert needed in text, needed
+    plt.close(fig)

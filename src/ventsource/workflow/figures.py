@@ -197,6 +197,15 @@ def _pressure_panel(ax, s, times, truth):
 def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", p_magmatic_prior=0.5):
     """P(M0) and the model-averaged scrubbed fraction: row by row beside by windows."""
     plt = _plt()
+    fig = rows_vs_windows_figure(rows_csv, windows_csv, truth_csv, title, p_magmatic_prior)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
+def rows_vs_windows_figure(rows_csv, windows_csv, truth_csv=None, title="", p_magmatic_prior=0.5):
+    """The rows-vs-windows Figure (not saved, not closed)."""
+    plt = _plt()
     a = pd.read_csv(rows_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     b = pd.read_csv(windows_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
     t = pd.to_datetime(a["time"].str.rstrip("Z"))
@@ -225,9 +234,7 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", 
                       "(a change of magma inside the window)", fontsize=9)
     _footnote(fig)
     fig.tight_layout(rect=(0, 0.025, 1, 1))
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
-    return path
+    return fig
 
 
 def plot_corner(out_dir, row_ids, fig_dir=None, truth_csv=None):
