@@ -3,7 +3,7 @@
 Outside reference: scipy.stats (uniform, loguniform, norm, truncnorm, beta)
 for densities, inverse CDFs and Kolmogorov-Smirnov tests of the draws.
 Physical limits and defaults checked here are the documented schema
-(README, section Prior files); the 0.15 default relative sigma is common practice,
+(docs/prior-files.md); the 0.15 default relative sigma is common practice,
 no source (in-plume sensor ratios carry roughly 10-20 % relative uncertainty).
 """
 from __future__ import annotations

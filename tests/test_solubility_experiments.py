@@ -15,10 +15,10 @@ Tolerance: 20 % for every dataset here. None of the abstracts used quotes a mode
 20 % is the brief's default, and the top of the 15-20 % error of existing solubility models
 for alkali-rich mafic melts quoted by Jimenez-Mejias et al. (2021, C. R. Geosci.
 353(S2):289-314, abstract), whose own data could not be read. A law that fails a dataset is
-an xfail(strict=True) with the measured numbers in its reason, and is listed in README.md.
+an xfail(strict=True) with the measured numbers in its reason, and is listed in docs/models.md.
 
 No CO2 law (shishkina2014, liu2005 CO2) is checked here: no experiment with a complete melt
-composition and a measured CO2 content could be read (see README.md, "Solubility laws checked
+composition and a measured CO2 content could be read (see docs/models.md, "Solubility laws checked
 against experiments").
 """
 import csv
@@ -49,7 +49,7 @@ MOORE_MAX_ALKALIS_WT = 15.0
 LIU_MIN_SIO2_WT = 70.0
 LIU_TEMPERATURE_C = (700.0, 1200.0)
 LIU_MAX_PRESSURE_BAR = 5000.0
-# The package's pressure limit for any state (README, physical limits of pressure_bar).
+# The package's pressure limit for any state (docs/prior-files.md, physical limits of pressure_bar).
 PACKAGE_MAX_PRESSURE_BAR = 5000.0
 
 
@@ -127,7 +127,7 @@ def _liu2005(row):
 
 
 def _demo_power_law_constants():
-    """(k, n) of the power law in the README's prior-file example (k = 0.095, n = 0.5)."""
+    """(k, n) of the power law in the prior-file example of docs/prior-files.md (k = 0.095, n = 0.5)."""
     return 0.095, 0.5
 
 

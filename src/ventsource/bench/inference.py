@@ -51,8 +51,8 @@ def bench_inference(quick=False):
     forward = ForwardModel(spec, ratio_names=("SO2/CO2", "H2S/SO2", "H2O/CO2"))
     meas, theta = _synthetic_measurement(spec, forward)
     forward.ratios(spec.full(spec.sample(np.random.default_rng(0), 64)))  # compile / warm up
-    print(f"[inference] synthetic measurement {dict(zip(meas.ratio_names, np.round(meas.values, 4)))} "
-          f"(15 % errors) from {dict(zip(spec.free_names, np.round(theta, 3)))}")
+    print(f"[inference] synthetic measurement {_plain(meas.ratio_names, meas.values, 4)} "
+          f"(15 % errors) from {_plain(spec.free_names, theta, 3)}")
 
     options = {"target_ess": 300.0, "max_steps": 1000} if quick else {}
     start = time.perf_counter()
@@ -90,3 +90,8 @@ def bench_inference(quick=False):
     return {"seconds": seconds, "evals": evals, "ess_min": ess_min, "rhat_max": rhat_max,
             "p_magmatic": res.p_magmatic, "p_magmatic_error": res.p_magmatic_error,
             "brute_force_evals": n_needed, "brute_force_seconds": s_needed, "p_brute_force": p_bf}
+
+
+def _plain(names, values, digits):
+    """NAME=VALUE pairs as plain numbers (no NumPy scalar reprs)."""
+    return ", ".join(f"{n}={float(v):.{digits}g}" for n, v in zip(names, np.ravel(values)))

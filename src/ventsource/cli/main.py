@@ -14,7 +14,23 @@ from ventsource.common.errors import InputError
 EXIT_USAGE = 2
 
 
+class _HelpFormatter(argparse.ArgumentDefaultsHelpFormatter):
+    """Shows '(default: X)' where a default is used as is; None and flags say nothing."""
+
+    def _get_help_string(self, action):
+        text = action.help or ""
+        d = action.default
+        if d is None or d is False or d is argparse.SUPPRESS or d == [] or "default" in text \
+                or isinstance(action, argparse._VersionAction):
+            return text
+        return text + " (default: %(default)s)"
+
+
 class _Parser(argparse.ArgumentParser):
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("formatter_class", _HelpFormatter)
+        super().__init__(*args, **kwargs)
+
     def error(self, message):  # one line instead of argparse's usage block
         raise InputError(f"{self.prog}: {message}")
 
@@ -45,43 +61,49 @@ def build_parser():
     sub = parser.add_subparsers(dest="command", parser_class=_Parser)
 
     sp = sub.add_parser("speciate", help="equilibrium C-O-H-S gas at fixed T, P and fO2")
-    sp.add_argument("--temperature-c", type=_number("--temperature-c"), required=True)
-    sp.add_argument("--pressure-bar", type=_number("--pressure-bar"), required=True)
+    sp.add_argument("--temperature-c", type=_number("--temperature-c"), required=True,
+                    help="temperature in degrees Celsius")
+    sp.add_argument("--pressure-bar", type=_number("--pressure-bar"), required=True,
+                    help="total pressure in bar")
     redox = sp.add_mutually_exclusive_group(required=True)
     redox.add_argument("--dfmq", type=_number("--dfmq"), help="log fO2 offset from FMQ")
     redox.add_argument("--dnno", type=_number("--dnno"), help="log fO2 offset from NNO")
     redox.add_argument("--log-fo2", type=_number("--log-fo2"), help="absolute log10 fO2 (bar)")
     sp.add_argument("--bulk", required=True,
                     help="molar parent-gas composition, e.g. H2O=90,CO2=8,SO2=2")
-    sp.add_argument("--eos", choices=["real", "ideal"], default="real")
-    sp.add_argument("--json", action="store_true", help="print one JSON object")
+    sp.add_argument("--eos", choices=["real", "ideal"], default="real",
+                    help="gas equation of state: real (fugacity coefficients) or ideal")
+    sp.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     sp.set_defaults(handler=cmd_speciate)
 
     fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
-    fp.add_argument("--prior", required=True,
-                    help="prior file (TOML) or shipped prior name (see `ventsource priors`)")
-    fp.add_argument("--set", nargs="+", default=[], metavar="NAME=VALUE",
-                    help="parameter values, e.g. pressure_bar=200 temperature_c=1100")
-    fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2")
-    fp.add_argument("--json", action="store_true")
+    fp.add_argument("--prior", required=True, help="prior file (TOML) or shipped prior name (see `ventsource priors`)")
+    fp.add_argument("--set", nargs="+", action="extend", default=[], metavar="NAME=VALUE",
+                    help="parameter values, e.g. pressure_bar=200 temperature_c=1100; each name once")
+    fp.add_argument("--ratios", default="SO2/CO2,H2S/SO2,H2O/CO2,CO2/ST,H2/H2O,CO/CO2",
+                    help="comma-separated gas ratios to print (molar)")
+    fp.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     fp.set_defaults(handler=cmd_forward)
 
     pp = sub.add_parser("prior-predictive",
                         help="draw the prior, run the model with and without scrubbing")
-    pp.add_argument("--prior", required=True)
-    pp.add_argument("-n", type=int, default=20000, help="number of prior draws")
-    pp.add_argument("--out", required=True, help="CSV of parameters and ratios")
-    pp.add_argument("--plot", help="PNG of the ratio-ratio plane")
-    pp.add_argument("--data", help="measurement CSV to overlay")
-    pp.add_argument("--x-ratio", default="H2S/SO2")
-    pp.add_argument("--y-ratio", default="SO2/CO2")
-    pp.add_argument("--seed", type=int, default=0)
+    pp.add_argument("--prior", required=True, help="prior file (TOML), see docs/prior-files.md")
+    pp.add_argument("-n", type=int, default=20000, help="number of prior draws per model")
+    pp.add_argument("--table", metavar="FILE",
+                    help="CSV file to write: parameters and ratios of every draw (a README "
+                         "FILE.README.txt with the caution is written beside it)")
+    pp.add_argument("--out", help=argparse.SUPPRESS)  # a folder elsewhere: refused here, see cmd
+    pp.add_argument("--plot", metavar="FILE", help="PNG file of the ratio-ratio plane")
+    pp.add_argument("--data", metavar="FILE", help="measurement CSV to overlay on the plot")
+    pp.add_argument("--x-ratio", default="H2S/SO2", help="gas ratio on the horizontal axis")
+    pp.add_argument("--y-ratio", default="SO2/CO2", help="gas ratio on the vertical axis")
+    pp.add_argument("--seed", type=int, default=0, help="seed of the prior draws")
     pp.set_defaults(handler=cmd_prior_predictive)
 
     rp = sub.add_parser("run", help="invert every row of a measurement file")
-    rp.add_argument("data", help="measurement CSV (see README)")
-    rp.add_argument("--prior", required=True)
-    rp.add_argument("--out", required=True, help="output directory")
+    rp.add_argument("data", help="measurement CSV (format: docs/measurements.md)")
+    rp.add_argument("--prior", required=True, help="prior file (TOML), see docs/prior-files.md")
+    rp.add_argument("--out", required=True, metavar="FOLDER", help="output folder (created)")
     _series_options(rp)
     rp.add_argument("--corner", nargs="+", default=[], metavar="ID",
                     help="row identifiers to draw corner plots for")
@@ -89,17 +111,21 @@ def build_parser():
     rp.set_defaults(handler=cmd_run)
 
     cp = sub.add_parser("compare", help="the same data under several prior files")
-    cp.add_argument("data", help="measurement CSV (see README)")
-    cp.add_argument("--prior", required=True, action="append", help="prior file; give two or more")
-    cp.add_argument("--out", required=True, help="output directory")
+    cp.add_argument("data", help="measurement CSV (format: docs/measurements.md)")
+    cp.add_argument("--prior", required=True, action="append",
+                    help="prior file (TOML); repeat the option for two or more")
+    cp.add_argument("--out", required=True, metavar="FOLDER", help="output folder (created)")
     _series_options(cp)
     cp.set_defaults(handler=cmd_compare)
 
-    dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted")
-    dp.add_argument("--out", default="demo-output")
-    dp.add_argument("--rows", type=int, default=60)
-    dp.add_argument("--workers", type=int, default=2)
-    dp.add_argument("--resume", action="store_true")
+    dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted",
+                        description="Make a synthetic series at the fictional volcano Mount Kerrow "
+                                    "with known truth, invert it by windows and row by row, and "
+                                    "draw every figure.")
+    dp.add_argument("--out", default="demo-output", metavar="FOLDER", help="output folder (created)")
+    dp.add_argument("--rows", type=int, default=60, help="number of synthetic measurements")
+    dp.add_argument("--workers", type=int, default=2, help="local worker processes")
+    dp.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
     dp.set_defaults(handler=cmd_demo)
 
     lp = sub.add_parser("priors", help="list the shipped prior files (usable by name: --prior NAME)")
@@ -125,6 +151,7 @@ def cmd_speciate(args):
     from ventsource.chemistry.speciation import speciate, STATUS_OK
 
     _check_range("--temperature-c", args.temperature_c, limits.TEMPERATURE_C, " C")
+    announce_compilation()
     _check_range("--pressure-bar", args.pressure_bar, limits.PRESSURE_BAR, " bar")
     t_k = args.temperature_c + 273.15
     p = args.pressure_bar
@@ -188,11 +215,14 @@ def cmd_forward(args):
     from ventsource.chemistry.species import SPECIES
 
     spec = _load_prior(args.prior)
+    announce_compilation()
     values = {}
     for item in args.set:
         if "=" not in item:
             raise InputError(f"--set: '{item}' is not NAME=VALUE")
         name, text = item.split("=", 1)
+        if name in values:
+            raise InputError(f"--set: {name} is given twice; give each parameter once")
         if name not in spec.parameter_names:
             raise InputError(f"--set: unknown parameter '{name}' for {args.prior} "
                              f"(parameters: {', '.join(spec.parameter_names)})")
@@ -265,13 +295,57 @@ def _finite_or_none(value):
 
 def cmd_prior_predictive(args):
     from ventsource.workflow.prior_predictive import run_prior_predictive
+    if args.out is not None:
+        raise InputError("prior-predictive: --out names a folder in the other commands; "
+                         "give the CSV file with --table FILE (and the figure with --plot FILE)")
+    if args.table is None:
+        raise InputError("prior-predictive: give the CSV file to write with --table FILE")
     if args.n < 1:
         raise InputError("-n must be at least 1")
     spec = _load_prior(args.prior)
-    run_prior_predictive(spec, args.n, args.out, plot_path=args.plot, data_path=args.data,
+    announce_compilation()
+    run_prior_predictive(spec, args.n, args.table, plot_path=args.plot, data_path=args.data,
                          x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
-    print(f"wrote {args.out}" + (f" and {args.plot}" if args.plot else ""))
+    print(f"wrote {args.table}, {args.table}.README.txt" + (f" and {args.plot}" if args.plot else ""))
     return 0
+
+
+COMPILE_NOTICE = "compiling the model's kernels (first run only, about 30 s)"
+
+
+def kernel_cache_empty():
+    """True when numba has no cached kernels (*.nbi) beside the kernel modules or in
+    NUMBA_CACHE_DIR: the first call then compiles."""
+    import glob
+    import ventsource
+    root = os.path.dirname(ventsource.__file__)
+    places = [os.path.join(root, sub, "__pycache__", "*.nbi") for sub in ("chemistry", "magma")]
+    if any(glob.glob(p) for p in places):
+        return False
+    # numba falls back to a per-user cache when the package folder is read-only
+    for extra in (os.environ.get("NUMBA_CACHE_DIR"), os.path.expanduser("~/.cache/numba")):
+        for path in glob.glob(os.path.join(extra or "/nonexistent", "**", "*.nbi"), recursive=True):
+            if "ventsource" in path:
+                return False
+    return True
+
+
+def announce_compilation(stream=None):
+    """Say once on stderr why the first call waits."""
+    if kernel_cache_empty():
+        print(COMPILE_NOTICE, file=stream or sys.stderr, flush=True)
+
+
+def route_warnings(out_dir):
+    """Library warnings go to OUT/warnings.log instead of the progress lines."""
+    import warnings
+    os.makedirs(out_dir, exist_ok=True)
+    path = os.path.join(out_dir, "warnings.log")
+
+    def to_file(message, category, filename, lineno, file=None, line=None):
+        with open(path, "a") as fh:
+            fh.write(warnings.formatwarning(message, category, filename, lineno, line))
+    warnings.showwarning = to_file
 
 
 def _series_options(p):
@@ -284,7 +358,8 @@ def _series_options(p):
     where.add_argument("--dask-local", action="store_true",
                        help="run on a local dask.distributed cluster of --workers processes")
     p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
-    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--seed", type=int, default=0,
+                   help="run seed; each row's seed derives from it and the row id")
     p.add_argument("--window", default=None, metavar="SPAN|1|column",
                    help="rows that share one magma source: a time span such as 30d, 12h or 2w "
                         "(consecutive windows from the first row), 'column' (the file's window "
@@ -375,13 +450,16 @@ def cmd_run(args):
         if rid not in series.ids:
             raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
     window = _window_option(args)
+    route_warnings(args.out)
+    announce_compilation()
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
                dask_local=args.dask_local, window=window, oversubscribe=args.oversubscribe)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
-        figs = run_figures(args.out, series, spec, corner_ids=args.corner, title=spec.name)
+        figs = run_figures(args.out, series, spec, corner_ids=args.corner,
+                           title="Gas-ratio inversion, " + ("by windows" if window else "row by row"))
     print(f"results in {args.out}/: summary.csv, hazard.json, rows/*.nc"
           + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
     print(f"Caution: {CAUTION}")
@@ -402,6 +480,8 @@ def cmd_compare(args):
                          "each needs its own metadata.name")
     series = {path: read_measurements(args.data, default_sigma=_default_sigma(args, spec))
               for path, spec in zip(args.prior, specs)}
+    route_warnings(args.out)
+    announce_compilation()
     out = run_compare(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                       resume=args.resume, options=_inference_options(args),
                       dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
@@ -420,6 +500,8 @@ def cmd_demo(args):
     if args.workers < 1:
         raise InputError("--workers must be at least 1")
     t0 = time.monotonic()
+    route_warnings(args.out)
+    announce_compilation()
     out = run_demo(args.out, n_rows=args.rows, workers=args.workers, resume=args.resume)
     print(f"demo finished in {time.monotonic() - t0:.0f} s; outputs in {os.path.abspath(args.out)}/:")
     print(f"  measurements.csv (synthetic data), truth.csv (true parameters), summary.csv, "

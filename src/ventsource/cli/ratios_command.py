@@ -50,7 +50,8 @@ def add_parser(subparsers):
                    help="sensor 1-sigma noise (else estimated from the window's background)")
     p.add_argument("--detection-limit", action="append", metavar="GAS=PPMV",
                    help="detection limit (else --detection-sigmas x noise)")
-    p.add_argument("--detection-sigmas", type=float, default=3.0)
+    p.add_argument("--detection-sigmas", type=float, default=3.0,
+                   help="detection limit in units of the sensor noise, where --detection-limit is not given")
     p.add_argument("--max-reading", action="append", metavar="GAS=PPMV",
                    help="instrument maximum: windows with a reading at or above it drop that gas")
     p.add_argument("--h2s-so2-cross-sensitivity", type=float, default=0.0, metavar="FRACTION",
@@ -61,13 +62,14 @@ def add_parser(subparsers):
     p.add_argument("--min-lag-correlation", type=float, default=0.8,
                    help="a window's own lag is used when its peak correlation reaches this and it lies "
                    "inside the bound; else the median of recent accepted lags (marked '~' in the output)")
-    p.add_argument("--min-points", type=int, default=30)
+    p.add_argument("--min-points", type=int, default=30, help="windows with fewer points give no ratio")
     p.add_argument("--min-range", action="append", metavar="GAS=PPMV",
                    help="least range (2nd-98th percentile) of the x gas of a ratio")
     p.add_argument("--min-range-noise", type=float, default=10.0,
                    help="least x-gas range in units of its noise (default 10)")
-    p.add_argument("--min-r2", type=float, default=0.6)
-    p.add_argument("--max-relative-sigma", type=float, default=1.0)
+    p.add_argument("--min-r2", type=float, default=0.6, help="ratios of a poorer fit (R^2 below this) are flagged")
+    p.add_argument("--max-relative-sigma", type=float, default=1.0,
+                   help="ratios with a larger relative 1-sigma are flagged")
     p.add_argument("--keep-flagged", action="store_true",
                    help="write ratios failing --min-r2 or --max-relative-sigma (flag in quality columns)")
     p.add_argument("--no-mswd-scaling", action="store_true",

@@ -49,11 +49,12 @@ def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume
     names = [s.name for s in specs]
     run_dirs = {n: os.path.join(out_dir, "runs", n) for n in names}
     results = {}
-    for path, spec in zip(prior_paths, specs):
+    for k, (path, spec) in enumerate(zip(prior_paths, specs)):
         rows = run_series(series_by_prior[path], path, run_dirs[spec.name], seed=seed, workers=workers,
                           resume=resume, options=options, dask_scheduler=dask_scheduler,
                           dask_local=dask_local, progress_stream=progress_stream, window=window,
-                          oversubscribe=oversubscribe)
+                          oversubscribe=oversubscribe,
+                          progress_label=f"prior {k + 1}/{len(specs)} {spec.name}")
         results[spec.name] = {r["id"]: r for r in rows}
     series = series_by_prior[prior_paths[0]]
     table = compare_table(series.ids, names, specs, results, run_dirs)
@@ -62,6 +63,12 @@ def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume
     os.replace(csv_path + ".part", csv_path)
     fig_path = os.path.join(out_dir, "compare.png")
     plot_compare(table, names, fig_path)
+    from ventsource.workflow.table_notes import write_table_readme
+    write_table_readme(out_dir, {"compare.csv": "P(M0) per row under each prior, its spread across "
+                                 "priors and posterior overlap coefficients (see docs/outputs.md)",
+                                 "compare.png": "P(M0) against time under each prior",
+                                 "runs/": "one complete run (summary.csv, hazard.json) per prior"},
+                       synthetic=any(getattr(s, "fictional", False) for s in specs))
     return [csv_path, fig_path]
 
 
@@ -93,20 +100,31 @@ def plot_compare(table, names, path):
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    fig = compare_figure(table, names)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
+def compare_figure(table, names):
+    """P(M0) against measurement time under each prior, and the mean posterior overlaps."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
     colours = ["#1d3557", "#b5651d", "#6a3d7a", "#457b9d", "#8c564b", "#555555"]
     markers = ["o", "s", "D", "^", "v", "P"]
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(9, 7.5), gridspec_kw={"height_ratios": [3, 2]})
-    x = np.arange(len(table))
-    width = 0.3 / max(len(names) - 1, 1)
+    times = pd.to_datetime(table["time"].astype(str).str.rstrip("Z"))
+    span = (times.max() - times.min()) if len(times) > 1 else pd.Timedelta(days=1)
+    shift = span / max(len(times), 1) * 0.15  # small offsets so priors at one time stay apart
     for k, n in enumerate(names):
-        ax1.errorbar(x + (k - (len(names) - 1) / 2) * width, table[f"p_magmatic [{n}]"].astype(float),
+        ax1.errorbar(times + (k - (len(names) - 1) / 2) * shift, table[f"p_magmatic [{n}]"].astype(float),
                      yerr=table[f"p_magmatic_error [{n}]"].astype(float).fillna(0), fmt=markers[k % 6],
-                     ms=4, color=colours[k % 6], capsize=2, label=n)
+                     ms=4, color=colours[k % 6], capsize=2, label=f"prior {n}")
     ax1.set_ylim(-0.03, 1.03)
-    ax1.set_ylabel("P(M0) purely magmatic")
-    ax1.set_xticks(x if len(x) <= 30 else x[::max(1, len(x) // 15)])
-    ax1.set_xticklabels(table["id"] if len(x) <= 30 else table["id"][::max(1, len(x) // 15)],
-                        rotation=60, fontsize=7)
+    ax1.set_ylabel("P(M0) purely magmatic\n(probability)")
+    ax1.set_xlabel("measurement time (UTC)")
+    ax1.tick_params(axis="x", labelrotation=30)
     ax1.legend(fontsize=8, frameon=False)
     ax1.set_title("Same measurements, different prior files")
     ov = [c for c in table.columns if c.startswith("overlap ")]
@@ -126,6 +144,4 @@ def plot_compare(table, names, path):
         ax2.set_axis_off()
     fig.text(0.01, 0.005, "Caution: " + CAUTION, fontsize=7, color="#333333")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
-    return path
+    return fig

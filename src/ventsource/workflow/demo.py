@@ -95,11 +95,11 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     note = "synthetic demo at a fictional volcano; demo prior with five free parameters"
     run_series(series, str(DEMO_FAST_PRIOR), out_dir, seed=seed, workers=workers, resume=resume,
                options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note,
-               window="column")
+               window="column", synthetic_data=True)
     by_row = os.path.join(out_dir, "row_by_row")
     run_series(series, str(DEMO_FAST_PRIOR), by_row, seed=seed, workers=workers, resume=resume,
                options=dict(DEMO_OPTIONS), progress_stream=progress_stream, model_note=note,
-               window="rows")
+               window="rows", synthetic_data=True)
     spec = load_prior_file(DEMO_FAST_PRIOR)
     truth = os.path.join(out_dir, "truth.csv")
     title = "Mount Kerrow (fictional volcano), synthetic demo series"
@@ -111,7 +111,12 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     figs.append(plot_rows_vs_windows(os.path.join(by_row, "summary.csv"),
                                      os.path.join(out_dir, "summary.csv"),
                                      os.path.join(out_dir, "figures", "rows_vs_windows.png"),
-                                     truth_csv=truth, title=title))
+                                     truth_csv=truth, title=title, p_magmatic_prior=spec.p_magmatic))
+    from ventsource.workflow.table_notes import write_table_readme
+    write_table_readme(out_dir, {"measurements.csv": "synthetic measurements at a fictional volcano "
+                                 "(forward model plus noise)", "truth.csv": "the true parameters and "
+                                 "noise-free ratios of every synthetic row", "row_by_row/": "the same "
+                                 "series inverted one row at a time, for comparison"}, synthetic=True)
     return {"measurements": data_path, "truth": truth,
             "summary": os.path.join(out_dir, "summary.csv"),
             "hazard": os.path.join(out_dir, "hazard.json"), "figures": figs,

@@ -27,91 +27,184 @@ def _footnote(fig):
     fig.text(0.01, 0.005, "Caution: " + CAUTION, fontsize=7, color="#333333", ha="left", va="bottom")
 
 
-def plot_time_series(summary_csv, path, series=None, truth_csv=None, title=""):
-    """Measured ratios with posterior-predictive 5-95 % bands, P(M0), scrubbed fraction."""
+UNITS_RATIO = "mol/mol"
+FLAG_COLOUR = "#c0392b"
+
+
+def plain_number(value, _pos=None):
+    """Tick text in plain decimals (0.2, 0.5, 1, 2, 300), never powers of ten."""
+    if not np.isfinite(value) or value <= 0:
+        return ""
+    return f"{value:.6g}" if 1e-4 <= value < 1e6 else f"{value:.0e}"
+
+
+def _plain_at(leads):
+    """Minor-tick formatter: plain text only where the leading digit is one of leads."""
+    def fmt(value, _pos=None):
+        if not np.isfinite(value) or value <= 0:
+            return ""
+        lead = value / 10.0 ** np.floor(np.log10(value) + 1e-9)
+        return plain_number(value) if any(abs(lead - d) < 1e-6 for d in leads) else ""
+    return fmt
+
+
+def plain_log_axis(ax, axis="y"):
+    """Log scale with plain decimal labels: every digit inside one decade, 2 and 5 over a few
+    decades, powers of ten only over many."""
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+    target = ax.yaxis if axis == "y" else ax.xaxis
+    (ax.set_yscale if axis == "y" else ax.set_xscale)("log")
+    lo, hi = (ax.get_ylim() if axis == "y" else ax.get_xlim())
+    span = hi / lo if lo > 0 else np.inf
+    leads = (2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0) if span < 10 else (2.0, 5.0)
+    target.set_major_locator(LogLocator(base=10.0))
+    target.set_major_formatter(FuncFormatter(plain_number))
+    target.set_minor_locator(LogLocator(base=10.0, subs=leads))
+    target.set_minor_formatter(FuncFormatter(_plain_at(leads)) if span < 200 else NullFormatter())
+    target.get_offset_text().set_visible(False)
+
+
+def _read_summary(summary_csv):
+    s = pd.read_csv(summary_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
+    return s, pd.to_datetime(s["time"].str.rstrip("Z"))
+
+
+def plot_time_series(summary_csv, path, series=None, truth_csv=None, title="", prior_name="",
+                     p_magmatic_prior=None):
+    """Measured ratios with posterior-predictive 5-95 % bands, P(M0), scrubbed fraction.
+
+    Returns the saved path; the Figure stays inspectable via series_figure()."""
     plt = _plt()
-    s = pd.read_csv(summary_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
-    times = pd.to_datetime(s["time"].str.rstrip("Z"))
-    ratios = [c[3:-4] for c in s.columns if c.startswith("pp ") and c.endswith("_q05")]
-    has_p = "pressure_bar_median" in s
-    n = len(ratios) + 2 + int(has_p)
-    fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.0), sharex=True)
-    truth = pd.read_csv(truth_csv) if truth_csv else None
-    if has_p:
-        _pressure_panel(axes[-3], s, times, truth)
-    for ax, r in zip(axes, ratios):
-        lo, med, hi = (s[f"pp {r}_{q}"].astype(float) for q in ("q05", "median", "q95"))
-        ax.fill_between(times, lo, hi, color=BAND, alpha=0.25, lw=0, label="posterior predictive 5-95 %")
-        ax.plot(times, med, color=BAND, lw=1.0)
-        if series is not None and r in series.ratio_names:
-            j = series.ratio_names.index(r)
-            t = pd.to_datetime([str(x) for x in series.times])
-            v = np.array([m.values[j] for m in series.measurements])
-            c = np.array([m.censoring[j] for m in series.measurements])
-            ok = np.isfinite(v)
-            for sel, mk, lab in ((c == 0, "o", "measured"), (c < 0, "v", "below detection limit"),
-                                 (c > 0, "^", "above range")):
-                if np.any(ok & sel):
-                    ax.plot(t[ok & sel], v[ok & sel], mk, ms=3.5 if mk == "o" else 5,
-                            mfc=INK if mk == "o" else "none", color=INK, label=lab)
-        if truth is not None and f"true {r}" in truth:
-            ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth[f"true {r}"], "x",
-                    ms=4, color="#777777", label="synthetic truth (noise-free)")
-        ax.set_yscale("log")
-        ax.set_ylabel(r, fontsize=9)
-    axes[0].legend(fontsize=7, frameon=False, ncol=4, loc="lower left")
-    ax = axes[-2]
-    err = s["p_magmatic_error"].astype(float).fillna(0.0)
-    ax.errorbar(times, s["p_magmatic"].astype(float), yerr=err, fmt="s", ms=3.5, color=INK,
-                ecolor="#8da9c4", capsize=2)
-    ax.axhline(0.5, color="#999999", lw=0.8, ls=":", label="even prior odds (0.5)")
-    ax.legend(fontsize=7, frameon=False, loc="lower left")
-    ax.set_ylim(-0.03, 1.03)
-    ax.set_ylabel("P(M0)\npurely magmatic", fontsize=9)
-    ax = axes[-1]
-    _scrubbed_panel(ax, s, times, truth)
-    if title:
-        fig.suptitle(title, fontsize=11)
-    _footnote(fig)
-    fig.tight_layout(rect=(0, 0.025, 1, 1))
+    fig = series_figure(summary_csv, series=series, truth_csv=truth_csv, title=title,
+                        prior_name=prior_name, p_magmatic_prior=p_magmatic_prior)
     fig.savefig(path, dpi=120)
     plt.close(fig)
     return path
 
 
+def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name="",
+                  p_magmatic_prior=None):
+    """The series figure as a matplotlib Figure (not saved, not closed)."""
+    plt = _plt()
+    s, times = _read_summary(summary_csv)
+    truth = pd.read_csv(truth_csv) if truth_csv else None
+    ratios = [c[3:-4] for c in s.columns if c.startswith("pp ") and c.endswith("_q05")]
+    has_p = "pressure_bar_median" in s
+    n = len(ratios) + 2 + int(has_p)
+    fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.4), sharex=True)
+    legend = {}
+    for ax, r in zip(axes, ratios):
+        _ratio_panel(ax, s, times, r, series, truth)
+        for h, lab in zip(*ax.get_legend_handles_labels()):
+            legend.setdefault(lab, h)  # one legend for all ratio panels, censored markers included
+    if ratios:
+        axes[0].legend(list(legend.values()), list(legend.keys()), fontsize=7, frameon=False, ncol=2,
+                       loc="lower left")
+    if has_p:
+        _pressure_panel(axes[-3], s, times, truth)
+    _p_magmatic_panel(axes[-2], s, times, p_magmatic_prior)
+    _scrubbed_panel(axes[-1], s, times, truth)
+    axes[-1].set_xlabel("time (UTC)")
+    import matplotlib.dates as mdates
+    locator = mdates.AutoDateLocator(maxticks=8)
+    axes[-1].xaxis.set_major_locator(locator)
+    axes[-1].xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
+    data_name = os.path.basename(series.path) if series is not None else os.path.basename(summary_csv)
+    head = title or "Gas-ratio inversion"
+    fig.suptitle(f"{head}\nprior: {prior_name or 'not given'}   data: {data_name}", fontsize=10)
+    _footnote(fig)
+    fig.tight_layout(rect=(0, 0.025, 1, 1))
+    return fig
+
+
+def _ratio_panel(ax, s, times, r, series, truth):
+    lo, med, hi = (s[f"pp {r}_{q}"].astype(float) for q in ("q05", "median", "q95"))
+    ax.fill_between(times, lo, hi, color=BAND, alpha=0.25, lw=0, label="posterior predictive 5-95 %")
+    ax.plot(times, med, color=BAND, lw=1.0)
+    if series is not None and r in series.ratio_names:
+        j = series.ratio_names.index(r)
+        t = pd.to_datetime([str(x) for x in series.times])
+        v = np.array([m.values[j] for m in series.measurements])
+        c = np.array([m.censoring[j] for m in series.measurements])
+        ok = np.isfinite(v)
+        for sel, mk, lab in ((c == 0, "o", "measured"),
+                             (c < 0, "v", "below detection limit (drawn at the limit)"),
+                             (c > 0, "^", "above range (drawn at the limit)")):
+            if np.any(ok & sel):
+                ax.plot(t[ok & sel], v[ok & sel], mk, ms=3.5 if mk == "o" else 6,
+                        mfc=INK if mk == "o" else "none", color=INK, label=lab, ls="none")
+    if truth is not None and f"true {r}" in truth:
+        ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth[f"true {r}"], "x",
+                ms=4, color="#777777", label="synthetic truth (noise-free)")
+    plain_log_axis(ax)
+    ax.set_ylabel(f"{r}\n({UNITS_RATIO})", fontsize=9)
+
+
+def _p_magmatic_panel(ax, s, times, p_prior):
+    err = s["p_magmatic_error"].astype(float).fillna(0.0)
+    p = s["p_magmatic"].astype(float)
+    ax.errorbar(times, p, yerr=err, fmt="s", ms=3.5, color=INK, ecolor="#8da9c4", capsize=2,
+                label="P(M0), bar: Monte Carlo error")
+    flagged = s["flags"].astype("string").fillna("").str.len().to_numpy() > 0 if "flags" in s else None
+    if flagged is not None and flagged.any():
+        ax.plot(times[flagged], p[flagged], "o", ms=9, mfc="none", mec=FLAG_COLOUR, mew=1.2, ls="none",
+                label="row carries a flag (docs/flags.md)")
+        for t, pv, text in zip(times[flagged], p[flagged], s["flags"][flagged]):
+            ax.annotate(str(text).replace(";", "\n"), (t, pv if np.isfinite(pv) else 0.5), fontsize=5,
+                        color=FLAG_COLOUR, xytext=(4, 4), textcoords="offset points")
+    if p_prior is not None:
+        ax.axhline(p_prior, color="#999999", lw=0.8, ls=":", label=f"prior P(M0) = {p_prior:g}")
+    ax.legend(fontsize=7, frameon=False, loc="lower left", ncol=3)
+    ax.set_ylim(-0.03, 1.03)
+    ax.set_ylabel("P(M0) purely\nmagmatic\n(probability)", fontsize=9)
+
+
 def _scrubbed_panel(ax, s, times, truth):
-    """Model-averaged scrubbed fraction (point mass at 0 with weight P(M0)) where present,
-    else the posterior if scrubbed, labelled so."""
-    avg = "scrubbed_so2_avg_median" in s and s["scrubbed_so2_avg_median"].notna().any()
-    tag, label = (("scrubbed_so2_avg", "model-averaged") if avg else
-                  ("scrubbed_so2", "if scrubbed (model M1 only)"))
-    if f"{tag}_median" not in s:
-        return
-    ax.fill_between(times, s[f"{tag}_q05"].astype(float), s[f"{tag}_q95"].astype(float),
-                    color=SCRUB, alpha=0.2, lw=0, label=f"5-95 %, {label}")
-    ax.plot(times, s[f"{tag}_median"].astype(float), "-o", ms=3, color=SCRUB, label=f"median, {label}")
+    """Model-averaged scrubbed fraction (point mass at 0 with weight P(M0)) and, dashed,
+    the fraction if scrubbed (model M1 only)."""
+    cond = "scrubbed_so2_if_scrubbed" if "scrubbed_so2_if_scrubbed_median" in s else "scrubbed_so2"
+    if "scrubbed_so2_avg_median" in s and s["scrubbed_so2_avg_median"].notna().any():
+        ax.fill_between(times, s["scrubbed_so2_avg_q05"].astype(float), s["scrubbed_so2_avg_q95"].astype(float),
+                        color=SCRUB, alpha=0.2, lw=0, label="5-95 %, model-averaged")
+        ax.plot(times, s["scrubbed_so2_avg_median"].astype(float), "-o", ms=3, color=SCRUB,
+                label="median, model-averaged")
+    if f"{cond}_median" in s:
+        ax.plot(times, s[f"{cond}_median"].astype(float), "--", lw=1.0, color=SCRUB,
+                label="median if scrubbed (model M1 only, conditional)")
     if truth is not None and "scrubbed_so2" in truth:
         ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["scrubbed_so2"], "x",
                 ms=4, color="#777777", label="synthetic truth")
-    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
     ax.set_ylim(-0.03, 1.03)
-    ax.set_ylabel("scrubbed SO2\nfraction", fontsize=9)
+    ax.set_ylabel("scrubbed SO2\n(fraction)", fontsize=9)
 
 
 def _pressure_panel(ax, s, times, truth):
+    # window runs: model-averaged; row-by-row runs: the scrubbing model's posterior only
+    averaged = "scrubbed_so2_if_scrubbed_median" in s
+    tag = "model-averaged" if averaged else "if scrubbed (model M1 only, conditional)"
     ax.fill_between(times, s["pressure_bar_q05"].astype(float), s["pressure_bar_q95"].astype(float),
-                    color=INK, alpha=0.15, lw=0, label="5-95 %")
-    ax.plot(times, s["pressure_bar_median"].astype(float), "-o", ms=3, color=INK, label="median")
+                    color=INK, alpha=0.15, lw=0, label=f"5-95 %, {tag}")
+    ax.plot(times, s["pressure_bar_median"].astype(float), "-o", ms=3, color=INK, label=f"median, {tag}")
     if truth is not None and "pressure_bar" in truth:
         ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["pressure_bar"], "x",
                 ms=4, color="#777777", label="synthetic truth")
-    ax.set_yscale("log")
+    plain_log_axis(ax)
     ax.set_ylabel("degassing\npressure (bar)", fontsize=9)
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=3)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
 
 
-def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title=""):
+def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", p_magmatic_prior=0.5):
     """P(M0) and the model-averaged scrubbed fraction: row by row beside by windows."""
+    plt = _plt()
+    fig = rows_vs_windows_figure(rows_csv, windows_csv, truth_csv, title, p_magmatic_prior)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
+def rows_vs_windows_figure(rows_csv, windows_csv, truth_csv=None, title="", p_magmatic_prior=0.5):
+    """The rows-vs-windows Figure (not saved, not closed)."""
     plt = _plt()
     a = pd.read_csv(rows_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     b = pd.read_csv(windows_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
@@ -121,7 +214,7 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title=""):
         axes[0].errorbar(t, s["p_magmatic"].astype(float), yerr=s["p_magmatic_error"].astype(float).fillna(0),
                          fmt=mk, ms=4, color=col, capsize=2, label=lab)
         axes[1].plot(t, s["scrubbed_so2_avg_median"].astype(float), mk + "-", ms=3, color=col, label=lab)
-    mixed = b["flags"].fillna("").str.contains("mixed_sources")
+    mixed = b["flags"].astype("string").fillna("").str.contains("mixed_sources")
     for ax in axes:
         for tm in t[mixed.to_numpy()]:
             ax.axvspan(tm - pd.Timedelta(days=5), tm + pd.Timedelta(days=5), color="#f4a261", alpha=0.25, lw=0)
@@ -129,9 +222,11 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title=""):
         tr = pd.read_csv(truth_csv)
         axes[1].plot(pd.to_datetime(tr["time"].str.rstrip("Z")), tr["scrubbed_so2"], "x", color="#777777",
                      label="synthetic truth")
-    axes[0].axhline(0.5, color="#999999", lw=0.8, ls=":", label="prior P(M0) = 0.5")
-    axes[0].set_ylabel("P(M0)\npurely magmatic", fontsize=9)
-    axes[1].set_ylabel("scrubbed SO2 fraction\n(model-averaged median)", fontsize=9)
+    axes[0].axhline(p_magmatic_prior, color="#999999", lw=0.8, ls=":",
+                    label=f"prior P(M0) = {p_magmatic_prior:g}")
+    axes[0].set_ylabel("P(M0) purely\nmagmatic (probability)", fontsize=9)
+    axes[1].set_ylabel("scrubbed SO2 (fraction)\nmodel-averaged median", fontsize=9)
+    axes[1].set_xlabel("time (UTC)")
     for ax in axes:
         ax.set_ylim(-0.03, 1.03)
         ax.legend(fontsize=7, frameon=False, loc="center left")
@@ -139,38 +234,55 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title=""):
                       "(a change of magma inside the window)", fontsize=9)
     _footnote(fig)
     fig.tight_layout(rect=(0, 0.025, 1, 1))
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
-    return path
+    return fig
 
 
-def plot_corner(out_dir, row_ids, fig_dir=None):
-    """Corner plot of the M1 posterior of each named row, from rows/KEY.nc."""
-    import arviz as az
-    import corner
+def plot_corner(out_dir, row_ids, fig_dir=None, truth_csv=None):
+    """Corner plot of the M1 posterior of each named row, from rows/KEY.nc; with truth_csv
+    (a synthetic series) the true values are drawn as lines."""
     from ventsource.common.errors import InputError
     from ventsource.workflow.series import row_key
     plt = _plt()
     fig_dir = fig_dir or os.path.join(out_dir, "figures")
     os.makedirs(fig_dir, exist_ok=True)
+    truth = pd.read_csv(truth_csv, dtype={"id": str}) if truth_csv else None
     paths = []
     for rid in row_ids:
         nc = os.path.join(out_dir, "rows", f"{row_key(rid)}.nc")
         if not os.path.exists(nc):
             raise InputError(f"--corner: no finished row with id '{rid}' in {out_dir}")
-        post = az.from_netcdf(nc).posterior
-        names = list(post.data_vars)
-        x = np.column_stack([post[v].values.reshape(-1) for v in names])
-        labels = [f"{v}\n[{post[v].attrs.get('units', '')}]" for v in names]
-        fig = corner.corner(x, labels=labels, quantiles=[0.05, 0.5, 0.95], color=INK,
-                            hist_kwargs={"color": INK}, label_kwargs={"fontsize": 8})
-        fig.suptitle(f"posterior (scrubbing free), row {rid}", fontsize=10)
-        _footnote(fig)
+        fig = corner_figure(nc, rid, truth)
         p = os.path.join(fig_dir, f"corner_{row_key(rid)}.png")
         fig.savefig(p, dpi=100)
         plt.close(fig)
         paths.append(p)
     return paths
+
+
+def corner_figure(nc_path, rid, truth=None):
+    """Corner Figure of one row's M1 posterior (not saved, not closed)."""
+    import arviz as az
+    import corner
+    post = az.from_netcdf(nc_path).posterior
+    names = list(post.data_vars)
+    x = np.column_stack([post[v].values.reshape(-1) for v in names])
+    labels = [f"{v}\n({post[v].attrs.get('units', '') or 'fraction'})" for v in names]
+    truths = None
+    if truth is not None and rid in set(truth["id"]):
+        row = truth[truth["id"] == rid].iloc[0]
+        truths = [float(row[v]) if v in row.index else None for v in names]
+    # smoothing in units of histogram bins: a few hundred draws give ragged contours otherwise
+    few = x.shape[0] < 2000
+    fig = corner.corner(x, labels=labels, quantiles=[0.05, 0.5, 0.95], color=INK, smooth=2.0 if few else 1.0,
+                        smooth1d=1.5 if few else 0.8, bins=20 if few else 30, truths=truths, truth_color="#777777",
+                        hist_kwargs={"color": INK}, label_kwargs={"fontsize": 8}, labelpad=0.08)
+    head = f"Posterior if scrubbed (model M1, scrubbed fraction free), row {rid}"
+    if truths is not None:
+        head += "\ngrey lines: synthetic truth"
+    fig.suptitle(head, fontsize=10)
+    fig.subplots_adjust(left=0.12, bottom=0.16, top=0.90)
+    _footnote(fig)
+    return fig
 
 
 def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None, y_ratio=None):
@@ -179,8 +291,9 @@ def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None,
     names = list(series.ratio_names)
     x_ratio = x_ratio or ("H2S/SO2" if "H2S/SO2" in names else names[-1])
     y_ratio = y_ratio or ("SO2/CO2" if "SO2/CO2" in names else names[0])
+    from ventsource.workflow.prior_predictive import overlay_points
     table = prior_predictive_table(spec, n, seed=seed, ratio_names=tuple(dict.fromkeys([x_ratio, y_ratio])))
-    return plot_ratio_plane(table, x_ratio, y_ratio, path, data=series.values_for(x_ratio, y_ratio),
+    return plot_ratio_plane(table, x_ratio, y_ratio, path, data=overlay_points(series, x_ratio, y_ratio),
                             title=spec.name)
 
 
@@ -189,10 +302,11 @@ def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", 
     fig_dir = os.path.join(out_dir, "figures")
     os.makedirs(fig_dir, exist_ok=True)
     paths = [plot_time_series(os.path.join(out_dir, "summary.csv"), os.path.join(fig_dir, "series.png"),
-                              series=series, truth_csv=truth_csv, title=title)]
+                              series=series, truth_csv=truth_csv, title=title, prior_name=spec.name,
+                              p_magmatic_prior=spec.p_magmatic)]
     if len(series.ratio_names) >= 2 and n_prior > 0:
         paths.append(plot_ratio_plane_with_data(spec, series, os.path.join(fig_dir, "ratio_plane.png"),
                                                 n=n_prior))
     if corner_ids:
-        paths += plot_corner(out_dir, corner_ids, fig_dir)
+        paths += plot_corner(out_dir, corner_ids, fig_dir, truth_csv=truth_csv)
     return paths

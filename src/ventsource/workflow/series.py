@@ -180,8 +180,9 @@ def _dask_client(scheduler, local_workers):
 class Progress:
     """One-line progress bar with an estimate of the time left (from this session's rate)."""
 
-    def __init__(self, total, already, stream=None, width=28):
+    def __init__(self, total, already, stream=None, width=28, label=""):
         self.total, self.done, self.start_done = total, already, already
+        self.label = f"{label}: " if label else ""
         self.stream = stream if stream is not None else sys.stderr
         self.width = width
         self.t0 = time.monotonic()
@@ -200,7 +201,7 @@ class Progress:
             eta = f"done in {elapsed:.0f} s"
         else:
             eta = "estimating time left"
-        return f"[{bar}] {self.done}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
+        return f"{self.label}[{bar}] {self.done}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
 
     def update(self, last=""):
         self.done += 1
@@ -339,7 +340,7 @@ class _FolderLock:
 
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
-               oversubscribe=False, window=None):
+               oversubscribe=False, window=None, synthetic_data=False, progress_label=""):
     """Invert every row; returns the list of summary rows in file order.
 
     window: None (the file's window column if it has one, else row by row), "rows",
@@ -358,6 +359,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     prior_sha = file_sha256(prior_path)
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
+    extras = {"synthetic_data": synthetic_data, "progress_label": progress_label}
     groups = assign_windows(series, window)  # checked before anything is written
     _check_output_folder(out_dir)
     _refuse_if_in_use(out_dir)
@@ -367,7 +369,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
         try:
             return _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, resume,
                                workers, dask_scheduler, dask_local, progress_stream, model_note,
-                               oversubscribe, groups)
+                               oversubscribe, groups, extras)
         except OSError as exc:  # disk full, folder made read-only under the run...
             msg = (f"{out_dir}: cannot write ({exc.strerror or exc}); finished rows are kept: "
                    "make room or fix the folder and use --resume")
@@ -417,7 +419,9 @@ def _mark_stopped(out_dir, settings, message):
 
 
 def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, resume, workers,
-                dask_scheduler, dask_local, progress_stream, model_note, oversubscribe, groups=None):
+                dask_scheduler, dask_local, progress_stream, model_note, oversubscribe, groups=None,
+                extras=None):
+    extras = extras or {}
     if groups is None:
         cols = summary_columns(spec.free_names, series.ratio_names)
         done, failed = _verified_rows(out_dir, series.ids, prior_sha, cols) if resume else ({}, [])
@@ -453,7 +457,8 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
                  [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
                  row_seed(settings["seed"], f"window-{label}"), settings["options"], out_dir)
                 for label, idx in groups if series.ids[idx[0]] not in done]
-    bar = Progress(len(series.ids), len(done), stream=progress_stream)
+    bar = Progress(len(series.ids), len(done), stream=progress_stream,
+                   label=extras.get("progress_label", ""))
     if failed:
         bar.stream.write(f"{len(failed)} finished row(s) failed verification and are inverted again: "
                          f"{', '.join(failed[:5])}{' ...' if len(failed) > 5 else ''}\n")
@@ -462,8 +467,13 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     rows = [done[i] for i in series.ids]
     _rewrite(summary_path, cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
-                             model_note, sigma=settings["sigma"])
+                             model_note, sigma=settings["sigma"], out_dir=out_dir,
+                             synthetic_data=extras.get("synthetic_data", False))
     _write_json(hazard_path, hazard)
+    from ventsource.workflow.table_notes import write_table_readme
+    write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
+                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
+                       synthetic=hazard["synthetic"])
     _write_json(run_path, dict(settings, status="complete", caution=CAUTION))
     return rows
 
@@ -518,36 +528,50 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
             record(work(job))
 
 
-def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, sigma=None):
-    """Plain dict for elicitation panels: per-row probability with provenance."""
+def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, sigma=None,
+                    out_dir=None, synthetic_data=False):
+    """Plain dict for elicitation panels: per-row probability with provenance.
+
+    Paths are relative to the run folder; numbers are rounded by hazard_format's rule."""
     from ventsource import __version__
+    from ventsource.common.flag_glossary import glossary_for
     from ventsource.inference.one_measurement import _DEFAULTS
+    from ventsource.workflow.hazard_format import ROUNDING_RULE, relative_path
     effective = dict(_DEFAULTS, epsilon=float(getattr(spec, "epsilon", 0.05)), **options)
+    flag_lists = [[f for f in (r.get("flags") or "").split(";") if f] for r in rows]
     return {
         "what": "P(M0 | data): posterior probability that the gas is purely magmatic "
                 "(no SO2 scrubbed), per measurement, under the model and prior below",
         "caution": CAUTION,
+        "synthetic": bool(getattr(spec, "fictional", False) or synthetic_data),
         "package": "ventsource", "package_version": __version__,
-        "input_file": os.path.abspath(series.path), "input_sha256": file_sha256(series.path),
+        "input_file": relative_path(series.path, out_dir), "input_sha256": file_sha256(series.path),
         "run_seed": int(seed), "row_seed_rule": "sha256('RUNSEED:ID'), first 8 bytes little-endian mod 2^63-1",
-        "priors": [{"file": os.path.abspath(str(prior_path)), "sha256": file_sha256(prior_path),
-                    "name": spec.name, "models": dict(spec.models), "p_magmatic_prior": spec.p_magmatic,
+        "priors": [{"file": relative_path(prior_path, out_dir), "sha256": file_sha256(prior_path),
+                    "name": spec.name, "fictional": bool(getattr(spec, "fictional", False)),
+                    "models": dict(spec.models), "p_magmatic_prior": spec.p_magmatic,
                     "epsilon": float(getattr(spec, "epsilon", 0.05)),
                     "likelihood": dict(spec.likelihood), "free_parameters": list(spec.free_names)}],
         "inference_options": options,
         "inference_options_in_effect": {k: v for k, v in effective.items() if not callable(v)},
         "default_relative_sigma": sigma if sigma is not None else getattr(series, "default_sigma", None),
         "note": model_note or "",
-        "rows": [{"id": r["id"], "time": r["time"], "p_magmatic": r.get("p_magmatic"),
-                  "p_magmatic_error": r.get("p_magmatic_error"),
-                  "p_scrubbed_below_epsilon": r.get("p_scrubbed_below_epsilon"),
-                  "p_scrubbed_below_epsilon_error": r.get("p_scrubbed_below_epsilon_error"),
-                  "scrubbed_so2_model_averaged": {q: r.get(f"scrubbed_so2_avg_{q}")
-                                                  for q in ("q05", "median", "q95")},
-                  "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
-                  "flags": [f for f in r.get("flags", "").split(";") if f], "seed": r.get("seed")}
-                 for r in rows],
+        "rounding": ROUNDING_RULE,
+        "flag_glossary": glossary_for(flag_lists),
+        "rows": [_hazard_row(r, flags) for r, flags in zip(rows, flag_lists)],
     }
+
+
+def _hazard_row(r, flags):
+    from ventsource.workflow.hazard_format import round_fraction, round_probability
+    p, p_err = round_probability(r.get("p_magmatic"), r.get("p_magmatic_error"))
+    pb, pb_err = round_probability(r.get("p_scrubbed_below_epsilon"), r.get("p_scrubbed_below_epsilon_error"))
+    return {"id": r["id"], "time": r["time"], "p_magmatic": p, "p_magmatic_error": p_err,
+            "p_scrubbed_below_epsilon": pb, "p_scrubbed_below_epsilon_error": pb_err,
+            "scrubbed_so2_model_averaged": {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
+                                            for q in ("q05", "median", "q95")},
+            "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
+            "flags": flags, "seed": r.get("seed")}
 
 
 def _time_text(t):

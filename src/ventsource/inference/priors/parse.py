@@ -18,9 +18,9 @@ from ventsource.inference.priors.fields import (
 from ventsource.inference.priors.parameter_table import check_physical_range, parse_distribution
 from ventsource.inference.priors.schema import (
     DEFAULT_DOF, DEFAULT_EPSILON, DEFAULT_P_MAGMATIC, DEFAULT_RELATIVE_SIGMA, LIKELIHOOD_KINDS,
-    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
+    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, MODEL_CITATIONS, OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
     OXIDE_TOTAL_RANGE, POWER_LAW_KEYS, REQUIRED_OXIDES, REQUIRED_PARAMETERS, SCHEMA_VERSION,
-    SULFIDE_CAPACITY_KEYS, TOP_KEYS,
+    SULFIDE_CAPACITY_KEYS, TOP_KEYS, canonical_model_choice,
 )
 from ventsource.inference.priors.spec import PriorSpec
 
@@ -90,9 +90,12 @@ def _parse_models(file: str, data: Mapping) -> dict:
                         "models")
     models = {}
     for key, choices in MODEL_CHOICES.items():
-        val = read_string(file, models_t, key, f"models.{key}", True)
-        if val not in choices:
-            raise key_error(file, f"models.{key}", f"unknown model {val!r} (allowed: {', '.join(choices)})")
+        text = read_string(file, models_t, key, f"models.{key}", True)
+        val = canonical_model_choice(key, text)
+        if val is None:
+            cited = MODEL_CITATIONS.get(key, {})
+            allowed = ", ".join(f"{c} ({cited[c]!r})" if c in cited else c for c in choices)
+            raise key_error(file, f"models.{key}", f"unknown model {text!r} (allowed: {allowed})")
         models[key] = val
     # power-law H2O solubility, wt% = k * fH2O^n: its constants live beside the choice
     for key in POWER_LAW_KEYS:

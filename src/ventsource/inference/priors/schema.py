@@ -43,6 +43,35 @@ MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "eos": ("real", "ideal"),
 }
 
+# Model choices may also be written as the literature cites the law ("Moore et al. 1998",
+# "Shishkina et al., 2014"): case, spaces, punctuation and "et al." are ignored, so a
+# citation reduces to the key (author + year). docs/models.md lists the laws.
+MODEL_CITATIONS: dict[str, dict[str, str]] = {
+    "h2o_solubility": {"moore1998": "Moore et al. 1998", "liu2005": "Liu et al. 2005",
+                       "power_law": "power law"},
+    "co2_solubility": {"shishkina2014": "Shishkina et al. 2014", "liu2005": "Liu et al. 2005"},
+}
+
+
+def _reduce_model_name(text: str) -> str:
+    import re
+    t = re.sub(r"[^a-z0-9]", "", text.lower())
+    return t.replace("etal", "")
+
+
+def canonical_model_choice(key: str, text: str):
+    """The MODEL_CHOICES entry that text names (the key itself or its citation), or None."""
+    if not isinstance(text, str):
+        return None
+    if text in MODEL_CHOICES.get(key, ()):
+        return text
+    wanted = _reduce_model_name(text)
+    for choice in MODEL_CHOICES.get(key, ()):
+        if wanted and wanted == _reduce_model_name(choice):
+            return choice
+    return None
+
+
 POWER_LAW_KEYS = ("h2o_power_coefficient", "h2o_power_exponent")
 SULFIDE_CAPACITY_KEYS = ("sulfide_capacity_ln_a", "sulfide_capacity_b_k")
 

@@ -1,0 +1,38 @@
+"""Plain-language meaning of every flag a summary row can carry.
+
+One dictionary, read by hazard.json and by the figures; docs/flags.md holds the
+longer table (with what to do) and tests/test_readable.py checks that both
+list the same codes.
+"""
+
+FLAG_GLOSSARY = {
+    "unexplained": "Neither the purely magmatic model nor the scrubbing model reproduces "
+                   "this measurement; read no probability from this row.",
+    "m0_not_reproducing": "The purely magmatic model alone does not reproduce this measurement.",
+    "m1_not_reproducing": "The scrubbing model alone does not reproduce this measurement.",
+    "p_magmatic_error_large": "The Monte Carlo error of P(M0) is above 0.05; rerun with more "
+                              "particles before quoting the number.",
+    "rhat_high": "Independent sampler runs disagree (R-hat above its limit); rerun with more "
+                 "particles or runs.",
+    "few_distinct_particles": "Fewer than a quarter of the final samples are distinct; rerun "
+                              "with more particles.",
+    "many_failed_states": "More than half of the model evaluations released no gas or failed; "
+                          "the prior may be too wide.",
+    "mixed_sources": "The rows of this window are better explained each by its own source than "
+                     "by one shared source: the window may span a change of magma.",
+    "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",
+    "m0_not_converged": "The purely magmatic model's MCMC chains did not reach their target.",
+    "m1_rhat_high": "The scrubbing model's MCMC chains disagree (R-hat above its limit).",
+    "m1_bridge_not_converged": "The evidence estimate of the scrubbing model did not converge.",
+    "m0_bridge_not_converged": "The evidence estimate of the purely magmatic model did not converge.",
+    "m1_many_failed_states": "More than half of the scrubbing model's evaluations released no gas.",
+    "m0_many_failed_states": "More than half of the purely magmatic model's evaluations released "
+                             "no gas.",
+    "m0_no_valid_state": "No state of the purely magmatic model released gas at these conditions.",
+}
+
+
+def glossary_for(flag_lists):
+    """{code: meaning} for every flag code used in flag_lists (unknown codes say so)."""
+    used = sorted({f for flags in flag_lists for f in flags})
+    return {f: FLAG_GLOSSARY.get(f, "No description recorded for this flag.") for f in used}
