@@ -168,7 +168,7 @@ def test_run_stopped_by_a_row_error_leaves_nothing_that_looks_complete(tmp_path,
     out = tmp_path / "out"
     # 4 walkers for 5 free parameters: refused by the sampler for the first row
     code, o, err = run(["run", str(data), "--prior", str(ROOT / "priors" / "demo_mount_kerrow_fast.toml"),
-                        "--out", str(out), "--infer-option", "n_walkers=4"], capsys)
+                        "--out", str(out), "--engine", "emcee", "--infer-option", "n_walkers=4"], capsys)
     assert code == 2
     lines = err.strip().splitlines()   # progress lines, then the error as the last line
     assert lines[-1].startswith("error: ") and sum(ln.startswith("error") for ln in lines) == 1

@@ -232,7 +232,7 @@ def test_failed_start_can_be_run_again(inputs, tmp_path, capsys):
     data, prior = one_row(inputs), inputs[1]
     out = str(tmp_path / "out")
     # 4 walkers for 5 free parameters: the sampler refuses the first row
-    code = main(["run", data, "--prior", prior, "--out", out, *TINY_CLI, "--infer-option", "n_walkers=4"])
+    code = main(["run", data, "--prior", prior, "--out", out, *TINY_CLI, "--engine", "emcee", "--infer-option", "n_walkers=4"])
     assert code == 2
     run = json.load(open(os.path.join(out, "run.json")))
     assert run["status"] == "stopped" and "n_walkers" in run["error"]

@@ -339,12 +339,15 @@ def announce_compilation(stream=None):
 def route_warnings(out_dir):
     """Library warnings go to OUT/warnings.log instead of the progress lines."""
     import warnings
-    os.makedirs(out_dir, exist_ok=True)
     path = os.path.join(out_dir, "warnings.log")
 
     def to_file(message, category, filename, lineno, file=None, line=None):
-        with open(path, "a") as fh:
-            fh.write(warnings.formatwarning(message, category, filename, lineno, line))
+        # the folder is made (after its checks) by the run itself; nothing is created here
+        try:
+            with open(path, "a") as fh:
+                fh.write(warnings.formatwarning(message, category, filename, lineno, line))
+        except OSError:
+            pass
     warnings.showwarning = to_file
 
 
