@@ -1,10 +1,10 @@
 """Raw sensor file -> measurement file: the whole run, streaming window by window."""
 import datetime
-import hashlib
 import os
 import platform
 import shutil
 
+from ventsource.workflow.series import file_sha256
 from ventsource import __version__
 from ventsource.common.errors import InputError
 from ventsource.workflow.plume.analysis import LagMemory, analyse_window
@@ -44,14 +44,6 @@ def choose_ratios(layout, requested):
     return tuple(requested)
 
 
-def _sha256(path):
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 22), b""):
-            h.update(block)
-    return h.hexdigest()
-
-
 def _analyse_all(windows, gases, settings, figure_stage):
     """WindowResult per window; per-window figures into figure_stage when given."""
     if figure_stage:
@@ -76,7 +68,7 @@ def _run_record(raw_path, layout, needed, derive_h2o, gases, settings, chunk_row
         "program": f"ventsource {__version__} ratios", "python": platform.python_version(),
         "created_utc": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
         "input": {"path": os.path.abspath(raw_path), "bytes": os.path.getsize(raw_path),
-                  "sha256": _sha256(raw_path) if hash_input else None,
+                  "sha256": file_sha256(raw_path) if hash_input else None,
                   "columns_used": {g: layout.columns[g] for g in needed},
                   "unit_conversion": {g: layout.scale[g] for g in needed},
                   "columns_ignored": layout.ignored,
