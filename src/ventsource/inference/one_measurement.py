@@ -84,6 +84,8 @@ class InferenceResult:
     engine: str = "emcee"
     scrubbed_model_averaged: tuple | None = None  # (q05, median, q95), point mass at 0 of weight P(M0)
     diagnostics: dict = field(default_factory=dict)
+    hypotheses: dict | None = None     # with a release prior: P(M0), P(M1), P(M2), errors (SMC engine)
+    budget_draws: dict | None = None   # per-draw hypothesis, magmatic SO2/CO2, SO2 factor (SMC engine)
 
     @property
     def log_evidence(self) -> dict:
