@@ -10,6 +10,8 @@ Format (CSV, comma-separated, UTF-8, header row):
 * optional `sigma SO2/CO2`-style columns: relative 1-sigma for that ratio
   per cell (0.15 = 15 %); an empty cell, or no such column, takes the
   default (the prior file's likelihood.relative_sigma, or --sigma);
+* optional `SO2 flux`, `CO2 flux` columns (t/d) with `sigma SO2 flux`-style
+  relative errors: see ventsource.workflow.flux_columns;
 * optional `quality ...` columns (any name starting with "quality "): notes
   for people (e.g. points, R^2 and flags of a regression window), not read.
 
@@ -24,6 +26,7 @@ import numpy as np
 from ventsource.common.errors import InputError
 from ventsource.inference.likelihood import Measurement
 from ventsource.ascent.observables import ratio_weights
+from ventsource.workflow.flux_columns import FluxColumnReader
 
 SIGMA_PREFIX = "sigma "
 WINDOW_COLUMN = "window"  # optional: rows with the same label share one magma source
@@ -38,6 +41,7 @@ class MeasurementSeries:
     ratio_names: tuple
     measurements: list    # likelihood.Measurement per row
     windows: list | None = None  # the optional `window` column: the user's own periods
+    fluxes: object = None        # flux_columns.FluxSeries, or None without flux columns
 
     def __len__(self):
         return len(self.ids)
@@ -127,7 +131,10 @@ def read_measurements(path, default_sigma=0.15):
             _fail(path, 1, col, "column appears twice")
         seen.add(col)
     ratio_cols, sigma_cols = [], {}
+    flux = FluxColumnReader(path, header)
     for col in header:
+        if col in flux.columns:
+            continue
         if col in ("id", "time", WINDOW_COLUMN) or col == "":
             if col == "":
                 _fail(path, 1, col, "empty column name")
@@ -142,6 +149,7 @@ def read_measurements(path, default_sigma=0.15):
         except InputError as exc:
             _fail(path, 1, col, f"not a ratio column ({exc})")
         ratio_cols.append(col)
+    flux.check_has_ratios(ratio_cols)
     if not ratio_cols:
         _fail(path, 1, None, "no ratio columns (e.g. SO2/CO2, H2S/SO2)")
     for name in per_column:
@@ -187,6 +195,7 @@ def read_measurements(path, default_sigma=0.15):
         ids.append(row_id)
         times.append(t)
         ms.append(Measurement(ratio_cols, values, sigmas, flags, label=row_id))
+        flux.read_row(cells, r)
         if WINDOW_COLUMN in header:
             label = cells[header.index(WINDOW_COLUMN)].strip()
             if not label:
@@ -195,4 +204,4 @@ def read_measurements(path, default_sigma=0.15):
     if not ids:
         raise InputError(f"{path}: no data rows under the header")
     return MeasurementSeries(str(path), ids, times, tuple(ratio_cols), ms,
-                             windows if WINDOW_COLUMN in header else None)
+                             windows if WINDOW_COLUMN in header else None, flux.series())
