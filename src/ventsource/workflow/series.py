@@ -26,6 +26,8 @@ import numpy as np
 
 from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
+from ventsource.workflow.hypothesis_rows import (DRAWS_KEY, add_budget, compact_draws, extend_hazard,
+                                                 extra_columns, hypothesis_fields)
 from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
                                          window_summary_columns)
 
@@ -106,6 +108,8 @@ def _invert_row(args):
            "p_scrubbed_below_epsilon": _num(result.p_scrubbed_below_epsilon),
            "p_scrubbed_below_epsilon_error": _num(result.p_scrubbed_below_epsilon_error),
            "flags": ";".join(result.flags), "seed": int(seed)}
+    row.update(hypothesis_fields(result.hypotheses))
+    row[DRAWS_KEY] = compact_draws(result.budget_draws, seed)
     if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
         (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
          row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
@@ -208,11 +212,12 @@ def _read_done(out_dir, ids):
 
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
-               window=None):
+               window=None, budget_max_gap_days=None):
     """Invert every row; returns the list of summary rows in file order.
 
     workers: local processes (or LocalCluster workers with dask_local);
     dask_scheduler: address of a running dask.distributed scheduler.
+    budget_max_gap_days: longest interval the sulfur budget bridges (flux columns only).
     Without resume, finished rows already in out_dir are an error (never overwritten
     silently); with resume they are kept and only the rest is inverted.
     """
@@ -263,6 +268,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
                  row_seed(seed, f"window-{label}"), options, out_dir)
                 for label, idx in groups if series.ids[idx[0]] not in done]
         work = invert_window
+    cols = cols + extra_columns(spec, series)
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
     bar = Progress(len(series.ids), len(done), stream=progress_stream)
@@ -300,9 +306,10 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     else:
         for job in todo:
             record(work(job))
-    rows = [done[i] for i in series.ids]
+    rows = add_budget(series, [done[i] for i in series.ids], seed, budget_max_gap_days)
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
-    hazard = hazard_document(series, spec, prior_path, rows, seed, options, model_note)
+    hazard = extend_hazard(hazard_document(series, spec, prior_path, rows, seed, options, model_note),
+                           rows, series, budget_max_gap_days)
     _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     _write_json(run_path, dict(settings, status="complete", package_version=__version__,
                                caution=CAUTION))
