@@ -3,7 +3,7 @@
 Made by this package's own forward model from known truth plus noise; it describes
 no real place or data (labelled synthetic in the files). The story: quiet magmatic
 degassing; a hydrothermal system that scrubs a growing share of the SO2 (0.1 up to
-0.98) so that the SO2 flux falls to below detection while the CO2 flux carries on;
+0.99) so that the SO2 flux falls to below detection while the CO2 flux carries on;
 then the stored sulfur is released, the SO2 flux rising to a multiple (1 + r) of the
 magmatic one. Ratios carry 15 % and fluxes 20 % log-normal errors.
 """
@@ -34,7 +34,7 @@ def sulfur_truth(n_rows=36, start="2025-03-01", step_days=7, phases=(0.25, 0.85)
         scrubbed, released, episode = 0.0, 0.0, "quiet"
         if phases[0] <= phase < phases[1]:
             episode = "scrubbing"
-            scrubbed = 0.1 + 0.88 * (phase - phases[0]) / (phases[1] - phases[0])
+            scrubbed = min(0.99, 0.1 + 0.95 * (phase - phases[0]) / (phases[1] - phases[0]))
         elif phase >= phases[1]:
             episode = "release"
             released = 2.5 - 1.5 * (phase - phases[1]) / (1.0 - phases[1])  # x3.5 falling to x2
@@ -90,3 +90,27 @@ def make_sulfur_series(out_dir, n_rows=36, seed=2027, prior_path=None):
     data.to_csv(path, index=False)
     truth.to_csv(os.path.join(out_dir, "truth.csv"), index=False)
     return path
+
+
+RELEASE_TABLE = '''
+[hypotheses]
+p_released = 0.2
+source = "defaults of ventsource: release needs stored sulfur, judged rarer than either ordinary state (no source)"
+
+[hypotheses.released_so2]
+distribution = "loguniform"
+min = 0.1
+max = 10.0
+source = "invented bounds for the fictional demo: below a 10 % excess a release hides in the ratio errors"
+'''
+
+
+def write_release_prior(out_path, base_prior=None):
+    """The fast demo prior plus the [hypotheses] table of the third hypothesis (M2)."""
+    from ventsource.workflow.demo import DEMO_FAST_PRIOR
+    with open(base_prior or DEMO_FAST_PRIOR, encoding="utf-8") as fh:
+        text = fh.read()
+    text = text.replace('name = "demo_mount_kerrow_fast"', 'name = "demo_mount_kerrow_fast_release"')
+    with open(out_path, "w", encoding="utf-8") as fh:
+        fh.write(text + RELEASE_TABLE)
+    return out_path
