@@ -277,6 +277,9 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"in the prior; use engine='emcee' with model_choice=False")
         from ventsource.inference.smc_inference import infer_smc
         return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
+    if getattr(prior, "release", None) is not None and do_choice:
+        raise InferenceError("infer: the prior's [hypotheses] table (released sulfur, M2) needs "
+                             "engine 'smc'; engine 'emcee' compares M0 and M1 only")
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
