@@ -39,22 +39,28 @@ def flux_draws(value, censoring, rel_sigma, rng, n):
     return value * np.exp(np.log1p(rel_sigma) * rng.standard_normal(n))
 
 
-def _resample(draws, rng, n):
-    """Budget draws of one row resampled to n (with replacement), non-finite ones dropped."""
+def _resample(draws, rng, n, index=None):
+    """Budget draws of one row resampled to n: at the given draw indices (rows of one
+    window share their source draw at equal index, keeping their joint posterior), or
+    with replacement; a non-finite draw is replaced by a random finite one."""
     ratio = np.asarray(draws["so2_co2_magmatic"], float)
     factor = np.asarray(draws["so2_factor"], float)
-    ok = np.flatnonzero(np.isfinite(ratio) & np.isfinite(factor))
+    finite = np.isfinite(ratio) & np.isfinite(factor)
+    ok = np.flatnonzero(finite)
     if ok.size == 0:
         return np.full(n, np.nan), np.full(n, np.nan)
     pick = rng.choice(ok, size=n, replace=True)
+    if index is not None and ratio.size:
+        idx = np.asarray(index) % ratio.size
+        pick = np.where(finite[idx], idx, pick)
     return ratio[pick], factor[pick]
 
 
-def row_rates(draws, fluxes, rng, n=N_BUDGET_DRAWS):
+def row_rates(draws, fluxes, rng, n=N_BUDGET_DRAWS, index=None):
     """(magmatic SO2 t/d, retained S t/d, basis) for one row; rates are (n,) draws.
 
     fluxes: {"SO2 flux": (value, censoring, sigma), "CO2 flux": (...)} of this row."""
-    ratio, factor = _resample(draws, rng, n)
+    ratio, factor = _resample(draws, rng, n, index)
     so2 = flux_draws(*fluxes.get("SO2 flux", (np.nan, 0, 0.0)), rng, n)
     co2 = flux_draws(*fluxes.get("CO2 flux", (np.nan, 0, 0.0)), rng, n)
     so2_exact = np.isfinite(fluxes.get("SO2 flux", (np.nan,))[0]) and fluxes["SO2 flux"][1] == 0
@@ -110,13 +116,14 @@ def series_budget(times, row_draws, flux_series, seed, max_gap_days):
     mag = np.full((n_rows, N_BUDGET_DRAWS), np.nan)
     ret = np.full((n_rows, N_BUDGET_DRAWS), np.nan)
     basis = []
+    common = rng.integers(0, 2**31, N_BUDGET_DRAWS)  # one posterior draw index for every row
     for i in range(n_rows):
         cells = {c: (flux_series.values[c][i], flux_series.censoring[c][i], flux_series.sigma[c][i])
                  for c in flux_series.values}
         if row_draws[i] is None:
             basis.append("none")
             continue
-        mag[i], ret[i], b = row_rates(row_draws[i], cells, rng)
+        mag[i], ret[i], b = row_rates(row_draws[i], cells, rng, index=common)
         basis.append(b)
     t = np.array(times, dtype="datetime64[s]").astype(np.int64).astype(float)
     cum, bridged = cumulative(t, ret, max_gap_days)
