@@ -370,6 +370,9 @@ def _series_options(p):
                         "it has one, else 1")
     p.add_argument("--engine", choices=["smc", "emcee"], default=None,
                    help="sampling engine for row-by-row inversion (default: smc)")
+    p.add_argument("--budget-max-gap", type=float, default=None, metavar="DAYS",
+                   help="sulfur budget (files with flux columns): longest interval between "
+                        "measurements that the cumulative retained sulfur bridges (default 30)")
     p.add_argument("--sigma", action="append", default=None, metavar="[RATIO=]VALUE",
                    help="default relative 1-sigma: a number for every ratio and/or RATIO=VALUE "
                         "per column, repeatable (else the prior file's likelihood.relative_sigma)")
@@ -457,7 +460,8 @@ def cmd_run(args):
     announce_compilation()
     run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
                resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
-               dask_local=args.dask_local, window=window, oversubscribe=args.oversubscribe)
+               dask_local=args.dask_local, window=window, oversubscribe=args.oversubscribe,
+               budget_max_gap_days=_budget_gap(args))
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
@@ -467,6 +471,13 @@ def cmd_run(args):
           + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
     print(f"Caution: {CAUTION}")
     return 0
+
+
+def _budget_gap(args):
+    gap = getattr(args, "budget_max_gap", None)
+    if gap is not None and not gap > 0:
+        raise InputError(f"--budget-max-gap {gap:g}: give a positive number of days")
+    return gap
 
 
 def cmd_compare(args):

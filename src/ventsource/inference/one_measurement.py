@@ -85,6 +85,8 @@ class InferenceResult:
     engine: str = "emcee"
     scrubbed_model_averaged: tuple | None = None  # (q05, median, q95), point mass at 0 of weight P(M0)
     diagnostics: dict = field(default_factory=dict)
+    hypotheses: dict | None = None     # with a release prior: P(M0), P(M1), P(M2), errors (SMC engine)
+    budget_draws: dict | None = None   # per-draw hypothesis, magmatic SO2/CO2, SO2 factor (SMC engine)
 
     @property
     def log_evidence(self) -> dict:
@@ -282,6 +284,9 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.smc_inference import infer_smc
         return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
+    if getattr(prior, "release", None) is not None and do_choice:
+        raise InferenceError("infer: the prior's [hypotheses] table (released sulfur, M2) needs "
+                             "engine 'smc'; engine 'emcee' compares M0 and M1 only")
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "

@@ -14,6 +14,9 @@ from ventsource.inference.engines.emcee_engine import SampleResult
 from ventsource.inference.engines.smc_engine import SMCError
 from ventsource.inference.model_choice import model_flags, predictive_check, probability_below
 from ventsource.inference.one_measurement import InferenceError, InferenceResult, ModelRun, _to_idata
+from ventsource.inference.hypotheses_smc import (budget_draws, log_evidences, log_priors,
+                                                 probabilities_with_errors, release_draws,
+                                                 responsibilities)
 from ventsource.inference.smc_measurement import (model_averaged_quantiles, model_draws,
                                                   model_probabilities, run_smc)
 
@@ -46,11 +49,16 @@ def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
     except SMCError as exc:
         raise InferenceError(f"infer: {exc}") from None
     p0_runs, r0, log_z0, log_z1 = model_probabilities(res, pi0)
+    three = _three_hypotheses(res, target, seed) if target.release is not None else None
+    if three is not None:  # M0, M1 from the three-way responsibilities
+        p0_runs, r0 = three["per_run"][:, 0], three["resp"][:, :, 0]
+        log_z0, log_z1 = three["log_z"][:, 0], three["log_z"][:, 1]
     R = p0_runs.size
     p_mag = float(p0_runs.mean())
     p_err = float(p0_runs.std(ddof=1) / np.sqrt(R)) if R > 1 else float("nan")
     rng = np.random.default_rng(seeds[1])
-    d1 = model_draws(res, target, r0, prior, rng, scrubbed=True, scrub_name=opt["scrub_name"])
+    r0_scrub = r0 if three is None else 1.0 - three["resp"][:, :, 1]  # weight 1 - r0_scrub = r1
+    d1 = model_draws(res, target, r0_scrub, prior, rng, scrubbed=True, scrub_name=opt["scrub_name"])
     d0 = model_draws(res, target, r0, prior, rng, scrubbed=False, scrub_name=opt["scrub_name"])
     diag = {"engine": "smc", "n_runs": R, "n_particles": int(opt["n_particles"]),
             "n_forward_evals": int(res.n_evals), "n_failed_states": int(res.n_failed),
@@ -63,6 +71,8 @@ def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
     check1 = predictive_check(lik, d1.predictions, np.random.default_rng(seeds[2]), opt["alpha"])
     check0 = predictive_check(lik, d0.predictions, np.random.default_rng(seeds[3]), opt["alpha"])
     flags += model_flags(check0, check1)
+    if three is not None:
+        flags = _release_check(three, lik, flags, seed, opt["alpha"])
     names1, names0 = tuple(prior.free_names), tuple(target.prior0.free_names)
     err = lambda z: float(np.std(z, ddof=1) / np.sqrt(R)) if R > 1 else float("nan")  # noqa: E731
     run1 = ModelRun("M1", prior, _as_sample(d1, names1, res, diag), None, check1,
@@ -83,7 +93,42 @@ def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
                            p_scrubbed_below_epsilon_error=p_below_err,
                            epsilon=float(opt["epsilon"]), pi0=pi0, flags=flags, idata=idata1,
                            idata_m0=idata0, runs={"M1": run1, "M0": run0}, engine="smc",
-                           scrubbed_model_averaged=averaged, diagnostics=diag)
+                           scrubbed_model_averaged=averaged, diagnostics=diag,
+                           hypotheses=None if three is None else three["summary"],
+                           budget_draws=_budget(res, target, three, seed))
+
+
+def _three_hypotheses(res, target, seed):
+    """P(M0), P(M1), P(M2) with errors, M2 draws; own random stream (the two-hypothesis
+    numbers keep theirs)."""
+    resp = responsibilities(res, target)
+    p, err, per_run = probabilities_with_errors(resp)
+    rng = np.random.default_rng([int(seed), 2])
+    pred2, r_draws = release_draws(res, target, resp[:, :, 2], rng)
+    q = np.quantile(r_draws[np.isfinite(r_draws)], [0.05, 0.5, 0.95]) if np.isfinite(r_draws).any() \
+        else np.full(3, np.nan)
+    summary = {"names": ["M0 magmatic", "M1 scrubbed", "M2 released"], "p": p.tolist(),
+               "error": err.tolist(), "p_per_run": per_run.tolist(),
+               "prior": np.exp(log_priors(target)).tolist(),
+               "released_so2_if_released": [float(x) for x in q]}
+    return {"resp": resp, "per_run": per_run, "log_z": log_evidences(res, target, per_run),
+            "pred2": pred2, "summary": summary}
+
+
+def _release_check(three, lik, flags, seed, alpha):
+    """The predictive check of M2: a gas none of the three hypotheses reproduces is flagged."""
+    pred2 = three["pred2"].reshape(-1, three["pred2"].shape[-1])
+    check2 = predictive_check(lik, pred2[np.isfinite(pred2).all(axis=1)],
+                              np.random.default_rng([int(seed), 3]), alpha)
+    three["summary"]["m2_reproduces"] = bool(check2.reproduces)
+    if check2.reproduces:
+        return [f for f in flags if f != "unexplained"]
+    return flags + ["m2_not_reproducing"]
+
+
+def _budget(res, target, three, seed):
+    resp = three["resp"] if three is not None else responsibilities(res, target)
+    return budget_draws(res, target, resp, np.random.default_rng([int(seed), 4]))
 
 
 def _flags(diag, p_err, opt, res):

@@ -22,6 +22,7 @@ import numpy as np
 
 from ventsource.inference.engines.smc_engine import SMCResult, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
+from ventsource.inference.release_marginal import ReleaseMarginal
 from ventsource.inference.so2_marginal import ScrubbingMarginal
 from ventsource.ascent import observables
 from ventsource.ascent.scrubbing import scrub
@@ -39,14 +40,25 @@ class MeasurementDraws:
 
 
 class ModelAveragedTarget:
-    """log pi0 L0 + (1 - pi0) L1 for particles in the M0 parameter space (no s)."""
+    """log pi0 L0 + pi1 L1 [+ pi2 L2] for particles in the M0 parameter space (no s, no r).
+
+    Without a release prior (prior.release None) pi1 = 1 - pi0 and the target is the
+    two-hypothesis one, number for number; with it pi0, pi1, pi2 come from
+    ReleasePrior.probabilities(pi0) and L2 integrates the released fraction r out."""
 
     def __init__(self, prior, forward, likelihood, pi0, scrub_name="scrubbed_so2"):
         self.prior0 = prior.with_fixed(scrub_name, 0.0)
         self.forward = forward
         self.marginal = ScrubbingMarginal(likelihood, forward.ratio_names, forward.product,
                                           prior.distributions[scrub_name])
-        self.log_pi0, self.log_pi1 = np.log(pi0), np.log1p(-pi0)
+        release = getattr(prior, "release", None)
+        self.release = None
+        if release is None:
+            self.log_pi0, self.log_pi1 = np.log(pi0), np.log1p(-pi0)
+        else:
+            self.log_pi0, self.log_pi1, self.log_pi2 = np.log(release.probabilities(pi0))
+            self.release = ReleaseMarginal(likelihood, forward.ratio_names, forward.product,
+                                           release.distribution)
         names = tuple(self.prior0.parameter_names)
         self._h2s_return = names.index("h2s_return") if "h2s_return" in names else None
 
@@ -62,7 +74,13 @@ class ModelAveragedTarget:
         ll0[bad] = -np.inf
         ll1[bad] = -np.inf
         mix = np.logaddexp(self.log_pi0 + ll0, self.log_pi1 + ll1)
-        return mix, {"ll0": ll0, "ll1": ll1, "gas": np.where(bad[:, None], np.nan, gas)}
+        aux = {"ll0": ll0, "ll1": ll1, "gas": np.where(bad[:, None], np.nan, gas)}
+        if self.release is not None:
+            _, ll2 = self.release.log_likelihoods(np.where(bad[:, None], 1.0, gas))
+            ll2[bad] = -np.inf
+            mix = np.logaddexp(mix, self.log_pi2 + ll2)
+            aux["ll2"] = ll2
+        return mix, aux
 
 
 def run_smc(prior, forward, likelihood, pi0, seed, n_particles, n_runs, scrub_name="scrubbed_so2",

@@ -72,12 +72,16 @@ def change_vector(gas, product, h2s_return):
     return dx
 
 
-class ScrubbingMarginal:
-    """log L0 and log L1 (scrubbed fraction integrated out) for batches of magmatic gas.
+class So2MultiplierMarginal:
+    """log L0 and log L_alt (an SO2 multiplier e^v integrated out) for batches of magmatic gas.
+
+    The alternative hypothesis multiplies the magmatic SO2 by e^v with v in a support
+    [v_lo, v_hi] and a prior density p_v(v); every other species moves linearly with the
+    parameter of the subclass (its change_vector). Subclasses give the parameter <-> v
+    maps, the support and whether the change is a pure SO2 multiplier (fast path).
 
     likelihood : ventsource.inference.likelihood.Likelihood (prediction columns =
-                 ratio_names); product : scrubbing product; distribution : the prior
-                 distribution of scrubbed_so2 (ventsource.inference.priors.distributions).
+                 ratio_names); distribution : the prior of the subclass's parameter.
     """
 
     def __init__(self, likelihood, ratio_names, product, distribution):
@@ -87,11 +91,9 @@ class ScrubbingMarginal:
         top, bottom = observables.weight_matrices(tuple(ratio_names))
         cols = likelihood._cols
         self.top, self.bottom = top[:, cols], bottom[:, cols]
-        with np.errstate(divide="ignore"):  # s up to 1: ln(0) = -inf, floored
-            self.v_lo = max(float(np.log1p(-min(distribution.upper, 1.0))), V_FLOOR)
-        self.v_hi = float(np.log1p(-max(distribution.lower, 0.0)))
+        self.v_lo, self.v_hi = self._v_support()
         self.k = self._powers()
-        self.fast = (product == "loss" and likelihood.kind == "normal" and self.k is not None
+        self.fast = (self._pure_so2_multiplier() and likelihood.kind == "normal" and self.k is not None
                      and not np.any(likelihood.c[self.k != 0]))
         if self.fast:
             s = likelihood.s
@@ -100,10 +102,34 @@ class ScrubbingMarginal:
             self._k_inv_var = self.k / s ** 2
             self._all_exact_normal = not np.any(likelihood.c)
             self._ll0_const = float(-np.sum(np.log(s)) - 0.5 * s.size * np.log(2.0 * np.pi))
-        # beta(1, 1) is the uniform distribution: same closed form
+        # s = 1 - e^v and r = e^v - 1 both have |d param / dv| = e^v, so a uniform prior
+        # (beta(1, 1) included) gives p_v = e^v / width: the same closed form
         self.uniform = isinstance(distribution, Uniform) or (
             isinstance(distribution, Beta) and distribution.a == 1.0 and distribution.b == 1.0)
         self.gl_x, self.gl_w = np.polynomial.legendre.leggauss(N_GAUSS)
+
+    # ---- hooks of the subclasses
+    def _v_support(self):
+        raise NotImplementedError
+
+    def _pure_so2_multiplier(self):
+        raise NotImplementedError
+
+    def param_of_v(self, v):
+        raise NotImplementedError
+
+    def change(self, gas, h2s_return):
+        """d(gas)/d(parameter), (n, n_species)."""
+        raise NotImplementedError
+
+    def log_prior_v(self, v):
+        """Prior density of v: p(param(v)) |d param / dv| = p(param(v)) e^v for both subclasses."""
+        with np.errstate(invalid="ignore", over="ignore"):
+            out = self.dist.log_pdf(self.param_of_v(v)) + v
+        return np.where(np.isnan(out), -np.inf, out)
+
+    def _clip_param(self, x):
+        return np.clip(x, max(self.dist.lower, self._param_floor), min(self.dist.upper, self._param_ceiling))
 
     def _powers(self):
         """k per observed ratio if each is SO2^(+-1) times an SO2-free part, else None."""
@@ -118,13 +144,6 @@ class ScrubbingMarginal:
                     return None
                 k[j] += sign
         return k
-
-    # ---- prior density of v = ln(1 - s): p_s(1 - e^v) e^v
-    def log_prior_v(self, v):
-        with np.errstate(invalid="ignore", over="ignore"):
-            s = -np.expm1(v)
-            out = self.dist.log_pdf(s) + v
-        return np.where(np.isnan(out), -np.inf, out)
 
     def log_likelihoods(self, gas, h2s_return=1.0, log_ratios=None):
         """(log L0, log L1), each (n,), for magmatic gas (n, n_species) after any H2S change.
@@ -201,13 +220,13 @@ class ScrubbingMarginal:
 
     # ---- general path
     def _ratio_parts(self, gas, h2s_return):
-        dx = change_vector(gas, self.product, np.broadcast_to(h2s_return, gas.shape[:1]))
+        dx = self.change(gas, h2s_return)
         return gas @ self.top, dx @ self.top, gas @ self.bottom, dx @ self.bottom
 
     def _log_integrand(self, parts, v):
         """log L(s(v)) + log p_v(v) for v (n, K): (n, K)."""
         a, b, c, d = parts
-        s = -np.expm1(v)[:, :, None]
+        s = self.param_of_v(v)[:, :, None]
         with np.errstate(divide="ignore", invalid="ignore"):
             mu = np.log(a[:, None, :] + b[:, None, :] * s) - np.log(c[:, None, :] + d[:, None, :] * s)
         n, K, m = mu.shape
@@ -243,9 +262,9 @@ class ScrubbingMarginal:
         ll1[bad | np.isnan(ll1)] = -np.inf
         return ll0, ll1, grid, f
 
-    # ---- conditional draws of s given the gas (M1)
+    # ---- conditional draws of the parameter given the gas
     def sample(self, gas, rng, h2s_return=1.0):
-        """One draw of the scrubbed fraction per row from p(s | gas, data, M1)."""
+        """One draw of the parameter per row from p(param | gas, data, alternative)."""
         n = gas.shape[0]
         if self.fast:
             grid, logf = self._fast_grid(gas)
@@ -255,7 +274,7 @@ class ScrubbingMarginal:
             grid = np.take_along_axis(grid, order, axis=1)
             logf = np.take_along_axis(logf, order, axis=1)
         v = _inverse_cdf_on_grid(grid, logf, rng.random(n), rng.random(n))
-        return np.clip(-np.expm1(v), max(self.dist.lower, 0.0), min(self.dist.upper, 1.0))
+        return self._clip_param(self.param_of_v(v))
 
     def _fast_grid(self, gas):
         lik = self.lik
@@ -272,6 +291,26 @@ class ScrubbingMarginal:
         grid = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, 257)[None, :]
         logf = -0.5 * ((grid - m[:, None]) / tau) ** 2 + self.log_prior_v(grid)
         return grid, logf + _trapezoid_log_weights(grid)
+
+
+class ScrubbingMarginal(So2MultiplierMarginal):
+    """Scrubbed fraction s: SO2 times 1 - s = e^v, v = ln(1 - s) <= 0 (M1)."""
+
+    _param_floor, _param_ceiling = 0.0, 1.0
+
+    def _v_support(self):
+        with np.errstate(divide="ignore"):  # s up to 1: ln(0) = -inf, floored
+            v_lo = max(float(np.log1p(-min(self.dist.upper, 1.0))), V_FLOOR)
+        return v_lo, float(np.log1p(-max(self.dist.lower, 0.0)))
+
+    def _pure_so2_multiplier(self):
+        return self.product == "loss"
+
+    def param_of_v(self, v):
+        return -np.expm1(v)
+
+    def change(self, gas, h2s_return):
+        return change_vector(gas, self.product, np.broadcast_to(h2s_return, gas.shape[:1]))
 
 
 def _trapezoid_log_weights(grid, outside=None):

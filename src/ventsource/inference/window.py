@@ -8,6 +8,7 @@ Given psi the rows are independent, so
 
     L(psi) = prod_i integral p(P) [pi0 L0_i(psi, P) + (1 - pi0) L1_i(psi, P)] dP,
 
+(with a release prior, + pi2 L2_i(psi, P): released sulfur, see release_marginal.py),
 with L1_i the scrubbed fraction integrated out (so2_marginal.py) and the pressure
 integral done by quadrature: one batch of forward solves on a grid of pressures
 (uniform in ln P, which resolves the fast change of the gas at low pressure) serves
@@ -21,6 +22,7 @@ import numpy as np
 from scipy import special
 
 from ventsource.ascent import observables
+from ventsource.inference.release_marginal import ReleaseMarginal
 from ventsource.inference.so2_marginal import ScrubbingMarginal, log_ratios_of
 
 PER_ROW = ("pressure_bar", "scrubbed_so2")
@@ -82,6 +84,12 @@ class WindowTarget:
         dist_s = prior.distributions["scrubbed_so2"]
         self.marginals = [ScrubbingMarginal(lik, forward.ratio_names, forward.product, dist_s)
                           for lik in likelihoods]
+        release = getattr(prior, "release", None)  # third hypothesis M2, or None (two, as before)
+        self.releases = None if release is None else [
+            ReleaseMarginal(lik, forward.ratio_names, forward.product, release.distribution)
+            for lik in likelihoods]
+        self.log_pis = (np.array([np.log(self.pi0), np.log1p(-self.pi0)]) if release is None
+                        else np.log(release.probabilities(self.pi0)))
         self._weights = observables.weight_matrices(forward.ratio_names)
         names = tuple(self.shared_prior.parameter_names)
         self._j_p = names.index("pressure_bar")
@@ -103,34 +111,41 @@ class WindowTarget:
         h2s = full[:, self._j_h] if self._j_h is not None else 1.0
         return gas, h2s
 
+    @property
+    def n_hypotheses(self):
+        return self.log_pis.size
+
     def row_log_likelihoods(self, gas, h2s):
-        """(ll0, ll1), each (rows, n, K): per row and grid point, NaN gas -> -inf."""
+        """(ll0, ll1[, ll2]), each (rows, n, K): per row and grid point, NaN gas -> -inf."""
         n, K, s = gas.shape
         flat = gas.reshape(n * K, s)
         bad = ~np.isfinite(flat).all(axis=1)
         flat = np.where(bad[:, None], 1.0, flat)
         h = np.repeat(h2s, K) if np.ndim(h2s) else h2s
         log_ratios = log_ratios_of(flat, *self._weights)  # shared by every row
-        out0, out1 = [], []
-        for marg in self.marginals:
-            ll0, ll1 = marg.log_likelihoods(flat, h, log_ratios=log_ratios)
-            ll0[bad] = -np.inf
-            ll1[bad] = -np.inf
-            out0.append(ll0.reshape(n, K))
-            out1.append(ll1.reshape(n, K))
-        return np.stack(out0), np.stack(out1)
+        out = [[] for _ in range(self.n_hypotheses)]
+        for i, marg in enumerate(self.marginals):
+            lls = list(marg.log_likelihoods(flat, h, log_ratios=log_ratios))
+            if self.releases is not None:
+                lls.append(self.releases[i].log_likelihoods(flat, h, log_ratios=log_ratios)[1])
+            for k, ll in enumerate(lls):
+                ll[bad] = -np.inf
+                out[k].append(ll.reshape(n, K))
+        return tuple(np.stack(o) for o in out)
 
     def row_evidences(self, psi):
-        """(log Z0, log Z1), each (n, rows): pressure integrated out for each row."""
+        """(log Z0, log Z1[, log Z2]), each (n, rows): pressure integrated out for each row."""
         gas, h2s = self.gas_on_grid(psi)
-        ll0, ll1 = self.row_log_likelihoods(gas, h2s)
-        return _log_sum_weighted(ll0, self.log_w).T, _log_sum_weighted(ll1, self.log_w).T
+        return tuple(_log_sum_weighted(ll, self.log_w).T for ll in self.row_log_likelihoods(gas, h2s))
 
-    def row_mixture(self, lz0, lz1):
-        return np.logaddexp(np.log(self.pi0) + lz0, np.log1p(-self.pi0) + lz1)
+    def row_mixture(self, *lz):
+        mix = np.logaddexp(self.log_pis[0] + lz[0], self.log_pis[1] + lz[1])
+        for k in range(2, len(lz)):
+            mix = np.logaddexp(mix, self.log_pis[k] + lz[k])
+        return mix
 
     def __call__(self, psi):
-        lz0, lz1 = self.row_evidences(psi)
-        mix = self.row_mixture(lz0, lz1)
+        lz = self.row_evidences(psi)
+        mix = self.row_mixture(*lz)
         total = mix.sum(axis=1)
-        return np.where(np.isnan(total), -np.inf, total), {"lz0": lz0, "lz1": lz1}
+        return np.where(np.isnan(total), -np.inf, total), {f"lz{k}": v for k, v in enumerate(lz)}

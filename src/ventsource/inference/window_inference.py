@@ -28,6 +28,9 @@ from ventsource.inference.likelihood import Likelihood
 from ventsource.inference.model_choice import predictive_check
 from ventsource.inference.smc_measurement import model_averaged_quantiles
 from ventsource.inference.window import WindowTarget
+from ventsource.chemistry.species import INDEX
+
+_SO2, _CO2 = INDEX["SO2"], INDEX["CO2"]
 
 WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=20, alpha=0.01,
                        n_source_check=2000, pi0=None, kind=None, dof=None, smc_rhat_max=1.02,
@@ -48,6 +51,8 @@ class RowResult:
     pressure_bar: tuple                 # (q05, median, q95), model-averaged
     predictive: dict                    # ratio -> (q05, median, q95)
     flags: list
+    hypotheses: dict | None = None      # with a release prior: P(M0), P(M1), P(M2) and errors
+    budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor
 
 
 @dataclass
@@ -122,23 +127,30 @@ def _row_results(target, res, measurements, rng, opt):
     R, N, d = res.theta.shape
     psi = res.theta.reshape(R * N, d)
     gas, h2s = target.gas_on_grid(psi)
-    ll0, ll1 = target.row_log_likelihoods(gas, h2s)
-    lz0, lz1 = res.aux["lz0"].reshape(R * N, -1), res.aux["lz1"].reshape(R * N, -1)
-    mix = target.row_mixture(lz0, lz1)
-    r0 = np.exp(np.log(target.pi0) + lz0 - mix)               # (R*N, rows)
+    lls = target.row_log_likelihoods(gas, h2s)
+    lz = [res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)]
+    mix = target.row_mixture(*lz)
+    resp = np.stack([np.exp(target.log_pis[k] + lz[k] - mix) for k in range(len(lz))], axis=-1)
     out = []
     for i, meas in enumerate(measurements):
-        p_runs = np.nan_to_num(r0[:, i]).reshape(R, N).mean(axis=1)
-        draws = _row_draws(target, i, gas, h2s, ll0[i], ll1[i], r0[:, i], rng)
+        p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)
+                           for k in range(resp.shape[2])], axis=1)            # (R, H)
+        draws = _row_draws(target, i, gas, h2s, [ll[i] for ll in lls], resp[:, i], rng)
         out.append(_summarise_row(meas, target, i, p_runs, draws, rng, opt))
     return out
 
 
-def _row_draws(target, i, gas, h2s, ll0, ll1, r0, rng):
-    """One (model, pressure, s, predicted ratios) draw per shared draw."""
+def _row_draws(target, i, gas, h2s, lls, resp, rng):
+    """One (model, pressure, s or r, predicted ratios) draw per shared draw."""
     n, K, _ = gas.shape
-    magmatic = rng.random(n) < r0
-    logp = np.where(magmatic[:, None], ll0, ll1) + target.log_w[None, :]
+    resp = np.nan_to_num(resp)
+    if resp.shape[1] == 2:   # the two-hypothesis draws, random stream as before
+        model = np.where(rng.random(n) < resp[:, 0], 0, 1)
+    else:
+        cum = np.cumsum(resp, axis=1)
+        model = np.minimum((cum < rng.random(n)[:, None] * cum[:, -1:]).sum(axis=1), 2)
+    magmatic = model == 0
+    logp = np.stack(lls)[model, np.arange(n)] + target.log_w[None, :]
     logp = logp - special.logsumexp(logp, axis=1, keepdims=True)
     cdf = np.cumsum(np.exp(logp), axis=1)
     k = np.minimum((cdf < rng.random(n)[:, None]).sum(axis=1), K - 1)
@@ -150,10 +162,19 @@ def _row_draws(target, i, gas, h2s, ll0, ll1, r0, rng):
     pressure = np.clip(target.p_quad[k] * np.exp(step * (rng.random(n) - 0.5)),
                        target.p_quad[0], target.p_quad[-1])
     h = h2s[rows] if np.ndim(h2s) else h2s
-    s = np.where(magmatic, 0.0, target.marginals[i].sample(g, rng, h))
-    pred = observables.ratios(scrub(g, s, target.forward.product, 0.0, h), target.forward.ratio_names)
+    s = np.where(model == 1, target.marginals[i].sample(g, rng, h), 0.0)
+    gas_out = scrub(g, s, target.forward.product, 0.0, h)
+    factor = 1.0 - s
+    if target.releases is not None:
+        r = np.where(model == 2, target.releases[i].sample(g, rng), 0.0)
+        gas_out[:, _SO2] *= 1.0 + r
+        factor = np.where(model == 2, 1.0 + r, factor)
+    pred = observables.ratios(gas_out, target.forward.ratio_names)
     pred[~ok] = np.nan
-    return {"magmatic": magmatic, "pressure": pressure, "s": s, "pred": pred, "ok": ok}
+    with np.errstate(divide="ignore", invalid="ignore"):
+        so2_co2 = np.where(ok, g[:, _SO2] / g[:, _CO2], np.nan)
+    return {"magmatic": magmatic, "model": model, "pressure": pressure, "s": s, "pred": pred,
+            "ok": ok, "budget": {"model": model, "so2_co2_magmatic": so2_co2, "so2_factor": factor}}
 
 
 def _q(x):
@@ -163,24 +184,31 @@ def _q(x):
 
 def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
     lik = target.marginals[i].lik
-    p = float(p_runs.mean())
-    err = float(p_runs.std(ddof=1) / np.sqrt(p_runs.size)) if p_runs.size > 1 else float("nan")
-    s1 = draws["s"][~draws["magmatic"]]
+    R = p_runs.shape[0]
+    p_all = p_runs.mean(axis=0)
+    err_all = p_runs.std(axis=0, ddof=1) / np.sqrt(R) if R > 1 else np.full(p_all.size, np.nan)
+    p, err = float(p_all[0]), float(err_all[0])
+    s1 = draws["s"][draws["model"] == 1]
     check = predictive_check(lik, draws["pred"][draws["ok"]], rng, opt["alpha"])
     y_rep = np.exp(lik.simulate_log(draws["pred"][draws["ok"]], rng))
     pp = {name: _q(y_rep[:, j]) for j, name in enumerate(lik.observed_names)}
     flags = [] if check.reproduces else ["unexplained"]
     if np.isfinite(err) and err > opt["max_error_p"]:
         flags.append("p_magmatic_error_large")
-    return RowResult(meas.label, p, err, tuple(model_averaged_quantiles(p, s1)), _q(s1),
-                     _q(draws["pressure"]), pp, flags)
+    hyp = None
+    if target.releases is not None:
+        averaged = tuple(model_averaged_quantiles(1.0 - float(p_all[1]), s1))  # s = 0 under M0, M2
+        hyp = {"p": p_all.tolist(), "error": err_all.tolist()}
+    else:
+        averaged = tuple(model_averaged_quantiles(p, s1))
+    return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
+                     hypotheses=hyp, budget_draws=draws["budget"])
 
 
 def _shared_source_log10_bf(target, log_z_window, rng, n):
     """log10 [Z(one source) / prod_i Z_i(own source)], Z_i by prior Monte Carlo over psi."""
     psi = target.shared_prior.sample(rng, n)
-    lz0, lz1 = target.row_evidences(psi)
-    mix = target.row_mixture(lz0, lz1)
+    mix = target.row_mixture(*target.row_evidences(psi))
     mix = np.where(np.isfinite(mix), mix, -np.inf)
     log_zi = special.logsumexp(mix, axis=0) - np.log(n)
     return float((log_z_window - log_zi.sum()) / np.log(10.0))

@@ -10,6 +10,8 @@ Format (CSV, comma-separated, UTF-8, header row):
 * optional `sigma SO2/CO2`-style columns: relative 1-sigma for that ratio
   per cell (0.15 = 15 %); an empty cell, or no such column, takes the
   default (the prior file's likelihood.relative_sigma, or --sigma);
+* optional `SO2 flux`, `CO2 flux` columns (t/d) with `sigma SO2 flux`-style
+  relative errors: see ventsource.workflow.flux_columns;
 * optional `quality ...` columns (any name starting with "quality "): notes
   for people (e.g. points, R^2 and flags of a regression window), not read.
 
@@ -29,6 +31,7 @@ import pandas as pd
 from ventsource.common.errors import InputError
 from ventsource.inference.likelihood import Measurement
 from ventsource.ascent.observables import ratio_weights
+from ventsource.workflow.flux_columns import FluxColumnReader
 
 SIGMA_PREFIX = "sigma "
 WINDOW_COLUMN = "window"  # optional: rows with the same label share one magma source
@@ -44,6 +47,7 @@ class MeasurementSeries:
     measurements: object  # likelihood.Measurement per row (a sequence built on access)
     default_sigma: object = None  # what cells without their own sigma took (recorded by runs)
     windows: list | None = None  # the optional `window` column: the user's own periods
+    fluxes: object = None        # flux_columns.FluxSeries, or None without flux columns
 
     def __len__(self):
         return len(self.ids)
@@ -187,7 +191,10 @@ def _read_table(reader, path, per_column, fallback):
             _fail(path, 1, col, "column appears twice")
         seen.add(col)
     ratio_cols, sigma_cols = [], {}
+    flux = FluxColumnReader(path, header)
     for col in header:
+        if col in flux.columns:
+            continue
         if col in ("id", "time", WINDOW_COLUMN) or col == "":
             if col == "":
                 _fail(path, 1, col, "empty column name")
@@ -202,6 +209,7 @@ def _read_table(reader, path, per_column, fallback):
         except InputError as exc:
             _fail(path, 1, col, f"not a ratio column ({exc})")
         ratio_cols.append(col)
+    flux.check_has_ratios(ratio_cols)
     if not ratio_cols:
         _fail(path, 1, None, "no ratio columns (e.g. SO2/CO2, H2S/SO2)")
     for name in per_column:
@@ -213,16 +221,17 @@ def _read_table(reader, path, per_column, fallback):
             _fail(path, 1, SIGMA_PREFIX + name, f"uncertainty column for '{name}', which is not a ratio column")
     windows = [] if WINDOW_COLUMN in header else None
     ids, times, values, flags, sigmas = _read_rows(reader, path, header, ratio_cols, sigma_cols,
-                                                  per_column, fallback, windows)
+                                                  per_column, fallback, windows, flux)
     if not ids:
         raise InputError(f"{path}: no data rows under the header")
     rows = MeasurementRows(ratio_cols, values, sigmas, flags, ids)
     recorded = dict(per_column, **{"*": fallback}) if per_column else fallback
     return MeasurementSeries(str(path), ids, times, tuple(ratio_cols), rows, default_sigma=recorded,
-                             windows=windows)
+                             windows=windows, fluxes=flux.series())
 
 
-def _read_rows(reader, path, header, ratio_cols, sigma_cols, per_column, fallback, windows=None):
+def _read_rows(reader, path, header, ratio_cols, sigma_cols, per_column, fallback, windows=None,
+               flux=None):
     """Check every data row: identifiers and times row by row, ratio and sigma cells a
     column at a time (pandas.to_numeric; only cells that are not a plain positive number
     take the slow path). Returns ids, UTC seconds and (n, k) values, flags, sigmas."""
@@ -251,6 +260,8 @@ def _read_rows(reader, path, header, ratio_cols, sigma_cols, per_column, fallbac
         times.append(t)
         for add, i in keep:
             add(cells[i])
+        if flux is not None:
+            flux.read_row(cells, r)
         if windows is not None:  # the user's own periods of one magma source
             label = cells[header.index(WINDOW_COLUMN)].strip()
             if not label:

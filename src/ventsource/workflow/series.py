@@ -35,6 +35,8 @@ import numpy as np
 
 from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
+from ventsource.workflow.hypothesis_rows import (DRAWS_KEY, add_budget, compact_draws, extend_hazard,
+                                                 extra_columns, hypothesis_fields)
 from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
                                          window_summary_columns)
 
@@ -140,6 +142,8 @@ def _summary_row(result, spec, row_id, time_text, seed):
            "p_scrubbed_below_epsilon": _num(result.p_scrubbed_below_epsilon),
            "p_scrubbed_below_epsilon_error": _num(result.p_scrubbed_below_epsilon_error),
            "flags": ";".join(result.flags), "seed": int(seed)}
+    row.update(hypothesis_fields(result.hypotheses))
+    row[DRAWS_KEY] = compact_draws(result.budget_draws, seed)
     if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
         (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
          row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
@@ -340,11 +344,13 @@ class _FolderLock:
 
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
-               oversubscribe=False, window=None, synthetic_data=False, progress_label=""):
+               oversubscribe=False, window=None, synthetic_data=False, progress_label="",
+               budget_max_gap_days=None):
     """Invert every row; returns the list of summary rows in file order.
 
     window: None (the file's window column if it has one, else row by row), "rows",
     "column" or a time span in seconds (see ventsource.workflow.windows).
+    budget_max_gap_days: longest interval the sulfur budget bridges (flux columns only).
 
     workers: local processes (or LocalCluster workers with dask_local), at most one per
     row to invert and, unless oversubscribe, one per core; dask_scheduler: address of a
@@ -359,7 +365,8 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     prior_sha = file_sha256(prior_path)
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
-    extras = {"synthetic_data": synthetic_data, "progress_label": progress_label}
+    extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
+              "budget_max_gap_days": budget_max_gap_days}
     groups = assign_windows(series, window)  # checked before anything is written
     _check_output_folder(out_dir)
     _refuse_if_in_use(out_dir)
@@ -428,6 +435,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     else:
         cols = window_summary_columns(series.ratio_names)
         done, failed = (read_done_windows(out_dir, groups, series.ids) if resume else {}), []
+    cols = cols + extra_columns(spec, series)  # three hypotheses, sulfur budget: only when used
     todo_ids = [rid for rid in series.ids if rid not in done]
     summary_path, hazard_path = (os.path.join(out_dir, n) for n in (SUMMARY_NAME, HAZARD_NAME))
     if (old or {}).get("status") == "complete" and not todo_ids and os.path.exists(summary_path) \
@@ -464,11 +472,13 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
                          f"{', '.join(failed[:5])}{' ...' if len(failed) > 5 else ''}\n")
     bar.show("resumed" if done else "")
     _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe, work)
-    rows = [done[i] for i in series.ids]
+    gap_days = extras.get("budget_max_gap_days")
+    rows = add_budget(series, [done[i] for i in series.ids], settings["seed"], gap_days)
     _rewrite(summary_path, cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
                              synthetic_data=extras.get("synthetic_data", False))
+    hazard = extend_hazard(hazard, rows, series, gap_days)
     _write_json(hazard_path, hazard)
     from ventsource.workflow.table_notes import write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",

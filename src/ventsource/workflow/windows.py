@@ -93,6 +93,7 @@ _WINDOW_OPTION_NAMES = ("n_particles", "n_runs", "ess_target", "max_moves", "alp
 
 
 def window_row_summary(rid, time_text, label, r, res, seed):
+    from ventsource.workflow.hypothesis_rows import DRAWS_KEY, compact_draws, hypothesis_fields
     row = {"id": rid, "time": time_text, "window": label, "p_magmatic": r.p_magmatic,
            "p_magmatic_error": r.p_magmatic_error, "flags": ";".join(r.flags + res.flags),
            "seed": int(seed), "log10_bf_one_source": res.log10_bf_shared}
@@ -100,6 +101,8 @@ def window_row_summary(rid, time_text, label, r, res, seed):
                    ("scrubbed_so2_if_scrubbed", r.scrubbed_if_scrubbed),
                    ("pressure_bar", r.pressure_bar)):
         row[f"{tag}_q05"], row[f"{tag}_median"], row[f"{tag}_q95"] = (float(v) for v in q)
+    row.update(hypothesis_fields(r.hypotheses))
+    row[DRAWS_KEY] = compact_draws(r.budget_draws, seed)
     for name, q in r.predictive.items():
         row[f"pp {name}_q05"], row[f"pp {name}_median"], row[f"pp {name}_q95"] = (float(v) for v in q)
     return row

@@ -10,8 +10,9 @@ from ventsource.inference.priors.fields import key_error, fmt_number, reject_unk
 from ventsource.inference.priors.schema import DISTRIBUTIONS, PHYSICAL_LIMITS
 
 
-def parse_distribution(file: str, name: str, table: Mapping) -> tuple[Distribution, str, str | None]:
-    prefix = f"parameters.{name}"
+def parse_distribution(file: str, name: str, table: Mapping,
+                       prefix: str | None = None) -> tuple[Distribution, str, str | None]:
+    prefix = prefix or f"parameters.{name}"
     kind = read_string(file, table, "distribution", f"{prefix}.distribution", True)
     if kind not in DISTRIBUTIONS:
         raise key_error(file, f"{prefix}.distribution",

@@ -22,6 +22,7 @@ from ventsource.inference.priors.schema import (
     OXIDE_TOTAL_RANGE, POWER_LAW_KEYS, REQUIRED_OXIDES, REQUIRED_PARAMETERS, SCHEMA_VERSION,
     SULFIDE_CAPACITY_KEYS, TOP_KEYS, canonical_model_choice,
 )
+from ventsource.inference.priors.hypotheses import parse_hypotheses
 from ventsource.inference.priors.spec import PriorSpec
 
 
@@ -51,6 +52,7 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> PriorSpec:
         p_magmatic=p_mag,
         epsilon=eps,
         magmatic_source=mag_source,
+        release=parse_hypotheses(file, data),
     )
 
 

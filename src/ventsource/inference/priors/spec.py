@@ -23,7 +23,8 @@ class PriorSpec:
     """
 
     def __init__(self, *, path, metadata, distributions, sources, descriptions, melt_oxides_wt,
-                 melt_source, models, likelihood, p_magmatic, epsilon, magmatic_source=None):
+                 melt_source, models, likelihood, p_magmatic, epsilon, magmatic_source=None,
+                 release=None):
         self.path = path
         self.metadata = dict(metadata)
         self.name: str = metadata["name"]
@@ -40,6 +41,7 @@ class PriorSpec:
         self.p_magmatic: float = float(p_magmatic)
         self.epsilon: float = float(epsilon)
         self.magmatic_source = magmatic_source
+        self.release = release  # ReleasePrior of the third hypothesis (M2), or None: two hypotheses
         self.parameter_names: tuple[str, ...] = tuple(self.distributions)
         self.free_names: tuple[str, ...] = tuple(
             n for n, d in self.distributions.items() if not isinstance(d, Fixed))
@@ -141,7 +143,8 @@ class PriorSpec:
             path=self.path, metadata=self.metadata, distributions=dists, sources=sources,
             descriptions=self.descriptions, melt_oxides_wt=self.melt_oxides_wt,
             melt_source=self.melt_source, models=self.models, likelihood=self.likelihood,
-            p_magmatic=self.p_magmatic, epsilon=self.epsilon, magmatic_source=self.magmatic_source)
+            p_magmatic=self.p_magmatic, epsilon=self.epsilon, magmatic_source=self.magmatic_source,
+            release=self.release)
 
     # ---- provenance
     def to_dict(self) -> dict:
@@ -162,7 +165,8 @@ class PriorSpec:
         magmatic: dict[str, Any] = {"p_magmatic": self.p_magmatic, "epsilon": self.epsilon}
         if self.magmatic_source is not None:
             magmatic["source"] = self.magmatic_source
-        return copy.deepcopy({
+        extra = {"hypotheses": self.release.to_dict()} if self.release is not None else {}
+        return copy.deepcopy({**extra,
             "path": str(self.path),
             "schema_version": SCHEMA_VERSION,
             "metadata": self.metadata,
