@@ -10,6 +10,7 @@ FLAG_GLOSSARY = {
                    "this measurement; read no probability from this row.",
     "m0_not_reproducing": "The purely magmatic model alone does not reproduce this measurement.",
     "m1_not_reproducing": "The scrubbing model alone does not reproduce this measurement.",
+    "m2_not_reproducing": "The released-sulfur model alone does not reproduce this measurement.",
     "p_magmatic_error_large": "The Monte Carlo error of P(M0) is above 0.05; rerun with more "
                               "particles before quoting the number.",
     "rhat_high": "Independent sampler runs disagree (R-hat above its limit); rerun with more "

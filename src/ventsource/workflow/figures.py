@@ -90,8 +90,18 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
     truth = pd.read_csv(truth_csv) if truth_csv else None
     ratios = [c[3:-4] for c in s.columns if c.startswith("pp ") and c.endswith("_q05")]
     has_p = "pressure_bar_median" in s
-    n = len(ratios) + 2 + int(has_p)
+    has_m2 = "p_released" in s and s["p_released"].notna().any()
+    has_budget = "cumulative_retained_s_t_median" in s and s["cumulative_retained_s_t_median"].notna().any()
+    extra = int(has_m2) + int(has_budget)
+    n = len(ratios) + 2 + int(has_p) + extra
     fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.4), sharex=True)
+    bottom = axes[-1]
+    if extra:  # the sulfur panels go last; the standard panels keep their places before them
+        tail, axes = axes[len(axes) - extra:], axes[:len(axes) - extra]
+        if has_m2:
+            _hypotheses_panel(tail[0], s, times)
+        if has_budget:
+            _budget_panel(tail[-1], s, times)
     legend = {}
     for ax, r in zip(axes, ratios):
         _ratio_panel(ax, s, times, r, series, truth)
@@ -104,17 +114,41 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
         _pressure_panel(axes[-3], s, times, truth)
     _p_magmatic_panel(axes[-2], s, times, p_magmatic_prior)
     _scrubbed_panel(axes[-1], s, times, truth)
-    axes[-1].set_xlabel("time (UTC)")
+    bottom.set_xlabel("time (UTC)")
     import matplotlib.dates as mdates
     locator = mdates.AutoDateLocator(maxticks=8)
-    axes[-1].xaxis.set_major_locator(locator)
-    axes[-1].xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
+    bottom.xaxis.set_major_locator(locator)
+    bottom.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
     data_name = os.path.basename(series.path) if series is not None else os.path.basename(summary_csv)
     head = title or "Gas-ratio inversion"
     fig.suptitle(f"{head}\nprior: {prior_name or 'not given'}   data: {data_name}", fontsize=10)
     _footnote(fig)
     fig.tight_layout(rect=(0, 0.025, 1, 1))
     return fig
+
+
+def _hypotheses_panel(ax, s, times):
+    """P(M0), P(M1), P(M2) of each row (they sum to 1)."""
+    p1 = s["p_scrubbed"].astype(float)
+    p2 = s["p_released"].astype(float)
+    ax.plot(times, s["p_magmatic"].astype(float), "s-", ms=3, color=INK, label="P(M0) purely magmatic")
+    ax.plot(times, p1, "o-", ms=3, color=SCRUB, label="P(M1) SO2 scrubbed")
+    ax.plot(times, p2, "^-", ms=3, color=BAND, label="P(M2) stored sulfur released")
+    ax.set_ylim(-0.03, 1.03)
+    ax.set_ylabel("probability", fontsize=9)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=3)
+
+
+def _budget_panel(ax, s, times):
+    """Cumulative sulfur retained below the surface, 5-95 % band."""
+    lo = s["cumulative_retained_s_t_q05"].astype(float)
+    hi = s["cumulative_retained_s_t_q95"].astype(float)
+    ax.fill_between(times, lo, hi, color=SCRUB, alpha=0.2, lw=0, label="5-95 %")
+    ax.plot(times, s["cumulative_retained_s_t_median"].astype(float), "-o", ms=3, color=SCRUB,
+            label="median")
+    ax.axhline(0.0, color="#999999", lw=0.8, ls=":")
+    ax.set_ylabel("sulfur retained\nsince first row (t S)", fontsize=9)
+    ax.legend(fontsize=7, frameon=False, loc="upper left")
 
 
 def _ratio_panel(ax, s, times, r, series, truth):
