@@ -109,10 +109,11 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
     rows = _row_results(target, res, measurements, rng, opt)
     log_z, log_z_err = res.log_z_mean_error
     bf = _shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[2]), opt["n_source_check"])
-    flags = _window_flags(res, rows, bf, opt)
+    rhat_max = _rhat(res.theta)
+    flags = _window_flags(res, rhat_max, bf, opt)
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
-            "log_z_per_run": res.log_z.tolist(), "rhat_max": _rhat(res.theta),
+            "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size}
     return WindowResult(rows, tuple(sp.free_names), res.theta, log_z, log_z_err, bf, flags, diag)
 
@@ -214,11 +215,11 @@ def _shared_source_log10_bf(target, log_z_window, rng, n):
     return float((log_z_window - log_zi.sum()) / np.log(10.0))
 
 
-def _window_flags(res, rows, bf, opt):
+def _window_flags(res, rhat_max, bf, opt):
     flags = []
     if bf < 0.0:
         flags.append("mixed_sources")
-    if _rhat(res.theta) > opt["smc_rhat_max"]:
+    if rhat_max > opt["smc_rhat_max"]:
         flags.append("rhat_high")
     if min(res.distinct) < 0.25 * res.theta.shape[1]:
         flags.append("few_distinct_particles")
