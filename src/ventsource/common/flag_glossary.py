@@ -19,8 +19,9 @@ FLAG_GLOSSARY = {
                               "with more particles.",
     "many_failed_states": "More than half of the model evaluations released no gas or failed; "
                           "the prior may be too wide.",
-    "mixed_sources": "The rows of this window are better explained each by its own source than "
-                     "by one shared source: the window may span a change of magma.",
+    "mixed_sources": "The rows of this window are better explained each by its own source, or "
+                     "by one source for each half of the window, than by one shared source: "
+                     "the window may span a change of magma.",
     "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",
     "m0_not_converged": "The purely magmatic model's MCMC chains did not reach their target.",
     "m1_rhat_high": "The scrubbing model's MCMC chains disagree (R-hat above its limit).",

@@ -581,6 +581,7 @@ def _hazard_row(r, flags):
             "scrubbed_so2_model_averaged": {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
                                             for q in ("q05", "median", "q95")},
             "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
+            "log10_bf_one_vs_split": r.get("log10_bf_one_vs_split"),
             "flags": flags, "seed": r.get("seed")}
 
 

@@ -89,14 +89,16 @@ def invert_window(args):
 
 
 _WINDOW_OPTION_NAMES = ("n_particles", "n_runs", "ess_target", "max_moves", "alpha", "pi0", "kind",
-                        "dof", "n_source_check")
+                        "dof", "n_source_check", "split_check", "split_particles", "split_runs")
 
 
 def window_row_summary(rid, time_text, label, r, res, seed):
     from ventsource.workflow.hypothesis_rows import DRAWS_KEY, compact_draws, hypothesis_fields
     row = {"id": rid, "time": time_text, "window": label, "p_magmatic": r.p_magmatic,
            "p_magmatic_error": r.p_magmatic_error, "flags": ";".join(r.flags + res.flags),
-           "seed": int(seed), "log10_bf_one_source": res.log10_bf_shared}
+           "seed": int(seed), "log10_bf_one_source": res.log10_bf_shared,
+           "log10_bf_one_vs_split": _finite_or_none(res.log10_bf_split),
+           "log10_bf_one_vs_split_error": _finite_or_none(res.log10_bf_split_error)}
     for tag, q in (("scrubbed_so2_avg", r.scrubbed_model_averaged),
                    ("scrubbed_so2_if_scrubbed", r.scrubbed_if_scrubbed),
                    ("pressure_bar", r.pressure_bar)):
@@ -108,9 +110,13 @@ def window_row_summary(rid, time_text, label, r, res, seed):
     return row
 
 
+def _finite_or_none(x):
+    return float(x) if np.isfinite(x) else None  # no split check (too few rows): empty, not NaN
+
+
 def window_summary_columns(ratio_names):
     cols = ["id", "time", "window", "p_magmatic", "p_magmatic_error", "flags", "seed",
-            "log10_bf_one_source"]
+            "log10_bf_one_source", "log10_bf_one_vs_split", "log10_bf_one_vs_split_error"]
     for tag in ("scrubbed_so2_avg", "scrubbed_so2_if_scrubbed", "pressure_bar"):
         cols += [f"{tag}_q05", f"{tag}_median", f"{tag}_q95"]
     for r in ratio_names:
