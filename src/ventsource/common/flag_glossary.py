@@ -31,6 +31,11 @@ FLAG_GLOSSARY = {
     "m0_many_failed_states": "More than half of the purely magmatic model's evaluations released "
                              "no gas.",
     "m0_no_valid_state": "No state of the purely magmatic model released gas at these conditions.",
+    "m2_not_converged": "The released-sulfur model's MCMC chains did not reach their target.",
+    "m2_bridge_not_converged": "The evidence estimate of the released-sulfur model did not converge.",
+    "m2_many_failed_states": "More than half of the released-sulfur model's evaluations released "
+                             "no gas.",
+    "m2_no_valid_state": "No state of the released-sulfur model released gas at these conditions.",
 }
 
 

@@ -16,6 +16,7 @@ import numpy as np
 
 from ventsource.ascent import observables
 from ventsource.chemistry.species import INDEX
+from ventsource.inference.release_marginal import released_gas
 
 _SO2, _CO2 = INDEX["SO2"], INDEX["CO2"]
 
@@ -65,9 +66,7 @@ def release_draws(res, target, r2, rng):
         ok = np.isfinite(gas).all(axis=1)
         g = np.where(ok[:, None], gas, 1.0)
         rr = target.release.sample(g, rng)
-        g = g.copy()
-        g[:, _SO2] *= 1.0 + rr
-        pred = observables.ratios(g, target.forward.ratio_names)
+        pred = observables.ratios(released_gas(g, rr), target.forward.ratio_names)
         pred[~ok] = np.nan
         preds.append(pred)
         rs.append(rr)

@@ -4,6 +4,10 @@
   Kass and Raftery 1995, J. Am. Stat. Assoc. 90:773, eq. 1), computed from log
   evidences; its Monte Carlo error by the delta method from the two independent
   log-evidence errors: dP/dlogZ0 = P(1 - P) = -dP/dlogZ1.
+* K hypotheses (M0, M1, M2 with a release prior): P(Mk | data) = pi_k Z_k / sum_j pi_j Z_j
+  (the same theorem); delta-method error from independent log-evidence errors sigma_j:
+  dP_k/dlogZ_j = P_k (delta_kj - P_j), so var P_k = sum_j P_k^2 (delta_kj - P_j)^2 sigma_j^2,
+  which for K = 2 is the two-model formula above.
 * P(scrubbed < epsilon | data, M1) from the posterior draws, with the MC error
   sqrt(p (1 - p) / ESS).
 * Posterior predictive check per model (Gelman, Meng and Stern 1996, Statistica Sinica
@@ -13,7 +17,8 @@
   value passes if the predictive probability of the censored region is >= alpha / 2.
   A model "reproduces" the measurement if every ratio passes.  If neither model does,
   the flag "unexplained" is raised, so that a failure of M0 alone is never read as
-  evidence of scrubbing.
+  evidence of scrubbing. With M2 a gas that M2 reproduces is not "unexplained"; one that
+  it does not is flagged "m2_not_reproducing" (release_flags).
 """
 from __future__ import annotations
 
@@ -22,8 +27,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special
 
-__all__ = ["posterior_model_probability", "probability_below", "PredictiveCheck",
-           "predictive_check", "model_flags"]
+__all__ = ["posterior_model_probability", "posterior_model_probabilities", "probability_below",
+           "PredictiveCheck", "predictive_check", "model_flags", "release_flags"]
 
 
 def posterior_model_probability(log_z0: float, log_z0_error: float, log_z1: float,
@@ -38,6 +43,28 @@ def posterior_model_probability(log_z0: float, log_z0_error: float, log_z1: floa
     p0 = float(special.expit(-lo))   # expit handles lo = +-inf exactly
     err = p0 * (1.0 - p0) * float(np.hypot(log_z0_error, log_z1_error))
     return p0, err
+
+
+def posterior_model_probabilities(log_z, log_z_error, prior_probabilities):
+    """(P(Mk | data), their MC standard errors) for K models from their log evidences.
+
+    A model with log Z = -inf (no state reproduces anything) gets P = 0 and error 0."""
+    lz = np.asarray(log_z, dtype=float)
+    err = np.asarray(log_z_error, dtype=float)
+    pi = np.asarray(prior_probabilities, dtype=float)
+    if not (lz.shape == err.shape == pi.shape and lz.ndim == 1):
+        raise ValueError("log evidences, their errors and the prior probabilities must be "
+                         "1-D arrays of one length")
+    if not (np.all(pi > 0.0) and abs(pi.sum() - 1.0) < 1e-9):
+        raise ValueError(f"prior model probabilities must be positive and sum to 1, got {pi.tolist()}")
+    if not np.any(np.isfinite(lz)):
+        return np.full(lz.size, np.nan), np.full(lz.size, np.nan)
+    a = np.log(pi) + lz
+    w = np.exp(a - np.max(a))          # exp(-inf) = 0 for a model without a valid state
+    p = w / w.sum()
+    jac = np.diag(p) - np.outer(p, p)  # dP_k / dlog Z_j
+    terms = np.where(jac == 0.0, 0.0, jac * jac * err[None, :] ** 2)
+    return p, np.sqrt(terms.sum(axis=1))
 
 
 def probability_below(draws, epsilon: float, ess: float | None = None):
@@ -113,3 +140,10 @@ def model_flags(check0: PredictiveCheck | None, check1: PredictiveCheck | None) 
     if not r0 and not r1:
         flags.append("unexplained")
     return flags
+
+
+def release_flags(flags, check2: PredictiveCheck | None) -> list:
+    """Flags once M2 has been checked: a gas M2 reproduces is not "unexplained"."""
+    if check2 is not None and check2.reproduces:
+        return [f for f in flags if f != "unexplained"]
+    return list(flags) + ["m2_not_reproducing"]

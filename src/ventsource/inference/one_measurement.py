@@ -1,10 +1,12 @@
 """One-call Bayesian inversion of a gas measurement: posterior, evidences, P(magmatic).
 
 infer(measurement, prior, forward) runs, for the full model M1 (scrubbing free) and the
-nested model M0 (scrubbed_so2 fixed to 0 via prior.with_fixed):
+nested model M0 (scrubbed_so2 fixed to 0 via prior.with_fixed), and with a release prior
+([hypotheses]) for M2 (hypotheses_emcee.py: M0 plus the released fraction r):
   emcee posterior sampling -> bridge-sampling evidence -> posterior predictive check,
-then combines them into P(M0 | data) (see model_choice.py), and packs the M1 posterior
-into an ArviZ InferenceData with units in attributes.
+then combines them into P(M0 | data) (and P(M1), P(M2); see model_choice.py), and packs
+the M1 posterior into an ArviZ InferenceData with units in attributes. engine="smc"
+(the default) goes to smc_inference.py instead.
 """
 from __future__ import annotations
 
@@ -17,7 +19,7 @@ from ventsource.inference.evidence.bridge import BridgeResult, bridge_sampling, 
 from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError
 from ventsource.inference.option_rules import OptionError, check_options
 from ventsource.inference.model_choice import (PredictiveCheck, model_flags, posterior_model_probability,
-                           predictive_check, probability_below)
+                           predictive_check, probability_below, release_flags)
 from ventsource.inference.engines.emcee_engine import LogPosterior, SampleResult, SamplerError, sample_posterior
 
 __all__ = ["infer", "InferenceResult", "ModelRun", "prior_monte_carlo_evidence", "CAUTION",
@@ -85,8 +87,8 @@ class InferenceResult:
     engine: str = "emcee"
     scrubbed_model_averaged: tuple | None = None  # (q05, median, q95), point mass at 0 of weight P(M0)
     diagnostics: dict = field(default_factory=dict)
-    hypotheses: dict | None = None     # with a release prior: P(M0), P(M1), P(M2), errors (SMC engine)
-    budget_draws: dict | None = None   # per-draw hypothesis, magmatic SO2/CO2, SO2 factor (SMC engine)
+    hypotheses: dict | None = None     # with a release prior: P(M0), P(M1), P(M2), errors
+    budget_draws: dict | None = None   # per-draw hypothesis, magmatic SO2/CO2, SO2 factor
 
     @property
     def log_evidence(self) -> dict:
@@ -284,9 +286,6 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.smc_inference import infer_smc
         return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
-    if getattr(prior, "release", None) is not None and do_choice:
-        raise InferenceError("infer: the prior's [hypotheses] table (released sulfur, M2) needs "
-                             "engine 'smc'; engine 'emcee' compares M0 and M1 only")
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
@@ -311,6 +310,9 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
             run0 = ModelRun("M0", prior0, None, None, None, -np.inf, 0.0)
             flags.append("m0_no_valid_state")
         runs["M0"] = run0
+        if getattr(prior, "release", None) is not None:  # third hypothesis: released sulfur
+            from ventsource.inference.hypotheses_emcee import run_release_model
+            runs["M2"] = run_release_model(prior, forward, lik, seed, opt)
 
     rng = np.random.default_rng(seeds[6])
     idata1 = _to_idata(run1, lik, measurement, rng, opt["n_prior_draws"])
@@ -318,10 +320,9 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     if run0 is not None and run0.sample is not None:
         idata0 = _to_idata(run0, lik, measurement, rng, opt["n_prior_draws"])
 
-    p_mag = p_err = p_below = p_below_err = None
+    p_mag = p_err = p_below = p_below_err = hyp = budget = None
     if do_choice:
-        p_mag, p_err = posterior_model_probability(run0.log_z, run0.log_z_error, run1.log_z,
-                                                   run1.log_z_error, pi0)
+        p_mag, p_err, hyp, budget = _model_probabilities(runs, prior, forward, pi0, seed, opt)
         j = tuple(prior.free_names).index(scrub)
         import arviz as az
         ess = float(az.ess((run1.sample.chain[:, :, j] < opt["epsilon"]).astype(float)))  # ESS of the indicator
@@ -329,6 +330,10 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
         if p_err is not None and p_err > opt["max_error_p"]:
             flags.append("p_magmatic_error_large")
     flags += model_flags(run0.check if run0 is not None else None, run1.check)
+    if "M2" in runs:
+        flags = release_flags(flags, runs["M2"].check)
+        if runs["M2"].sample is None:
+            flags.append("m2_no_valid_state")
     for r in runs.values():
         if r.sample is not None:
             if not r.sample.converged:
@@ -348,4 +353,21 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     return InferenceResult(measurement=measurement, p_magmatic=p_mag, p_magmatic_error=p_err,
                            p_scrubbed_below_epsilon=p_below, p_scrubbed_below_epsilon_error=p_below_err,
                            epsilon=float(opt["epsilon"]), pi0=pi0 if do_choice else None,
-                           flags=flags, idata=idata1, idata_m0=idata0, runs=runs)
+                           flags=flags, idata=idata1, idata_m0=idata0, runs=runs,
+                           hypotheses=hyp, budget_draws=budget)
+
+
+def _model_probabilities(runs, prior, forward, pi0, seed, opt):
+    """(P(M0), its error, the three-hypothesis summary or None, budget draws or None)."""
+    from ventsource.inference import hypotheses_emcee
+    run0, run1 = runs["M0"], runs["M1"]
+    if "M2" in runs:
+        hyp = hypotheses_emcee.three_hypotheses(runs, prior, pi0)
+        p_mag, p_err, probs = hyp["p"][0], hyp["error"][0], hyp["p"]
+    else:
+        hyp = None
+        p_mag, p_err = posterior_model_probability(run0.log_z, run0.log_z_error, run1.log_z,
+                                                   run1.log_z_error, pi0)
+        probs = [p_mag, 1.0 - p_mag]
+    budget = hypotheses_emcee.budget_draws(runs, probs, prior, forward, opt["scrub_name"], seed)
+    return p_mag, p_err, hyp, budget

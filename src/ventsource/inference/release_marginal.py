@@ -19,6 +19,13 @@ _SO2 = INDEX["SO2"]
 V_CEILING = np.log(1e3)   # r up to ~1000: a prior reaching further is cut here
 
 
+def released_gas(gas, released_fraction):
+    """Gas with its SO2 multiplied by 1 + r (r per row); every other species unchanged."""
+    g = np.array(gas, dtype=float, copy=True)
+    g[:, _SO2] *= 1.0 + np.asarray(released_fraction, dtype=float)
+    return g
+
+
 def release_change_vector(gas):
     """d(gas)/dr per unit released fraction r: SO2 only."""
     dx = np.zeros_like(gas)

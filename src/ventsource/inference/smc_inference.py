@@ -12,7 +12,8 @@ import numpy as np
 
 from ventsource.inference.engines.emcee_engine import SampleResult
 from ventsource.inference.engines.smc_engine import SMCError
-from ventsource.inference.model_choice import model_flags, predictive_check, probability_below
+from ventsource.inference.model_choice import (model_flags, predictive_check, probability_below,
+                                               release_flags)
 from ventsource.inference.one_measurement import InferenceError, InferenceResult, ModelRun, _to_idata
 from ventsource.inference.hypotheses_smc import (budget_draws, log_evidences, log_priors,
                                                  probabilities_with_errors, release_draws,
@@ -121,9 +122,7 @@ def _release_check(three, lik, flags, seed, alpha):
     check2 = predictive_check(lik, pred2[np.isfinite(pred2).all(axis=1)],
                               np.random.default_rng([int(seed), 3]), alpha)
     three["summary"]["m2_reproduces"] = bool(check2.reproduces)
-    if check2.reproduces:
-        return [f for f in flags if f != "unexplained"]
-    return flags + ["m2_not_reproducing"]
+    return release_flags(flags, check2)
 
 
 def _budget(res, target, three, seed):
