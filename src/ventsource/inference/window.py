@@ -15,6 +15,10 @@ integral done by quadrature: one batch of forward solves on a grid of pressures
 every row; the gas composition is interpolated linearly in ln(mole fraction)
 between the solved pressures onto a finer quadrature grid. The cost per draw of
 psi does not grow with the number of rows beyond the cheap per-row likelihoods.
+
+The prior file's [window] table may make pressure shared (per_row without
+pressure_bar): P is then part of psi, sampled with the magma's parameters, and one
+forward solve per draw serves every row (a one-point grid, no quadrature).
 """
 from __future__ import annotations
 
@@ -25,7 +29,6 @@ from ventsource.ascent import observables
 from ventsource.inference.release_marginal import ReleaseMarginal
 from ventsource.inference.so2_marginal import ScrubbingMarginal, log_ratios_of
 
-PER_ROW = ("pressure_bar", "scrubbed_so2")
 N_SOLVE = 24   # forward solves per draw of psi
 REFINE = 3     # quadrature points per solved interval
 
@@ -69,18 +72,29 @@ def _log_sum_weighted(log_f, log_w):
 class WindowTarget:
     """log L(psi) of a window and the per-row log Z0_i(psi), log Z1_i(psi)."""
 
-    def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE):
-        for name in PER_ROW:
+    def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE, per_row=None):
+        self.per_row = tuple(prior.window_per_row if per_row is None else per_row)  # [window] per_row
+        if "scrubbed_so2" not in self.per_row or not set(self.per_row) <= {"pressure_bar", "scrubbed_so2"}:
+            raise ValueError(f"window model: per_row {self.per_row} must hold scrubbed_so2 and "
+                             "at most pressure_bar besides")
+        for name in self.per_row:
             if name not in prior.free_names:
                 raise ValueError(f"window model: {name} must be a free parameter of the prior")
         self.prior = prior
-        self.shared_prior = prior.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower)
-                                             ).with_fixed("scrubbed_so2", 0.0)
+        self.pressure_per_row = "pressure_bar" in self.per_row
+        shared = prior.with_fixed("scrubbed_so2", 0.0)
+        if self.pressure_per_row:  # a placeholder: gas_on_grid sets the grid's pressures
+            shared = shared.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower))
+        self.shared_prior = shared
         self.forward = forward
         self.pi0 = float(pi0)
-        self.n_solve, self.refine = n_solve, refine
-        self.p_solve, self.p_quad, self.log_w = pressure_grid(prior.distributions["pressure_bar"],
-                                                              n_solve, refine)
+        if self.pressure_per_row:
+            self.n_solve, self.refine = n_solve, refine
+            self.p_solve, self.p_quad, self.log_w = pressure_grid(prior.distributions["pressure_bar"],
+                                                                  n_solve, refine)
+        else:  # shared pressure: one solve per draw serves every row, a one-point "grid"
+            self.n_solve, self.refine = 1, 1
+            self.p_solve, self.p_quad, self.log_w = np.empty(0), np.empty(0), np.zeros(1)
         dist_s = prior.distributions["scrubbed_so2"]
         self.marginals = [ScrubbingMarginal(lik, forward.ratio_names, forward.product, dist_s)
                           for lik in likelihoods]
@@ -103,6 +117,8 @@ class WindowTarget:
         """(gas (n, K, species) on the quadrature grid, h2s_return (n,) or 1.0)."""
         full = self.shared_prior.full(psi)
         n = full.shape[0]
+        if not self.pressure_per_row:
+            return self._gas_at_shared_pressure(full)
         rep = np.repeat(full, self.n_solve, axis=0)
         rep[:, self._j_p] = np.tile(self.p_solve, n)
         st = self.forward.state(rep, saturation=self.forward.style == "open")
@@ -110,6 +126,22 @@ class WindowTarget:
         gas = interpolate_gas(gas.reshape(n, self.n_solve, -1), self.n_solve, self.refine)
         h2s = full[:, self._j_h] if self._j_h is not None else 1.0
         return gas, h2s
+
+    def _gas_at_shared_pressure(self, full):
+        """(gas (n, 1, species), h2s_return): the pressure is a shared parameter in full."""
+        st = self.forward.state(full, saturation=self.forward.style == "open")
+        gas = np.where((st["status"] == 0)[:, None], st["gas"], np.nan)
+        h2s = full[:, self._j_h] if self._j_h is not None else 1.0
+        return gas[:, None, :], h2s
+
+    def row_pressures(self, psi, k, rng):
+        """Pressure (bar) of one draw per shared draw, k the grid index drawn for each."""
+        if not self.pressure_per_row:
+            return self.shared_prior.full(psi)[:, self._j_p]
+        n = len(k)  # a point of the quadrature cell around p_quad[k], uniform in ln P
+        step = np.log(self.p_quad[1] / self.p_quad[0])
+        return np.clip(self.p_quad[k] * np.exp(step * (rng.random(n) - 0.5)),
+                       self.p_quad[0], self.p_quad[-1])
 
     @property
     def n_hypotheses(self):

@@ -1,7 +1,8 @@
 """Inversion of a window of measurements that share one magma source.
 
 The shared parameters are sampled by the tempered SMC engine; per row, pressure and
-the scrubbed fraction are integrated out (window.py). Per row the answer is
+the scrubbed fraction are integrated out (window.py), or only the scrubbed fraction
+when the prior's [window] table makes pressure shared. Per row the answer is
 P(M0 | every row of the window), the mean over the shared posterior of the row's
 responsibility pi0 Z0_i / (pi0 Z0_i + (1 - pi0) Z1_i), its Monte Carlo error from
 the spread over independent runs, and draws of (model, pressure, scrubbed fraction)
@@ -120,7 +121,8 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
-            "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size}
+            "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
+            "per_row": list(target.per_row)}
     return WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
                         flags, diag, split_bf, split_err)
 
@@ -181,12 +183,12 @@ def _row_results(target, res, measurements, rng, opt):
     for i, meas in enumerate(measurements):
         p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)
                            for k in range(resp.shape[2])], axis=1)            # (R, H)
-        draws = _row_draws(target, i, gas, h2s, [ll[i] for ll in lls], resp[:, i], rng)
+        draws = _row_draws(target, i, gas, h2s, [ll[i] for ll in lls], resp[:, i], rng, psi)
         out.append(_summarise_row(meas, target, i, p_runs, draws, rng, opt))
     return out
 
 
-def _row_draws(target, i, gas, h2s, lls, resp, rng):
+def _row_draws(target, i, gas, h2s, lls, resp, rng, psi):
     """One (model, pressure, s or r, predicted ratios) draw per shared draw."""
     n, K, _ = gas.shape
     resp = np.nan_to_num(resp)
@@ -204,9 +206,7 @@ def _row_draws(target, i, gas, h2s, lls, resp, rng):
     g = gas[rows, k]
     ok = np.isfinite(g).all(axis=1)
     g = np.where(ok[:, None], g, 1.0)
-    step = np.log(target.p_quad[1] / target.p_quad[0])
-    pressure = np.clip(target.p_quad[k] * np.exp(step * (rng.random(n) - 0.5)),
-                       target.p_quad[0], target.p_quad[-1])
+    pressure = target.row_pressures(psi, k, rng)  # the shared draw's own when pressure is shared
     h = h2s[rows] if np.ndim(h2s) else h2s
     s = np.where(model == 1, target.marginals[i].sample(g, rng, h), 0.0)
     gas_out = scrub(g, s, target.forward.product, 0.0, h)

@@ -47,7 +47,8 @@ LOCK_NAME = ".lock"
 # run.json entries that change a number; --resume refuses a change in any (label for the message)
 RECORDED_SETTINGS = {"data_sha256": "measurement file", "prior_sha256": "prior file", "seed": "--seed",
                      "sigma": "--sigma (default relative 1-sigma)", "options": "inference options",
-                     "package_version": "ventsource version", "window": "--window"}
+                     "package_version": "ventsource version", "window": "--window",
+                     "window_per_row": "per-row set of the window model (the prior's [window] per_row)"}
 DASK_CONNECT_TIMEOUT_S = 20
 
 
@@ -293,7 +294,7 @@ def _earlier_run(out_dir, settings, resume):
         return old  # an earlier start that finished no row: nothing to lose, start again
     now = json.loads(json.dumps(settings, default=str))
     for key, label in RECORDED_SETTINGS.items():
-        if old.get(key) != now[key]:
+        if _old_setting(old, key, now[key]) != now[key]:
             if key == "options":
                 diff = sorted(k for k in set(old.get(key) or {}) | set(now[key])
                               if (old.get(key) or {}).get(k) != now[key].get(k))
@@ -302,6 +303,14 @@ def _earlier_run(out_dir, settings, resume):
                              f"({_short(old.get(key))} there, {_short(now[key])} now); "
                              "use the same settings or choose another --out")
     return old
+
+
+def _old_setting(old, key, now):
+    """An earlier run's setting; a window run from before [window] tables used the default set."""
+    if key == "window_per_row" and key not in old:
+        from ventsource.inference.priors.window_table import PER_ROW_DEFAULT
+        return now if now in (None, list(PER_ROW_DEFAULT)) else None
+    return old.get(key)
 
 
 def _short(value):
@@ -368,6 +377,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
               "budget_max_gap_days": budget_max_gap_days}
     groups = assign_windows(series, window)  # checked before anything is written
+    settings["window_per_row"] = None if groups is None else list(spec.window_per_row)
     _check_output_folder(out_dir)
     _refuse_if_in_use(out_dir)
     _earlier_run(out_dir, settings, resume)
@@ -477,6 +487,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     _rewrite(summary_path, cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
+                             window_per_row=settings.get("window_per_row"),
                              synthetic_data=extras.get("synthetic_data", False))
     hazard = extend_hazard(hazard, rows, series, gap_days)
     _write_json(hazard_path, hazard)
@@ -539,8 +550,10 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
 
 
 def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, sigma=None,
-                    out_dir=None, synthetic_data=False):
+                    out_dir=None, synthetic_data=False, window_per_row=None):
     """Plain dict for elicitation panels: per-row probability with provenance.
+
+    window_per_row: the window model's per-row parameters (None: rows inverted one by one).
 
     Paths are relative to the run folder; numbers are rounded by hazard_format's rule."""
     from ventsource import __version__
@@ -565,6 +578,7 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
         "inference_options": options,
         "inference_options_in_effect": {k: v for k, v in effective.items() if not callable(v)},
         "default_relative_sigma": sigma if sigma is not None else getattr(series, "default_sigma", None),
+        "window_per_row": window_per_row,
         "note": model_note or "",
         "rounding": ROUNDING_RULE,
         "flag_glossary": glossary_for(flag_lists),

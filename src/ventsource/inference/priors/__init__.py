@@ -19,8 +19,8 @@ and column instead of a key, a missing file says so.
 
 Modules: schema (what a file may hold), fields (typed field readers),
 parameter_table (one parameter's distribution and physical range), parse
-(parse_prior, one function per table), load (load_prior_file), spec
-(PriorSpec), distributions.
+(parse_prior, one function per table), hypotheses ([hypotheses]), window_table
+([window]), load (load_prior_file), spec (PriorSpec), distributions.
 
 May import: ventsource.common.
 """

@@ -1,7 +1,7 @@
 """parse_prior: validate a prior read into a dict, one function per table.
 
 The tables are read in a fixed order (top level, metadata, models,
-parameters, melt, likelihood, magmatic) so the first problem reported for a
+parameters, melt, likelihood, magmatic, hypotheses, window) so the first problem reported for a
 file does not depend on how it was split: models come before parameters
 because some parameters depend on the model choices.
 """
@@ -24,6 +24,7 @@ from ventsource.inference.priors.schema import (
 )
 from ventsource.inference.priors.hypotheses import parse_hypotheses
 from ventsource.inference.priors.spec import PriorSpec
+from ventsource.inference.priors.window_table import parse_window
 
 
 def parse_prior(data: Mapping, file: str = "<prior>") -> PriorSpec:
@@ -39,6 +40,8 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> PriorSpec:
     melt, melt_source = _parse_melt(file, data)
     likelihood = _parse_likelihood(file, data)
     p_mag, eps, mag_source = _parse_magmatic(file, data)
+    release = parse_hypotheses(file, data)
+    window = parse_window(file, data, dists)
     return PriorSpec(
         path=file,
         metadata=metadata,
@@ -52,7 +55,8 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> PriorSpec:
         p_magmatic=p_mag,
         epsilon=eps,
         magmatic_source=mag_source,
-        release=parse_hypotheses(file, data),
+        release=release,
+        window=window,
     )
 
 

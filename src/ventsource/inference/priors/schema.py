@@ -94,5 +94,6 @@ DEFAULT_DOF = 4.0  # heavy but finite-variance tails (common practice, no source
 LIKELIHOOD_KINDS = ("normal", "student_t")
 MAX_RELATIVE_SIGMA = 5.0
 
-TOP_KEYS = ("schema_version", "metadata", "parameters", "melt", "models", "likelihood", "magmatic", "hypotheses")
+TOP_KEYS = ("schema_version", "metadata", "parameters", "melt", "models", "likelihood", "magmatic", "hypotheses",
+            "window")
 METADATA_KEYS = {"name": True, "description": True, "citation": True, "fictional": False, "notes": False}

@@ -11,6 +11,7 @@ from ventsource.inference.priors.distributions import Distribution, Fixed, Unifo
 from ventsource.inference.priors.fields import PriorFileError
 from ventsource.inference.priors.parameter_table import check_physical_range
 from ventsource.inference.priors.schema import SCHEMA_VERSION
+from ventsource.inference.priors.window_table import PER_ROW_DEFAULT
 
 
 class PriorSpec:
@@ -24,7 +25,7 @@ class PriorSpec:
 
     def __init__(self, *, path, metadata, distributions, sources, descriptions, melt_oxides_wt,
                  melt_source, models, likelihood, p_magmatic, epsilon, magmatic_source=None,
-                 release=None):
+                 release=None, window=None):
         self.path = path
         self.metadata = dict(metadata)
         self.name: str = metadata["name"]
@@ -42,6 +43,7 @@ class PriorSpec:
         self.epsilon: float = float(epsilon)
         self.magmatic_source = magmatic_source
         self.release = release  # ReleasePrior of the third hypothesis (M2), or None: two hypotheses
+        self.window = window    # WindowTable of the file's [window], or None: the default per-row set
         self.parameter_names: tuple[str, ...] = tuple(self.distributions)
         self.free_names: tuple[str, ...] = tuple(
             n for n, d in self.distributions.items() if not isinstance(d, Fixed))
@@ -57,6 +59,11 @@ class PriorSpec:
         self._uniform_log_density = -float(sum(math.log(self._free_dists[j].upper - self._free_dists[j].lower)
                                                for j in uni))
         self._other_cols = [j for j in range(len(self._free_dists)) if j not in uni]
+
+    @property
+    def window_per_row(self) -> tuple[str, ...]:
+        """Parameters that vary from row to row in the window model ([window] per_row)."""
+        return PER_ROW_DEFAULT if self.window is None else self.window.per_row
 
     # ---- shapes
     @property
@@ -144,7 +151,7 @@ class PriorSpec:
             descriptions=self.descriptions, melt_oxides_wt=self.melt_oxides_wt,
             melt_source=self.melt_source, models=self.models, likelihood=self.likelihood,
             p_magmatic=self.p_magmatic, epsilon=self.epsilon, magmatic_source=self.magmatic_source,
-            release=self.release)
+            release=self.release, window=self.window)
 
     # ---- provenance
     def to_dict(self) -> dict:
@@ -166,6 +173,8 @@ class PriorSpec:
         if self.magmatic_source is not None:
             magmatic["source"] = self.magmatic_source
         extra = {"hypotheses": self.release.to_dict()} if self.release is not None else {}
+        if self.window is not None:
+            extra["window"] = self.window.to_dict()
         return copy.deepcopy({**extra,
             "path": str(self.path),
             "schema_version": SCHEMA_VERSION,
