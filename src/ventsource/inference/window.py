@@ -28,6 +28,7 @@ from scipy import special
 from ventsource.ascent import observables
 from ventsource.inference.release_marginal import ReleaseMarginal
 from ventsource.inference.so2_marginal import ScrubbingMarginal, log_ratios_of
+from ventsource.inference.window_kernels import RowPack, qualifies
 
 N_SOLVE = 24   # forward solves per draw of psi
 REFINE = 3     # quadrature points per solved interval
@@ -105,6 +106,10 @@ class WindowTarget:
         self.log_pis = (np.array([np.log(self.pi0), np.log1p(-self.pi0)]) if release is None
                         else np.log(release.probabilities(self.pi0)))
         self._weights = observables.weight_matrices(forward.ratio_names)
+        sets = [[m] if self.releases is None else [m, self.releases[i]] for i, m in enumerate(self.marginals)]
+        self._compiled_rows = [i for i, ms in enumerate(sets) if all(qualifies(m) for m in ms)]
+        self._numpy_rows = [i for i in range(len(sets)) if i not in self._compiled_rows]
+        self._pack = RowPack([sets[i] for i in self._compiled_rows]) if self._compiled_rows else None
         names = tuple(self.shared_prior.parameter_names)
         self._j_p = names.index("pressure_bar")
         self._j_h = names.index("h2s_return") if "h2s_return" in names else None
@@ -147,17 +152,22 @@ class WindowTarget:
     def n_hypotheses(self):
         return self.log_pis.size
 
-    def row_log_likelihoods(self, gas, h2s):
-        """(ll0, ll1[, ll2]), each (rows, n, K): per row and grid point, NaN gas -> -inf."""
+    def _flat(self, gas, h2s):
+        """Grid gas flattened to (n K, species), its bad points, h2s_return and ln ratios."""
         n, K, s = gas.shape
         flat = gas.reshape(n * K, s)
         bad = ~np.isfinite(flat).all(axis=1)
         flat = np.where(bad[:, None], 1.0, flat)
         h = np.repeat(h2s, K) if np.ndim(h2s) else h2s
-        log_ratios = log_ratios_of(flat, *self._weights)  # shared by every row
+        return flat, bad, h, log_ratios_of(flat, *self._weights)  # ratios shared by every row
+
+    def row_log_likelihoods(self, gas, h2s, rows=None):
+        """(ll0, ll1[, ll2]), each (rows, n, K): per row and grid point, NaN gas -> -inf."""
+        n, K, _ = gas.shape
+        flat, bad, h, log_ratios = self._flat(gas, h2s)
         out = [[] for _ in range(self.n_hypotheses)]
-        for i, marg in enumerate(self.marginals):
-            lls = list(marg.log_likelihoods(flat, h, log_ratios=log_ratios))
+        for i in range(self.n_rows) if rows is None else rows:
+            lls = list(self.marginals[i].log_likelihoods(flat, h, log_ratios=log_ratios))
             if self.releases is not None:
                 lls.append(self.releases[i].log_likelihoods(flat, h, log_ratios=log_ratios)[1])
             for k, ll in enumerate(lls):
@@ -166,9 +176,21 @@ class WindowTarget:
         return tuple(np.stack(o) for o in out)
 
     def row_evidences(self, psi):
-        """(log Z0, log Z1[, log Z2]), each (n, rows): pressure integrated out for each row."""
+        """(log Z0, log Z1[, log Z2]), each (n, rows): pressure integrated out for each row.
+
+        Rows on the marginal's exact-normal fast path go through the compiled loop
+        (window_kernels.py); any other row through NumPy."""
         gas, h2s = self.gas_on_grid(psi)
-        return tuple(_log_sum_weighted(ll, self.log_w).T for ll in self.row_log_likelihoods(gas, h2s))
+        n = gas.shape[0]
+        out = np.empty((self.n_hypotheses, n, self.n_rows))
+        if self._pack is not None:
+            _, bad, _, log_ratios = self._flat(gas, h2s)
+            out[:, :, self._compiled_rows] = self._pack.evidences(log_ratios, bad, self.log_w)
+        if self._numpy_rows:
+            lls = self.row_log_likelihoods(gas, h2s, rows=self._numpy_rows)
+            for k, ll in enumerate(lls):
+                out[k][:, self._numpy_rows] = _log_sum_weighted(ll, self.log_w).T
+        return tuple(out)
 
     def row_mixture(self, *lz):
         mix = np.logaddexp(self.log_pis[0] + lz[0], self.log_pis[1] + lz[1])
