@@ -46,3 +46,16 @@ def test_sulfur_panels_appear_only_with_their_columns(tmp_path):
     without = series_figure(_summary(tmp_path, False), prior_name="p")
     assert "P(M2)" not in _texts(without) and "sulfur retained" not in _texts(without)
     assert len(with_s.axes) == len(without.axes) + 2
+
+
+def test_prior_p_magmatic_line_takes_the_release_share_off(tmp_path):
+    """With [hypotheses] p_released = 0.2 and p_magmatic = 0.5 the prior P(M0) is
+    0.8 x 0.5 = 0.4 (the split stated in docs/prior-files.md), not 0.5."""
+    from ventsource.inference.priors import load_prior_file
+    from ventsource.workflow.demo import DEMO_FAST_PRIOR
+    from ventsource.workflow.figures import prior_p_magmatic
+    from ventsource.workflow.sulfur_demo import write_release_prior
+    plain = load_prior_file(DEMO_FAST_PRIOR)
+    release = load_prior_file(write_release_prior(tmp_path / "rel.toml"))
+    assert prior_p_magmatic(plain) == plain.p_magmatic == 0.5
+    assert abs(prior_p_magmatic(release) - 0.4) < 1e-12

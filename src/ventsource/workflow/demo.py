@@ -86,7 +86,7 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     """Make the synthetic series, invert it by windows and row by row, write tables and
     figures; returns paths. The windows run is the main result (out_dir); the row-by-row
     run (out_dir/row_by_row) is there to compare."""
-    from ventsource.workflow.figures import plot_rows_vs_windows, run_figures
+    from ventsource.workflow.figures import plot_rows_vs_windows, prior_p_magmatic, run_figures
     from ventsource.workflow.measurements import read_measurements
     from ventsource.inference.priors import load_prior_file
     from ventsource.workflow.series import run_series
@@ -111,7 +111,7 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     figs.append(plot_rows_vs_windows(os.path.join(by_row, "summary.csv"),
                                      os.path.join(out_dir, "summary.csv"),
                                      os.path.join(out_dir, "figures", "rows_vs_windows.png"),
-                                     truth_csv=truth, title=title, p_magmatic_prior=spec.p_magmatic))
+                                     truth_csv=truth, title=title, p_magmatic_prior=prior_p_magmatic(spec)))
     from ventsource.workflow.table_notes import write_table_readme
     write_table_readme(out_dir, {"measurements.csv": "synthetic measurements at a fictional volcano "
                                  "(forward model plus noise)", "truth.csv": "the true parameters and "

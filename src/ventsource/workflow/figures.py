@@ -331,13 +331,19 @@ def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None,
                             title=spec.name)
 
 
+def prior_p_magmatic(spec):
+    """Prior P(M0) of the prior file: p_magmatic, less the release share with [hypotheses]."""
+    release = getattr(spec, "release", None)
+    return spec.p_magmatic if release is None else float(release.probabilities(spec.p_magmatic)[0])
+
+
 def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", n_prior=2000):
     """All figures of a finished run into out_dir/figures; returns their paths."""
     fig_dir = os.path.join(out_dir, "figures")
     os.makedirs(fig_dir, exist_ok=True)
     paths = [plot_time_series(os.path.join(out_dir, "summary.csv"), os.path.join(fig_dir, "series.png"),
                               series=series, truth_csv=truth_csv, title=title, prior_name=spec.name,
-                              p_magmatic_prior=spec.p_magmatic)]
+                              p_magmatic_prior=prior_p_magmatic(spec))]
     if len(series.ratio_names) >= 2 and n_prior > 0:
         paths.append(plot_ratio_plane_with_data(spec, series, os.path.join(fig_dir, "ratio_plane.png"),
                                                 n=n_prior))
