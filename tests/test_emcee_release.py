@@ -29,7 +29,8 @@ from ventsource.inference.priors import load_prior_file
 from ventsource.workflow.demo import DEMO_FAST_PRIOR
 from ventsource.workflow.hypothesis_rows import HYPOTHESIS_COLUMNS
 from ventsource.workflow.sulfur_budget import BUDGET_COLUMNS
-from ventsource.workflow.sulfur_demo import SOURCE, make_sulfur_series, write_release_prior
+from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
+from ventsource.workflow.sulfur_demo import SOURCE, make_sulfur_series
 
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 TINY = dict(engine="emcee", n_walkers=16, target_ess=20, max_steps=200, n_proposal=2000,
@@ -38,7 +39,7 @@ TINY = dict(engine="emcee", n_walkers=16, target_ess=20, max_steps=200, n_propos
 
 @pytest.fixture(scope="module")
 def release_model(tmp_path_factory):
-    spec = load_prior_file(write_release_prior(tmp_path_factory.mktemp("p") / "r.toml"))
+    spec = load_prior_file(DEMO_RELEASE_PRIOR)
     return spec, ForwardModel(spec, NAMES)
 
 
@@ -132,7 +133,7 @@ def test_gas_none_of_the_three_explains_is_flagged(release_model):
 
 # ---- (3) the command line writes the three probabilities
 def test_cli_emcee_run_with_release_prior_writes_three_probabilities(tmp_path, capsys):
-    prior = write_release_prior(tmp_path / "r.toml")
+    prior = str(DEMO_RELEASE_PRIOR)
     data = make_sulfur_series(tmp_path / "d", n_rows=2)   # a quiet row and a released row
     out = tmp_path / "out"
     code = main(["run", str(data), "--prior", str(prior), "--out", str(out), "--engine", "emcee",

@@ -3,8 +3,8 @@
 Check values: molar masses S 32.06, SO2 64.07, CO2 44.01 g/mol (IUPAC standard atomic
 weights; common practice, no source); the trapezoid rule against numpy.trapezoid (a
 general-purpose reference library). Synthetic series are made by the package's own
-forward model (workflow.sulfur_demo: fictional Mount Kerrow, labelled synthetic) with
-15 % ratio and 20 % flux errors; acceptance levels are the issue's.
+forward model (workflow.sulfur_demo and workflow.demo: fictional Mount Kerrow, labelled
+synthetic) with 15 % ratio and 20 % flux errors; acceptance levels are the issue's.
 """
 import json
 import os
@@ -21,10 +21,11 @@ from ventsource.workflow.measurements import read_measurements
 from ventsource.workflow.series import run_series
 from ventsource.workflow.sulfur_budget import (BUDGET_COLUMNS, S_PER_SO2, SO2_PER_CO2_MASS, cumulative,
                                                row_rates)
-from ventsource.workflow.sulfur_demo import make_sulfur_series, write_release_prior
+from ventsource.workflow.sulfur_demo import make_sulfur_series
 
 ROOT = Path(__file__).resolve().parents[1]
 FAST_PRIOR = ROOT / "priors" / "demo_mount_kerrow_fast.toml"
+RELEASE_PRIOR = ROOT / "priors" / "demo_mount_kerrow_fast_release.toml"
 HEADER = "id,time,SO2/CO2,H2S/SO2,H2O/CO2"
 
 
@@ -115,7 +116,7 @@ def test_mass_balance_no_scrubbing_no_release_retains_nothing():
 def test_prior_without_hypotheses_has_no_release_and_with_it_sums_to_one(tmp_path):
     plain = load_prior_file(FAST_PRIOR)
     assert plain.release is None
-    spec = load_prior_file(write_release_prior(tmp_path / "r.toml"))
+    spec = load_prior_file(RELEASE_PRIOR)
     pis = spec.release.probabilities(spec.p_magmatic)
     assert sum(pis) == pytest.approx(1.0, abs=1e-15)
     assert pis[2] == pytest.approx(0.2) and pis[0] == pytest.approx(0.4)
@@ -153,7 +154,7 @@ def test_flux_columns_do_not_change_probabilities_and_add_the_budget(tmp_path):
 
 
 def test_three_probabilities_sum_to_one_with_errors(tmp_path):
-    prior = write_release_prior(tmp_path / "r.toml")
+    prior = RELEASE_PRIOR
     data = make_sulfur_series(tmp_path / "d", n_rows=4)
     rows = run_series(read_measurements(data), str(prior), str(tmp_path / "o"), seed=1,
                       options=dict(n_particles=60, n_runs=2, max_moves=8))
@@ -170,7 +171,7 @@ def test_three_probabilities_sum_to_one_with_errors(tmp_path):
 @pytest.fixture(scope="module")
 def kerrow_windows(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("sulfur")
-    prior = write_release_prior(tmp / "r.toml")
+    prior = RELEASE_PRIOR
     data = make_sulfur_series(tmp / "d", n_rows=36)
     series = read_measurements(data)
     # one window for the whole series: the quiet rows pin the shared magma source, without

@@ -3,6 +3,7 @@ run carries them (columns written by ventsource.workflow.hypothesis_rows), and n
 The numbers below are arbitrary placeholders for the plotting check only."""
 import matplotlib
 import pandas as pd
+import pytest
 
 matplotlib.use("Agg")
 
@@ -48,14 +49,26 @@ def test_sulfur_panels_appear_only_with_their_columns(tmp_path):
     assert len(with_s.axes) == len(without.axes) + 2
 
 
-def test_prior_p_magmatic_line_takes_the_release_share_off(tmp_path):
-    """With [hypotheses] p_released = 0.2 and p_magmatic = 0.5 the prior P(M0) is
-    0.8 x 0.5 = 0.4 (the split stated in docs/prior-files.md), not 0.5."""
+def test_budget_panel_shows_a_synthetic_truth_and_window_labels(tmp_path):
+    summary = _summary(tmp_path, True)
+    s = pd.read_csv(summary)
+    s["window"] = ["period 1", "period 1", "period 2"]
+    s.to_csv(summary, index=False)
+    truth = tmp_path / "truth.csv"
+    pd.DataFrame({"time": s["time"], "cumulative_retained_s_t": [0, 70, 45]}).to_csv(truth, index=False)
+    fig = series_figure(summary, truth_csv=str(truth), prior_name="p")
+    legend = [t.get_text() for t in fig.axes[-1].get_legend().get_texts()]
+    assert "synthetic truth" in legend
+    tops = [t.get_text() for t in fig.axes[0].texts]
+    assert tops.count("period 1") == 1 and tops.count("period 2") == 1
+
+
+def test_rows_vs_windows_gets_a_released_panel_and_the_prior_of_m0(tmp_path):
     from ventsource.inference.priors import load_prior_file
-    from ventsource.workflow.demo import DEMO_FAST_PRIOR
-    from ventsource.workflow.figures import prior_p_magmatic
-    from ventsource.workflow.sulfur_demo import write_release_prior
-    plain = load_prior_file(DEMO_FAST_PRIOR)
-    release = load_prior_file(write_release_prior(tmp_path / "rel.toml"))
-    assert prior_p_magmatic(plain) == plain.p_magmatic == 0.5
-    assert abs(prior_p_magmatic(release) - 0.4) < 1e-12
+    from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
+    from ventsource.workflow.figures import prior_p_magmatic, rows_vs_windows_figure
+    summary = _summary(tmp_path, True)
+    fig = rows_vs_windows_figure(summary, summary)
+    assert len(fig.axes) == 3 and "P(M2)" in fig.axes[1].get_ylabel()
+    # p_magmatic 0.5 shared with p_released 0.2: (1 - 0.2) x 0.5 (the prior file's numbers)
+    assert prior_p_magmatic(load_prior_file(DEMO_RELEASE_PRIOR)) == pytest.approx(0.4)

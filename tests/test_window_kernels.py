@@ -15,7 +15,7 @@ from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import load_prior_file
 from ventsource.inference.window import WindowTarget, _log_sum_weighted
 from ventsource.inference.window_kernels import log_diff_ndtr, log_ndtr
-from ventsource.workflow.sulfur_demo import write_release_prior
+from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
 
 ROOT = Path(__file__).resolve().parents[1]
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
@@ -65,7 +65,11 @@ def window_rows():
 def test_compiled_row_evidences_match_the_numpy_path(window_rows, tmp_path, release):
     spec, forward, liks = window_rows
     if release:  # loguniform release prior: the tabulated Gauss-Legendre average
-        spec = load_prior_file(write_release_prior(tmp_path / "rel.toml", ROOT / "priors" / "arc_basalt.toml"))
+        table = DEMO_RELEASE_PRIOR.read_text(encoding="utf-8").split("\n[hypotheses]\n", 1)[1]
+        path = tmp_path / "rel.toml"
+        path.write_text((ROOT / "priors" / "arc_basalt.toml").read_text(encoding="utf-8")
+                        + "\n[hypotheses]\n" + table, encoding="utf-8")
+        spec = load_prior_file(path)
     target = WindowTarget(spec, forward, liks, 0.5)
     assert len(target._compiled_rows) == 5
     psi = target.shared_prior.sample(np.random.default_rng(1), 300)

@@ -101,7 +101,7 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
         if has_m2:
             _hypotheses_panel(tail[0], s, times)
         if has_budget:
-            _budget_panel(tail[-1], s, times)
+            _budget_panel(tail[-1], s, times, truth)
     legend = {}
     for ax, r in zip(axes, ratios):
         _ratio_panel(ax, s, times, r, series, truth)
@@ -114,6 +114,7 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
         _pressure_panel(axes[-3], s, times, truth)
     _p_magmatic_panel(axes[-2], s, times, p_magmatic_prior)
     _scrubbed_panel(axes[-1], s, times, truth)
+    _window_marks(fig.axes, s, times)
     bottom.set_xlabel("time (UTC)")
     import matplotlib.dates as mdates
     locator = mdates.AutoDateLocator(maxticks=8)
@@ -127,6 +128,27 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
     return fig
 
 
+# legends drawn over data: a pale box keeps them legible
+_LEGEND_BOX = dict(frameon=True, framealpha=0.8, facecolor="white", edgecolor="none")
+
+
+def _window_marks(axes, s, times):
+    """Windows of a window run: dotted lines between them, their labels along the top."""
+    if "window" not in s or s["window"].isna().all():
+        return
+    labels = s["window"].astype("string").fillna("").tolist()
+    starts = [i for i in range(len(labels)) if i == 0 or labels[i] != labels[i - 1]]
+    for i in starts[1:]:
+        edge = times.iloc[i - 1] + (times.iloc[i] - times.iloc[i - 1]) / 2
+        for ax in axes:
+            ax.axvline(edge, color="#999999", lw=0.8, ls=(0, (1, 2)), zorder=0)
+    for k, i in enumerate(starts):
+        j = (starts[k + 1] if k + 1 < len(starts) else len(labels)) - 1
+        mid = times.iloc[i] + (times.iloc[j] - times.iloc[i]) / 2
+        axes[0].annotate(labels[i], (mid, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
+                         textcoords="offset points", ha="center", va="bottom", fontsize=7, color="#555555")
+
+
 def _hypotheses_panel(ax, s, times):
     """P(M0), P(M1), P(M2) of each row (they sum to 1)."""
     p1 = s["p_scrubbed"].astype(float)
@@ -136,19 +158,22 @@ def _hypotheses_panel(ax, s, times):
     ax.plot(times, p2, "^-", ms=3, color=BAND, label="P(M2) stored sulfur released")
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("probability", fontsize=9)
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=3)
+    ax.legend(fontsize=7, loc="center left", ncol=3, **_LEGEND_BOX)
 
 
-def _budget_panel(ax, s, times):
-    """Cumulative sulfur retained below the surface, 5-95 % band."""
+def _budget_panel(ax, s, times, truth=None):
+    """Cumulative sulfur retained below the surface, 5-95 % band (and a synthetic truth)."""
     lo = s["cumulative_retained_s_t_q05"].astype(float)
     hi = s["cumulative_retained_s_t_q95"].astype(float)
     ax.fill_between(times, lo, hi, color=SCRUB, alpha=0.2, lw=0, label="5-95 %")
     ax.plot(times, s["cumulative_retained_s_t_median"].astype(float), "-o", ms=3, color=SCRUB,
             label="median")
+    if truth is not None and "cumulative_retained_s_t" in truth:
+        ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["cumulative_retained_s_t"], "x",
+                ms=4, color="#777777", label="synthetic truth")
     ax.axhline(0.0, color="#999999", lw=0.8, ls=":")
     ax.set_ylabel("sulfur retained\nsince first row (t S)", fontsize=9)
-    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    ax.legend(fontsize=7, loc="upper left", **_LEGEND_BOX)
 
 
 def _ratio_panel(ax, s, times, r, series, truth):
@@ -183,12 +208,15 @@ def _p_magmatic_panel(ax, s, times, p_prior):
     if flagged is not None and flagged.any():
         ax.plot(times[flagged], p[flagged], "o", ms=9, mfc="none", mec=FLAG_COLOUR, mew=1.2, ls="none",
                 label="row carries a flag (docs/flags.md)")
-        for t, pv, text in zip(times[flagged], p[flagged], s["flags"][flagged]):
-            ax.annotate(str(text).replace(";", "\n"), (t, pv if np.isfinite(pv) else 0.5), fontsize=5,
-                        color=FLAG_COLOUR, xytext=(4, 4), textcoords="offset points")
+        previous = ""
+        for t, pv, text in zip(times, p, s["flags"].astype("string").fillna("")):
+            if text and text != previous:  # a window's flag is written once, at its first row
+                ax.annotate(str(text).replace(";", "\n"), (t, pv if np.isfinite(pv) else 0.5), fontsize=6,
+                            color=FLAG_COLOUR, xytext=(4, 4), textcoords="offset points")
+            previous = text
     if p_prior is not None:
         ax.axhline(p_prior, color="#999999", lw=0.8, ls=":", label=f"prior P(M0) = {p_prior:g}")
-    ax.legend(fontsize=7, frameon=False, loc="lower left", ncol=3)
+    ax.legend(fontsize=7, loc="lower left", ncol=3, **_LEGEND_BOX)
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("P(M0) purely\nmagmatic\n(probability)", fontsize=9)
 
@@ -238,37 +266,58 @@ def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", 
 
 
 def rows_vs_windows_figure(rows_csv, windows_csv, truth_csv=None, title="", p_magmatic_prior=0.5):
-    """The rows-vs-windows Figure (not saved, not closed)."""
+    """The rows-vs-windows Figure (not saved, not closed): P(M0), P(M2) when both runs carry
+    the released-sulfur hypothesis, and the model-averaged scrubbed fraction."""
     plt = _plt()
     a = pd.read_csv(rows_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     b = pd.read_csv(windows_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
     t = pd.to_datetime(a["time"].str.rstrip("Z"))
-    fig, axes = plt.subplots(2, 1, figsize=(9, 6.5), sharex=True)
+    has_m2 = all("p_released" in x and x["p_released"].notna().any() for x in (a, b))
+    fig, axes = plt.subplots(3 if has_m2 else 2, 1, figsize=(9, 8.5 if has_m2 else 6.5), sharex=True)
     for s, mk, col, lab in ((a, "o", "#8da9c4", "row by row"), (b, "s", INK, "by windows (shared source)")):
         axes[0].errorbar(t, s["p_magmatic"].astype(float), yerr=s["p_magmatic_error"].astype(float).fillna(0),
                          fmt=mk, ms=4, color=col, capsize=2, label=lab)
-        axes[1].plot(t, s["scrubbed_so2_avg_median"].astype(float), mk + "-", ms=3, color=col, label=lab)
-    mixed = b["flags"].astype("string").fillna("").str.contains("mixed_sources")
-    for ax in axes:
-        for tm in t[mixed.to_numpy()]:
-            ax.axvspan(tm - pd.Timedelta(days=5), tm + pd.Timedelta(days=5), color="#f4a261", alpha=0.25, lw=0)
+        if has_m2:
+            axes[1].errorbar(t, s["p_released"].astype(float), yerr=s["p_released_error"].astype(float).fillna(0),
+                             fmt=mk, ms=4, color=col, capsize=2, label=lab)
+        axes[-1].plot(t, s["scrubbed_so2_avg_median"].astype(float), mk + "-", ms=3, color=col, label=lab)
+    _shade_mixed(axes, t, b["flags"].astype("string").fillna("").str.contains("mixed_sources").to_numpy())
     if truth_csv:
         tr = pd.read_csv(truth_csv)
-        axes[1].plot(pd.to_datetime(tr["time"].str.rstrip("Z")), tr["scrubbed_so2"], "x", color="#777777",
-                     label="synthetic truth")
+        axes[-1].plot(pd.to_datetime(tr["time"].str.rstrip("Z")), tr["scrubbed_so2"], "x", color="#777777",
+                      label="synthetic truth")
     axes[0].axhline(p_magmatic_prior, color="#999999", lw=0.8, ls=":",
                     label=f"prior P(M0) = {p_magmatic_prior:g}")
     axes[0].set_ylabel("P(M0) purely\nmagmatic (probability)", fontsize=9)
-    axes[1].set_ylabel("scrubbed SO2 (fraction)\nmodel-averaged median", fontsize=9)
-    axes[1].set_xlabel("time (UTC)")
+    if has_m2:
+        axes[1].set_ylabel("P(M2) stored sulfur\nreleased (probability)", fontsize=9)
+    axes[-1].set_ylabel("scrubbed SO2 (fraction)\nmodel-averaged median", fontsize=9)
+    axes[-1].set_xlabel("time (UTC)")
     for ax in axes:
         ax.set_ylim(-0.03, 1.03)
-        ax.legend(fontsize=7, frameon=False, loc="center left")
+        ax.legend(fontsize=7, loc="center left", **_LEGEND_BOX)
+    _window_marks(list(axes), b, t)
     axes[0].set_title((title + "\n" if title else "") + "shaded: window flagged mixed_sources "
-                      "(a change of magma inside the window)", fontsize=9)
+                      "(a change of magma inside the window)", fontsize=9, pad=14)
     _footnote(fig)
     fig.tight_layout(rect=(0, 0.025, 1, 1))
     return fig
+
+
+def _shade_mixed(axes, t, mixed):
+    """One shaded span per run of consecutive rows flagged mixed_sources."""
+    half = [(t.iloc[min(i + 1, len(t) - 1)] - t.iloc[max(i - 1, 0)]) / 4 for i in range(len(t))]
+    i = 0
+    while i < len(t):
+        if not mixed[i]:
+            i += 1
+            continue
+        j = i
+        while j + 1 < len(t) and mixed[j + 1]:
+            j += 1
+        for ax in axes:
+            ax.axvspan(t.iloc[i] - half[i], t.iloc[j] + half[j], color="#f4a261", alpha=0.25, lw=0)
+        i = j + 1
 
 
 def plot_corner(out_dir, row_ids, fig_dir=None, truth_csv=None):

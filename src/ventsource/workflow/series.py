@@ -475,6 +475,9 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
                  [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
                  row_seed(settings["seed"], f"window-{label}"), settings["options"], out_dir)
                 for label, idx in groups if series.ids[idx[0]] not in done]
+        # longest windows first: two workers then finish together instead of one idling
+        # while the other inverts the biggest window last (results do not depend on order)
+        todo.sort(key=lambda job: -len(job[3]))
     bar = Progress(len(series.ids), len(done), stream=progress_stream,
                    label=extras.get("progress_label", ""))
     if failed:

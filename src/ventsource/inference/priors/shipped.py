@@ -15,17 +15,28 @@ from pathlib import Path
 DATA_PACKAGE = "ventsource.shipped_priors"
 
 
+def _checkout_prior_dir():
+    """priors/ of the source checkout this module was imported from, or None (installed)."""
+    here = Path(__file__).resolve()
+    root = here.parents[4]  # src/ventsource/inference/priors/ -> repository root
+    if here.parents[3].name == "src" and (root / "pyproject.toml").is_file() and (root / "priors").is_dir():
+        return root / "priors"
+    return None
+
+
 def shipped_prior_dir():
-    """Folder (a Traversable) holding the shipped prior files, or None when there is none."""
+    """Folder (a Traversable) holding the shipped prior files, or None when there is none.
+
+    A source checkout reads its own priors/ first: an editable install of another
+    checkout (a second git worktree) would otherwise supply that checkout's files."""
+    checkout = _checkout_prior_dir()
+    if checkout is not None:
+        return checkout
     try:
         folder = importlib.resources.files(DATA_PACKAGE)
     except ModuleNotFoundError:
         folder = None
-    if folder is not None and folder.is_dir():
-        return folder
-    # source checkout without an install: src/ventsource/inference/priors/ -> repository root
-    checkout = Path(__file__).resolve().parents[4] / "priors"
-    return checkout if checkout.is_dir() else None
+    return folder if folder is not None and folder.is_dir() else None
 
 
 def shipped_prior_names():
