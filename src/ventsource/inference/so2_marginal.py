@@ -345,3 +345,32 @@ def _inverse_cdf_on_grid(grid, logf, u, u_cell):
     a = 0.5 * (left + centre)
     b = 0.5 * (centre + right)
     return a + (b - a) * u_cell
+
+
+class So2FactorMarginal(So2MultiplierMarginal):
+    """SO2 times a free factor x = e^v, v uniform over [ln x_min, ln x_max] of a log-uniform
+    distribution of x; nothing else changes (the parameter is x - 1, as for a release).
+
+    A nuisance device of the window model's source check (window.So2FreeWindowTarget),
+    not a physical process: it lets SO2 take any value a row asks for."""
+
+    def _v_support(self):
+        return float(np.log(self.dist.lower)), float(np.log(self.dist.upper))
+
+    def _pure_so2_multiplier(self):
+        return True
+
+    def param_of_v(self, v):
+        return np.expm1(v)
+
+    def log_prior_v(self, v):
+        inside = (v >= self.v_lo) & (v <= self.v_hi)
+        return np.where(inside, -np.log(self.v_hi - self.v_lo), -np.inf)
+
+    def _clip_param(self, x):
+        return np.clip(x, np.expm1(self.v_lo), np.expm1(self.v_hi))
+
+    def change(self, gas, h2s_return):
+        dx = np.zeros_like(gas)
+        dx[:, _SO2] = gas[:, _SO2]
+        return dx

@@ -27,11 +27,13 @@ from scipy import special
 
 from ventsource.ascent import observables
 from ventsource.inference.release_marginal import ReleaseMarginal
-from ventsource.inference.so2_marginal import ScrubbingMarginal, log_ratios_of
+from ventsource.inference.priors.distributions import LogUniform
+from ventsource.inference.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
 from ventsource.inference.window_kernels import RowPack, qualifies
 
 N_SOLVE = 24   # forward solves per draw of psi
 REFINE = 3     # quadrature points per solved interval
+SO2_FREE_RANGE = (1e-3, 10.0)  # SO2 factor of the source check: 99.9 % scrubbed to x10 released
 
 
 def pressure_grid(distribution, n_solve=N_SOLVE, refine=REFINE):
@@ -106,13 +108,17 @@ class WindowTarget:
         self.log_pis = (np.array([np.log(self.pi0), np.log1p(-self.pi0)]) if release is None
                         else np.log(release.probabilities(self.pi0)))
         self._weights = observables.weight_matrices(forward.ratio_names)
+        self._pack_rows()
+        names = tuple(self.shared_prior.parameter_names)
+        self._j_p = names.index("pressure_bar")
+        self._j_h = names.index("h2s_return") if "h2s_return" in names else None
+
+    def _pack_rows(self):
+        """Split the rows into those of the compiled loop and those of the NumPy path."""
         sets = [[m] if self.releases is None else [m, self.releases[i]] for i, m in enumerate(self.marginals)]
         self._compiled_rows = [i for i, ms in enumerate(sets) if all(qualifies(m) for m in ms)]
         self._numpy_rows = [i for i in range(len(sets)) if i not in self._compiled_rows]
         self._pack = RowPack([sets[i] for i in self._compiled_rows]) if self._compiled_rows else None
-        names = tuple(self.shared_prior.parameter_names)
-        self._j_p = names.index("pressure_bar")
-        self._j_h = names.index("h2s_return") if "h2s_return" in names else None
 
     @property
     def n_rows(self):
@@ -203,3 +209,24 @@ class WindowTarget:
         mix = self.row_mixture(*lz)
         total = mix.sum(axis=1)
         return np.where(np.isnan(total), -np.inf, total), {f"lz{k}": v for k, v in enumerate(lz)}
+
+
+class So2FreeWindowTarget(WindowTarget):
+    """The window model with each row's SO2 a free nuisance factor, for the source check.
+
+    Every row's SO2 is multiplied by its own x, log-uniform over [1e-3, 10] (uniform in
+    v = ln x): one hypothesis that covers no change, scrubbing (x < 1) and release
+    (x > 1) at the same prior cost in every model compared. The rows then inform the
+    source only through what a change of SO2 alone leaves untouched (H2O/CO2, and
+    H2S/SO2 x SO2/CO2 = H2S/CO2): a change of source is not confused with a change of
+    scrubbing, whose amount would otherwise weigh in through its own prior. Exact for
+    the "loss" product and for release; other products also move H2S or H2O a little."""
+
+    def __init__(self, prior, forward, likelihoods, n_solve=N_SOLVE, refine=REFINE, per_row=None):
+        super().__init__(prior, forward, likelihoods, 0.5, n_solve, refine, per_row)
+        factor = LogUniform(SO2_FREE_RANGE[0], SO2_FREE_RANGE[1])
+        self.marginals = [So2FactorMarginal(lik, forward.ratio_names, forward.product, factor)
+                          for lik in likelihoods]
+        self.releases = None
+        self.log_pis = np.array([-np.inf, 0.0])   # "M1" = SO2 free; no separate M0
+        self._pack_rows()

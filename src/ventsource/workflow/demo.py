@@ -25,12 +25,9 @@ DEMO_PRIOR = shipped_prior_path("demo_mount_kerrow")
 DEMO_FAST_PRIOR = shipped_prior_path("demo_mount_kerrow_fast")
 # The same plus the [hypotheses] table of the third hypothesis, released stored sulfur (M2)
 DEMO_RELEASE_PRIOR = shipped_prior_path("demo_mount_kerrow_fast_release")
-# The row-by-row run uses the engine's default settings, as a real run does. The windows
-# run uses 100 particles per SMC run instead of 200 (4 runs as by default): with the
-# released-sulfur hypothesis a window costs about five times as much per row as with
-# two hypotheses, and the whole demo is meant to take a few minutes on two cores.
+# Both runs use the engines' default settings, as a real run does.
 DEMO_OPTIONS = {}
-DEMO_WINDOW_OPTIONS = {"n_particles": 100}
+DEMO_WINDOW_OPTIONS = {}
 RATIOS = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 RATIO_SIGMA = RELATIVE_SIGMA = 0.15  # in-plume sensor ratios: 10-20 % (common practice, no source)
 FLUX_SIGMA = 0.20           # spectrometer fluxes: 20-30 % (common practice, no source)
