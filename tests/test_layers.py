@@ -29,9 +29,14 @@ LAYERS = {
 TOP_LEVEL_LAYER = LAYERS["inference"]
 
 MAX_FUNCTION_LINES = 60
-# Packages held to the limit now; the rest still has long functions (listed in
-# DEVELOPERS.md, "Package map") and joins once they are split.
-LENGTH_CHECKED = ("magma", "inference/priors")
+# Every module is held to the limit except these named functions (path under
+# src/ventsource, function name) -> why; DEVELOPERS.md, "Package map", lists them too.
+LENGTH_EXCEPTIONS = {
+    ("workflow/series.py", "run_series"):
+        "being reworked on another branch; split it once that work has landed",
+    ("workflow/series.py", "_run_locked"):
+        "62 lines; in the same file as run_series, split together with it",
+}
 # numba decorators whose kernels may run long (speed over screen size)
 NUMBA_DECORATORS = {"njit", "jit", "numba.njit", "numba.jit"}
 
@@ -107,17 +112,24 @@ def numba_decorator_names():
     return names
 
 
-def long_functions(source, path, kernel_decorators, limit=MAX_FUNCTION_LINES):
-    """(name, lines) of functions and methods longer than `limit` lines that are not numba kernels."""
+def long_functions(source, path, kernel_decorators, limit=MAX_FUNCTION_LINES, exceptions=()):
+    """(name, lines) of functions and methods longer than `limit` lines that are neither
+    numba kernels nor named in `exceptions` ((path under the package, name) pairs)."""
     out = []
+    where = path.relative_to(PACKAGE).as_posix()
     for node in ast.walk(ast.parse(source, filename=str(path))):
         if not isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)):
             continue
         decorators = {ast.unparse(d.func if isinstance(d, ast.Call) else d) for d in node.decorator_list}
         n_lines = node.end_lineno - node.lineno + 1
-        if n_lines > limit and not decorators & kernel_decorators:
+        if n_lines > limit and not decorators & kernel_decorators and (where, node.name) not in exceptions:
             out.append((f"{path.relative_to(SRC)}:{node.lineno} {node.name}", n_lines))
     return out
+
+
+def function_names(source):
+    return {node.name for node in ast.walk(ast.parse(source))
+            if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef))}
 
 
 def all_modules():
@@ -158,14 +170,20 @@ def test_the_checker_sees_upward_relative_unknown_and_lazy_imports():
         layer_violations("x = 1\n", PACKAGE / "plotting" / "draw.py")
 
 
-def test_functions_fit_on_a_screen_in_the_split_packages():
+def test_functions_fit_on_a_screen():
     kernels = numba_decorator_names()
     assert "_kernel" in kernels  # the degassing kernels' decorator is recognised
     too_long = []
-    for sub in LENGTH_CHECKED:
-        for path in sorted((PACKAGE / sub).rglob("*.py")):
-            too_long += long_functions(path.read_text(), path, kernels)
+    for path in all_modules():
+        too_long += long_functions(path.read_text(), path, kernels, exceptions=LENGTH_EXCEPTIONS)
     assert not too_long, f"functions over {MAX_FUNCTION_LINES} lines outside numba kernels: {too_long}"
+
+
+def test_every_length_exception_names_an_existing_function():
+    # a renamed or removed function must leave the list, or the exception would go stale
+    missing = [f"{where} {name}" for where, name in LENGTH_EXCEPTIONS
+               if not (PACKAGE / where).is_file() or name not in function_names((PACKAGE / where).read_text())]
+    assert not missing, f"LENGTH_EXCEPTIONS names functions that do not exist: {missing}"
 
 
 def test_the_length_check_can_fail():
@@ -175,3 +193,10 @@ def test_the_length_check_can_fail():
     assert long_functions("def f():\n" + body, path, kernels) == [("ventsource/magma/made_up.py:1 f", 62)]
     assert long_functions("@_kernel\ndef f():\n" + body, path, kernels) == []
     assert long_functions("@njit(cache=True)\ndef f():\n" + body, path, kernels) == []
+    # an exception covers only its own function in its own file
+    exceptions = {("magma/made_up.py", "f")}
+    assert long_functions("def f():\n" + body, path, kernels, exceptions=exceptions) == []
+    assert long_functions("def g():\n" + body, path, kernels, exceptions=exceptions) == [
+        ("ventsource/magma/made_up.py:1 g", 62)]
+    assert long_functions("def f():\n" + body, PACKAGE / "cli" / "made_up.py", kernels,
+                          exceptions=exceptions) == [("ventsource/cli/made_up.py:1 f", 62)]

@@ -59,7 +59,17 @@ def build_parser():
                      description="Bayesian inversion of volcanic gas ratios.")
     parser.add_argument("--version", action="version", version=f"ventsource {__version__}")
     sub = parser.add_subparsers(dest="command", parser_class=_Parser)
+    _add_speciate_parser(sub)
+    _add_forward_parser(sub)
+    _add_prior_predictive_parser(sub)
+    _add_series_parsers(sub)
+    _add_demo_priors_bench_parsers(sub)
+    from ventsource.cli import ratios_command
+    ratios_command.add_parser(sub)
+    return parser
 
+
+def _add_speciate_parser(sub):
     sp = sub.add_parser("speciate", help="equilibrium C-O-H-S gas at fixed T, P and fO2")
     sp.add_argument("--temperature-c", type=_number("--temperature-c"), required=True,
                     help="temperature in degrees Celsius")
@@ -76,6 +86,8 @@ def build_parser():
     sp.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     sp.set_defaults(handler=cmd_speciate)
 
+
+def _add_forward_parser(sub):
     fp = sub.add_parser("forward", help="run the forward model for one set of parameters")
     fp.add_argument("--prior", required=True, help="prior file (TOML) or shipped prior name (see `ventsource priors`)")
     fp.add_argument("--set", nargs="+", action="extend", default=[], metavar="NAME=VALUE",
@@ -85,6 +97,8 @@ def build_parser():
     fp.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     fp.set_defaults(handler=cmd_forward)
 
+
+def _add_prior_predictive_parser(sub):
     pp = sub.add_parser("prior-predictive",
                         help="draw the prior, run the model with and without scrubbing")
     pp.add_argument("--prior", required=True, help="prior file (TOML), see docs/prior-files.md")
@@ -100,6 +114,9 @@ def build_parser():
     pp.add_argument("--seed", type=int, default=0, help="seed of the prior draws")
     pp.set_defaults(handler=cmd_prior_predictive)
 
+
+def _add_series_parsers(sub):
+    """`run` and `compare`: the commands that invert a measurement file."""
     rp = sub.add_parser("run", help="invert every row of a measurement file")
     rp.add_argument("data", help="measurement CSV (format: docs/measurements.md)")
     rp.add_argument("--prior", required=True, help="prior file (TOML), see docs/prior-files.md")
@@ -118,6 +135,8 @@ def build_parser():
     _series_options(cp)
     cp.set_defaults(handler=cmd_compare)
 
+
+def _add_demo_priors_bench_parsers(sub):
     dp = sub.add_parser("demo", help="synthetic series at the fictional Mount Kerrow, inverted",
                         description="Make a synthetic series at the fictional volcano Mount Kerrow "
                                     "with known truth, invert it by windows and row by row, and "
@@ -136,9 +155,6 @@ def build_parser():
     bp.add_argument("--only", choices=["speciation", "forward", "inference", "window", "emcee", "series", "ratios", "reader"], action="append",
                     help="run only the named benchmark sections")
     bp.set_defaults(handler=cmd_bench)
-    from ventsource.cli import ratios_command
-    ratios_command.add_parser(sub)
-    return parser
 
 
 def cmd_speciate(args):
@@ -210,12 +226,30 @@ def _load_prior(path):
 def cmd_forward(args):
     import numpy as np
 
-    from ventsource.forward.model import ForwardModel, UNITS
-    from ventsource.inference.priors import PHYSICAL_LIMITS
-    from ventsource.chemistry.species import SPECIES
+    from ventsource.forward.model import ForwardModel
 
     spec = _load_prior(args.prior)
     announce_compilation()
+    values = _set_values(args, spec)
+    theta = _forward_theta(args, spec, values)
+    ratio_names = tuple(r.strip() for r in args.ratios.split(",") if r.strip())
+    model = ForwardModel(spec, ratio_names)
+    state = model.state(np.array([theta]))
+    status = int(state["status"][0])
+    label = {0: "gas", 1: "no gas: the magma is undersaturated at this pressure",
+             2: "solver failure"}[status]
+    out = _forward_summary(args, spec, theta, state, ratio_names, label)
+    if args.json:
+        print(json.dumps(out, indent=2))
+        return 0
+    _print_forward(args, out, label, status, state["gas"][0])
+    return 0
+
+
+def _set_values(args, spec):
+    """--set NAME=VALUE items -> {name: value}, each a known parameter in its physical range."""
+    from ventsource.forward.model import UNITS
+    from ventsource.inference.priors import PHYSICAL_LIMITS
     values = {}
     for item in args.set:
         if "=" not in item:
@@ -236,6 +270,11 @@ def cmd_forward(args):
             raise InputError(f"--set: {name}={text} is unphysical or outside the supported range "
                              f"{lo:g} to {hi:g} ({UNITS.get(name, '')})")
         values[name] = value
+    return values
+
+
+def _forward_theta(args, spec, values):
+    """Full parameter vector: the --set values, else the prior's fixed values."""
     fixed = getattr(spec, "fixed_values", {}) or {}
     theta = []
     for name in spec.parameter_names:
@@ -246,14 +285,14 @@ def cmd_forward(args):
         else:
             raise InputError(f"--set: missing {name}; every free parameter of {args.prior} needs a "
                              f"value ({', '.join(n for n in spec.free_names if n not in values)})")
-    ratio_names = tuple(r.strip() for r in args.ratios.split(",") if r.strip())
-    model = ForwardModel(spec, ratio_names)
-    state = model.state(np.array([theta]))
-    status = int(state["status"][0])
-    label = {0: "gas", 1: "no gas: the magma is undersaturated at this pressure",
-             2: "solver failure"}[status]
+    return theta
+
+
+def _forward_summary(args, spec, theta, state, ratio_names, label):
+    """The `forward` command's JSON object (NaN and inf as null)."""
+    from ventsource.chemistry.species import SPECIES
     gas = state["gas"][0]
-    out = {
+    return {
         "prior": args.prior,
         "parameters": dict(zip(spec.parameter_names, theta)),
         "status": label,
@@ -267,9 +306,10 @@ def cmd_forward(args):
         "ratios": {r: _finite_or_none(state["ratios"][0][k]) for k, r in enumerate(ratio_names)},
         "models": dict(spec.models),
     }
-    if args.json:
-        print(json.dumps(out, indent=2))
-        return 0
+
+
+def _print_forward(args, out, label, status, gas):
+    from ventsource.chemistry.species import SPECIES
     print(f"Forward model, prior {args.prior}")
     print("  " + ", ".join(f"{k}={v:g}" for k, v in out["parameters"].items()))
     print(f"  status: {label}")
@@ -285,7 +325,6 @@ def cmd_forward(args):
         print("  gas after scrubbing (mol %): " + ", ".join(
             f"{n} {100 * gas[i]:.4g}" for i, n in enumerate(SPECIES) if gas[i] > 1e-6))
         print("  ratios: " + ", ".join(f"{r} {v:.4g}" for r, v in out["ratios"].items()))
-    return 0
 
 
 def _finite_or_none(value):

@@ -290,9 +290,42 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
             f"pass model_choice=False to sample without the M0/M1 comparison")
-    seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(8)]
+    return _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt)
 
+
+def _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt) -> InferenceResult:
+    """infer() with the emcee engine, after the checks: the models, their posteriors and flags."""
+    do_choice = bool(opt["model_choice"])
+    seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(8)]
     flags = []
+    runs = _run_models(prior, forward, lik, seed, seeds, opt, flags)
+    run1, run0 = runs["M1"], runs.get("M0")
+    rng = np.random.default_rng(seeds[6])
+    idata1 = _to_idata(run1, lik, measurement, rng, opt["n_prior_draws"])
+    idata0 = None
+    if run0 is not None and run0.sample is not None:
+        idata0 = _to_idata(run0, lik, measurement, rng, opt["n_prior_draws"])
+
+    p_mag = p_err = p_below = p_below_err = hyp = budget = None
+    if do_choice:
+        p_mag, p_err, hyp, budget = _model_probabilities(runs, prior, forward, pi0, seed, opt)
+        j = tuple(prior.free_names).index(opt["scrub_name"])
+        import arviz as az
+        ess = float(az.ess((run1.sample.chain[:, :, j] < opt["epsilon"]).astype(float)))  # ESS of the indicator
+        p_below, p_below_err = probability_below(run1.sample.chain[:, :, j], opt["epsilon"], ess)
+        if p_err is not None and p_err > opt["max_error_p"]:
+            flags.append("p_magmatic_error_large")
+    flags = _run_flags(flags, runs, idata1, opt)
+    return InferenceResult(measurement=measurement, p_magmatic=p_mag, p_magmatic_error=p_err,
+                           p_scrubbed_below_epsilon=p_below, p_scrubbed_below_epsilon_error=p_below_err,
+                           epsilon=float(opt["epsilon"]), pi0=pi0 if do_choice else None,
+                           flags=flags, idata=idata1, idata_m0=idata0, runs=runs,
+                           hypotheses=hyp, budget_draws=budget)
+
+
+def _run_models(prior, forward, lik, seed, seeds, opt, flags) -> dict:
+    """{"M1": ...} and, with model choice, "M0" (and "M2" with a release prior); a model
+    without a valid state adds its flag to `flags`."""
     try:
         run1 = _run_model("M1", prior, forward, lik, seeds[0:3], opt)
     except SamplerError as e:
@@ -300,9 +333,8 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     except ValueError as e:  # e.g. bridge sampling with too few usable draws
         raise InferenceError(f"infer: model M1: {str(e).splitlines()[0]}") from None
     runs = {"M1": run1}
-    run0 = None
-    if do_choice:
-        prior0 = prior.with_fixed(scrub, 0.0)
+    if bool(opt["model_choice"]):
+        prior0 = prior.with_fixed(opt["scrub_name"], 0.0)
         try:
             run0 = _run_model("M0", prior0, forward, lik, seeds[3:6], opt)
         except SamplerError:
@@ -313,22 +345,12 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
         if getattr(prior, "release", None) is not None:  # third hypothesis: released sulfur
             from ventsource.inference.hypotheses_emcee import run_release_model
             runs["M2"] = run_release_model(prior, forward, lik, seed, opt)
+    return runs
 
-    rng = np.random.default_rng(seeds[6])
-    idata1 = _to_idata(run1, lik, measurement, rng, opt["n_prior_draws"])
-    idata0 = None
-    if run0 is not None and run0.sample is not None:
-        idata0 = _to_idata(run0, lik, measurement, rng, opt["n_prior_draws"])
 
-    p_mag = p_err = p_below = p_below_err = hyp = budget = None
-    if do_choice:
-        p_mag, p_err, hyp, budget = _model_probabilities(runs, prior, forward, pi0, seed, opt)
-        j = tuple(prior.free_names).index(scrub)
-        import arviz as az
-        ess = float(az.ess((run1.sample.chain[:, :, j] < opt["epsilon"]).astype(float)))  # ESS of the indicator
-        p_below, p_below_err = probability_below(run1.sample.chain[:, :, j], opt["epsilon"], ess)
-        if p_err is not None and p_err > opt["max_error_p"]:
-            flags.append("p_magmatic_error_large")
+def _run_flags(flags, runs, idata1, opt) -> list:
+    """flags plus those of the predictive checks, the samplers, the bridges and R-hat."""
+    run0, run1 = runs.get("M0"), runs["M1"]
     flags += model_flags(run0.check if run0 is not None else None, run1.check)
     if "M2" in runs:
         flags = release_flags(flags, runs["M2"].check)
@@ -350,11 +372,7 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
     # Analysis 16:667) is used as the flag level (common practice for ensembles, no source)
     if max(float(rh[v]) for v in rh.data_vars) > opt["rhat_max"]:
         flags.append("m1_rhat_high")
-    return InferenceResult(measurement=measurement, p_magmatic=p_mag, p_magmatic_error=p_err,
-                           p_scrubbed_below_epsilon=p_below, p_scrubbed_below_epsilon_error=p_below_err,
-                           epsilon=float(opt["epsilon"]), pi0=pi0 if do_choice else None,
-                           flags=flags, idata=idata1, idata_m0=idata0, runs=runs,
-                           hypotheses=hyp, budget_draws=budget)
+    return flags
 
 
 def _model_probabilities(runs, prior, forward, pi0, seed, opt):

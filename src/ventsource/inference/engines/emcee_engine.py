@@ -220,6 +220,30 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     from ventsource.inference.evidence.bridge import Transform, support_bounds
     rng = np.random.default_rng(seed)
     d = len(prior.free_names)
+    n_walkers = _walker_count(n_walkers, d)
+    if space not in ("unbounded", "prior"):
+        raise SamplerError(f"sampling space {space!r} unknown; use 'unbounded' or 'prior'")
+    tr = Transform(support_bounds(prior)) if space == "unbounded" else None
+    logpost = LogPosterior(prior, forward, likelihood) if tr is None else \
+        TransformedLogPosterior(prior, forward, likelihood, tr)
+    p0, n_init_bad = initial_walkers(prior, logpost, n_walkers, rng, n_draws=n_init_draws, method=init)
+    n_init_evals = logpost.n_forward_evals
+    if tr is not None:
+        p0 = tr.forward(p0)
+        if not np.all(np.isfinite(p0)):
+            raise SamplerError("a prior draw lies exactly on a support bound; cannot map it to the unbounded space")
+    sampler = emcee.EnsembleSampler(n_walkers, d, logpost, vectorize=True, moves=_moves(moves))
+    # emcee draws its proposals from its own RandomState: seed it from our Generator
+    sampler.random_state = np.random.RandomState(int(rng.integers(2**32 - 1))).get_state()
+    progress = _run_in_chunks(sampler, p0, max_steps, chunk, burn_factor, min_tau_factor, target_ess,
+                              rhat_target)
+    info = {"n_init_failed": n_init_bad, "n_init_evals": n_init_evals, "moves": str(moves), "init": init,
+            "seed": seed, "space": space}
+    return _sample_result(prior, sampler, logpost, tr, likelihood.n_predicted, progress, burn_factor, info)
+
+
+def _walker_count(n_walkers, d):
+    """The ensemble size: the default for d free parameters, made even, at least 2 d."""
     if d == 0:
         raise SamplerError("prior has no free parameters to sample")
     if n_walkers is None:
@@ -232,22 +256,13 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     n_walkers = int(n_walkers) + int(n_walkers) % 2
     if n_walkers < 2 * d:
         raise SamplerError(f"n_walkers={n_walkers} must be at least twice the number of free parameters ({d})")
-    if space not in ("unbounded", "prior"):
-        raise SamplerError(f"sampling space {space!r} unknown; use 'unbounded' or 'prior'")
-    tr = Transform(support_bounds(prior)) if space == "unbounded" else None
-    logpost = LogPosterior(prior, forward, likelihood) if tr is None else \
-        TransformedLogPosterior(prior, forward, likelihood, tr)
-    p0, n_init_bad = initial_walkers(prior, logpost, n_walkers, rng, n_draws=n_init_draws, method=init)
-    n_init_evals = logpost.n_forward_evals
-    if tr is not None:
-        p0 = tr.forward(p0)
-        if not np.all(np.isfinite(p0)):
-            raise SamplerError("a prior draw lies exactly on a support bound; cannot map it to the unbounded space")
-    m = likelihood.n_predicted
-    sampler = emcee.EnsembleSampler(n_walkers, d, logpost, vectorize=True, moves=_moves(moves))
-    # emcee draws its proposals from its own RandomState: seed it from our Generator
-    sampler.random_state = np.random.RandomState(int(rng.integers(2**32 - 1))).get_state()
-    state = p0
+    return n_walkers
+
+
+def _run_in_chunks(sampler, state, max_steps, chunk, burn_factor, min_tau_factor, target_ess, rhat_target):
+    """Run the ensemble chunk by chunk until the ESS and R-hat targets hold (or max_steps);
+    returns n_steps, tau, rhat, ess_min and converged."""
+    n_walkers, d = sampler.nwalkers, sampler.ndim
     converged = False
     tau = np.full(d, np.nan)
     n_steps = 0
@@ -270,6 +285,13 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
             if rhat <= rhat_target and ess_min >= target_ess:
                 converged = True
                 break
+    return {"n_steps": n_steps, "tau": tau, "rhat": rhat, "ess_min": ess_min, "converged": converged}
+
+
+def _sample_result(prior, sampler, logpost, tr, m, progress, burn_factor, info) -> SampleResult:
+    """Draws after burn-in, mapped back to the prior's space, with their blobs and statistics."""
+    n_walkers, d = sampler.nwalkers, sampler.ndim
+    tau, n_steps, converged = progress["tau"], progress["n_steps"], progress["converged"]
     tmax = float(np.nanmax(tau)) if np.all(np.isfinite(tau)) else float(n_steps) / 10.0
     burn = min(int(np.ceil(burn_factor * tmax)), n_steps // 2)
     chain = np.swapaxes(sampler.get_chain(discard=burn), 0, 1)
@@ -281,14 +303,15 @@ def sample_posterior(prior, forward, likelihood: Likelihood, seed: int = 0, n_wa
     pred = np.swapaxes(blobs[:, :, 2:], 0, 1)
     ess_est = n_walkers * (n_steps - burn) / tmax
     stats = {"n_forward_evals": logpost.n_forward_evals, "n_failed_states": logpost.n_failed,
-             "n_init_failed": n_init_bad, "n_init_evals": n_init_evals, "tau_max": tmax,
-             "rhat_max": rhat, "ess_bulk_min": ess_min, "moves": str(moves), "init": init, "burn": burn, "n_steps": n_steps,
+             "n_init_failed": info["n_init_failed"], "n_init_evals": info["n_init_evals"], "tau_max": tmax,
+             "rhat_max": progress["rhat"], "ess_bulk_min": progress["ess_min"], "moves": info["moves"],
+             "init": info["init"], "burn": burn, "n_steps": n_steps,
              "n_walkers": n_walkers, "ess_estimate": ess_est, "converged": converged,
-             "mean_acceptance": float(np.mean(sampler.acceptance_fraction)), "seed": seed,
-             "space": space}
+             "mean_acceptance": float(np.mean(sampler.acceptance_fraction)), "seed": info["seed"],
+             "space": info["space"]}
     return SampleResult(free_names=tuple(prior.free_names), chain=chain, log_posterior=lpost,
                         log_likelihood=ll, predictions=pred, tau=np.asarray(tau), burn=burn,
                         n_steps=n_steps, thin=1, converged=converged,
                         acceptance_fraction=np.asarray(sampler.acceptance_fraction),
                         n_forward_evals=logpost.n_forward_evals, n_failed_states=logpost.n_failed,
-                        n_init_failed=n_init_bad, stats=stats)
+                        n_init_failed=info["n_init_failed"], stats=stats)

@@ -192,28 +192,60 @@ def bridge_sampling(chain: np.ndarray, log_target, bounds: np.ndarray | None = N
     ok = np.all(np.isfinite(u_fit), axis=1)
     if ok.sum() < d + 2:
         raise ValueError("bridge sampling: too few posterior draws strictly inside the support")
+    log_g, draw_g = _fit_proposal(u_fit[ok], proposal, rng, n_components)
+    l1, l2, n_evals = _log_ratios(ev, h, tr, log_target, log_target_chain, log_g, draw_g, n2)
+    lstar = np.median(l1[np.isfinite(l1)])
+    s1 = n1 / (n1 + n2)
+    s2 = n2 / (n1 + n2)
+    # work with r' = r / exp(lstar)
+    e1 = np.exp(l1 - lstar)
+    e2 = np.exp(l2 - lstar)
+    r, converged, it = _iterate_bridge(e1, e2, s1, s2, tol, max_iter)
+    log_z = float(np.log(r) + lstar)
+
+    f1 = e2 / (s1 * e2 + s2 * r)          # p/Z / (s1 p/Z + s2 g) on proposal draws, up to r scale
+    f2 = 1.0 / (s1 * e1 + s2 * r)          # g / (s1 p/Z + s2 g) on posterior draws, same scale
+    m1, m2 = f1.mean(), f2.mean()
+    ess2 = _ess(f2.reshape(ev.shape[0], ev.shape[1]))
+    re2 = f1.var() / (n2 * m1 * m1) + f2.var() / (ess2 * m2 * m2)
+    rel = float(np.sqrt(re2))
+    name = ",".join("logit" if t else ("log" if lo_ or hi_ else "identity")
+                    for t, lo_, hi_ in zip(tr.two, tr.low_only, tr.high_only))
+    return BridgeResult(log_z=log_z, log_z_error=rel, relative_error=rel, n_iter=it,
+                        converged=converged, n1=n1, n2=n2, n_target_evals=n_evals, transform=name)
+
+
+def _fit_proposal(u, proposal, rng, n_components):
+    """(log density, sampler) of the proposal g fitted to the draws u (n, d) in u space."""
+    d = u.shape[1]
     if proposal == "mixture":
-        g = fit_mixture(u_fit[ok], np.ones(int(ok.sum())), rng, n_components=n_components)
-        log_g = g.logpdf
+        g = fit_mixture(u, np.ones(u.shape[0]), rng, n_components=n_components)
 
         def draw_g(n):
             return g.sample(rng, n)
-    elif proposal == "normal":
-        mean = u_fit[ok].mean(axis=0)
-        cov = np.atleast_2d(np.cov(u_fit[ok], rowvar=False))
-        cov = cov + 1e-12 * np.eye(d) * max(np.trace(cov) / d, 1e-300)
-        chol = np.linalg.cholesky(cov)
-        log_det = 2.0 * np.sum(np.log(np.diag(chol)))
-
-        def log_g(u):
-            z = np.linalg.solve(chol, (u - mean).T)
-            return -0.5 * np.sum(z * z, axis=0) - 0.5 * d * np.log(2 * np.pi) - 0.5 * log_det
-
-        def draw_g(n):
-            return mean + rng.standard_normal((n, d)) @ chol.T
-    else:
+        return g.logpdf, draw_g
+    if proposal != "normal":
         raise ValueError(f"bridge proposal {proposal!r} unknown; use 'mixture' or 'normal'")
+    mean = u.mean(axis=0)
+    cov = np.atleast_2d(np.cov(u, rowvar=False))
+    cov = cov + 1e-12 * np.eye(d) * max(np.trace(cov) / d, 1e-300)
+    chol = np.linalg.cholesky(cov)
+    log_det = 2.0 * np.sum(np.log(np.diag(chol)))
 
+    def log_g(u):
+        z = np.linalg.solve(chol, (u - mean).T)
+        return -0.5 * np.sum(z * z, axis=0) - 0.5 * d * np.log(2 * np.pi) - 0.5 * log_det
+
+    def draw_g(n):
+        return mean + rng.standard_normal((n, d)) @ chol.T
+    return log_g, draw_g
+
+
+def _log_ratios(ev, h, tr, log_target, log_target_chain, log_g, draw_g, n2):
+    """(l1, l2, target evaluations): log target/g in u space on the posterior draws ev
+    (walkers, draws, d) and on n2 fresh proposal draws."""
+    d = ev.shape[2]
+    n1 = ev.shape[0] * ev.shape[1]
     # target density in u space: p(theta(u)) |d theta/du|
     u_ev = tr.forward(ev.reshape(-1, d))
     th_ev, lj_ev = tr.inverse(u_ev)
@@ -234,15 +266,11 @@ def bridge_sampling(chain: np.ndarray, log_target, bounds: np.ndarray | None = N
     q12[~np.isfinite(q12)] = -np.inf
     q22 = log_g(u_prop)
     n_evals += n2
+    return q11 - q21, q12 - q22, n_evals
 
-    l1 = q11 - q21
-    l2 = q12 - q22
-    lstar = np.median(l1[np.isfinite(l1)])
-    s1 = n1 / (n1 + n2)
-    s2 = n2 / (n1 + n2)
-    # work with r' = r / exp(lstar)
-    e1 = np.exp(l1 - lstar)
-    e2 = np.exp(l2 - lstar)
+
+def _iterate_bridge(e1, e2, s1, s2, tol, max_iter):
+    """Meng and Wong's fixed-point iteration for r' (see module doc): (r', converged, iterations)."""
     r = 1.0
     converged = False
     it = 0
@@ -255,18 +283,7 @@ def bridge_sampling(chain: np.ndarray, log_target, bounds: np.ndarray | None = N
             converged = True
             break
         r = r_new
-    log_z = float(np.log(r) + lstar)
-
-    f1 = e2 / (s1 * e2 + s2 * r)          # p/Z / (s1 p/Z + s2 g) on proposal draws, up to r scale
-    f2 = 1.0 / (s1 * e1 + s2 * r)          # g / (s1 p/Z + s2 g) on posterior draws, same scale
-    m1, m2 = f1.mean(), f2.mean()
-    ess2 = _ess(f2.reshape(ev.shape[0], ev.shape[1]))
-    re2 = f1.var() / (n2 * m1 * m1) + f2.var() / (ess2 * m2 * m2)
-    rel = float(np.sqrt(re2))
-    name = ",".join("logit" if t else ("log" if lo_ or hi_ else "identity")
-                    for t, lo_, hi_ in zip(tr.two, tr.low_only, tr.high_only))
-    return BridgeResult(log_z=log_z, log_z_error=rel, relative_error=rel, n_iter=it,
-                        converged=converged, n1=n1, n2=n2, n_target_evals=n_evals, transform=name)
+    return r, converged, it
 
 
 def prior_monte_carlo_evidence(measurement, prior, forward, n: int = 100_000, seed: int = 0,

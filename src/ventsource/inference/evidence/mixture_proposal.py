@@ -90,14 +90,7 @@ def fit_mixture(u, weights, rng: np.random.Generator, n_components: int = 6, dof
     keep = np.isfinite(w) & (w > 0) & np.all(np.isfinite(u), axis=1)
     u, w = u[keep], w[keep] / w[keep].sum()
     if u.shape[0] > max_points:
-        # EM cost is linear in n: a random subset, drawn by weight, keeps the fit unbiased
-        # in expectation for equal weights and close for unequal ones
-        # weighted sampling without replacement by random keys u^(1/w) (Efraimidis and
-        # Spirakis 2006, Inf. Process. Lett. 97:181); numpy's choice(p=..., replace=False)
-        # is far slower for large n
-        keys = np.log(rng.random(u.shape[0])) / np.maximum(w, 1e-300)
-        pick = np.argpartition(-keys, max_points)[:max_points]
-        u, w = u[pick], np.full(max_points, 1.0 / max_points)
+        u, w = _weighted_subset(u, w, rng, max_points)
     n, d = u.shape
     mean_all = w @ u
     cov_all = _weighted_cov(u, w, mean_all)
@@ -105,18 +98,51 @@ def fit_mixture(u, weights, rng: np.random.Generator, n_components: int = 6, dof
     n_eff = 1.0 / np.sum(w * w)
     # no more components than the weighted draws can pin down (~ 5 d effective draws each)
     k = int(max(1, min(n_components, n_eff // (5 * d))))
-    # weighted k-means++ seeding
+    idx = _kmeanspp_seeds(u, w, np.diag(cov_all), k, rng)
+    k = len(idx)
+    means = u[idx].copy()
+    covs = np.repeat(cov_all[None] / k ** (2.0 / d), k, axis=0)
+    means, covs, log_pi = _weighted_em(u, w, means, covs, floor, n_iter)
+    chols = np.array([_regularised_chol(c, floor) for c in covs])
+    log_w = np.log(1.0 - defensive) + log_pi
+    means = np.vstack([means, mean_all[None]])
+    chols = np.concatenate([chols, _regularised_chol(2.0 * cov_all, floor)[None]])
+    log_w = np.append(log_w, np.log(defensive))
+    return StudentTMixture(log_weights=log_w, means=means, chols=chols, dof=float(dof))
+
+
+def _weighted_subset(u, w, rng, max_points):
+    """max_points of the draws, picked by weight, each then weighing the same."""
+    # EM cost is linear in n: a random subset, drawn by weight, keeps the fit unbiased
+    # in expectation for equal weights and close for unequal ones
+    # weighted sampling without replacement by random keys u^(1/w) (Efraimidis and
+    # Spirakis 2006, Inf. Process. Lett. 97:181); numpy's choice(p=..., replace=False)
+    # is far slower for large n
+    keys = np.log(rng.random(u.shape[0])) / np.maximum(w, 1e-300)
+    pick = np.argpartition(-keys, max_points)[:max_points]
+    return u[pick], np.full(max_points, 1.0 / max_points)
+
+
+def _kmeanspp_seeds(u, w, var_all, k, rng):
+    """Indices of up to k starting means by weighted k-means++ seeding (distances scaled
+    by the overall per-axis variance var_all)."""
+    n = u.shape[0]
     idx = [rng.choice(n, p=w)]
-    d2 = np.sum((u - u[idx[0]]) ** 2 / np.diag(cov_all), axis=1)
+    d2 = np.sum((u - u[idx[0]]) ** 2 / var_all, axis=1)
     for _ in range(1, k):
         p = w * d2
         if p.sum() <= 0:
             break
         idx.append(rng.choice(n, p=p / p.sum()))
-        d2 = np.minimum(d2, np.sum((u - u[idx[-1]]) ** 2 / np.diag(cov_all), axis=1))
-    k = len(idx)
-    means = u[idx].copy()
-    covs = np.repeat(cov_all[None] / k ** (2.0 / d), k, axis=0)
+        d2 = np.minimum(d2, np.sum((u - u[idx[-1]]) ** 2 / var_all, axis=1))
+    return idx
+
+
+def _weighted_em(u, w, means, covs, floor, n_iter):
+    """Weighted EM for a Gaussian mixture from the given means and covariances; components
+    that lose all weight are dropped. Returns (means, covs, log mixing weights)."""
+    n, d = u.shape
+    k = means.shape[0]
     log_pi = np.full(k, -np.log(k))
     prev = -np.inf
     for _ in range(n_iter):
@@ -143,9 +169,4 @@ def fit_mixture(u, weights, rng: np.random.Generator, n_components: int = 6, dof
         if abs(total - prev) < 1e-6 * max(1.0, abs(total)):
             break
         prev = total
-    chols = np.array([_regularised_chol(c, floor) for c in covs])
-    log_w = np.log(1.0 - defensive) + log_pi
-    means = np.vstack([means, mean_all[None]])
-    chols = np.concatenate([chols, _regularised_chol(2.0 * cov_all, floor)[None]])
-    log_w = np.append(log_w, np.log(defensive))
-    return StudentTMixture(log_weights=log_w, means=means, chols=chols, dof=float(dof))
+    return means, covs, log_pi
