@@ -382,8 +382,8 @@ def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None,
 
 def prior_p_magmatic(spec):
     """Prior P(M0) of the prior file: p_magmatic, less the release share with [hypotheses]."""
-    release = getattr(spec, "release", None)
-    return spec.p_magmatic if release is None else float(release.probabilities(spec.p_magmatic)[0])
+    from ventsource.inference.priors.hypotheses import prior_model_probabilities
+    return prior_model_probabilities(spec)[0]
 
 
 def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", n_prior=2000):

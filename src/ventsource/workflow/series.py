@@ -35,6 +35,7 @@ import numpy as np
 
 from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
+from ventsource.inference.priors.hypotheses import prior_model_probabilities
 from ventsource.workflow.hypothesis_rows import (DRAWS_KEY, add_budget, compact_draws, extend_hazard,
                                                  extra_columns, hypothesis_fields)
 from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
@@ -575,7 +576,8 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
         "run_seed": int(seed), "row_seed_rule": "sha256('RUNSEED:ID'), first 8 bytes little-endian mod 2^63-1",
         "priors": [{"file": relative_path(prior_path, out_dir), "sha256": file_sha256(prior_path),
                     "name": spec.name, "fictional": bool(getattr(spec, "fictional", False)),
-                    "models": dict(spec.models), "p_magmatic_prior": spec.p_magmatic,
+                    "models": dict(spec.models), "p_magmatic_prior": prior_model_probabilities(spec)[0],
+                    "prior_model_probabilities": list(prior_model_probabilities(spec)),
                     "epsilon": float(getattr(spec, "epsilon", 0.05)),
                     "likelihood": dict(spec.likelihood), "free_parameters": list(spec.free_names)}],
         "inference_options": options,

@@ -71,3 +71,11 @@ def parse_hypotheses(file: str, data: Mapping) -> ReleasePrior | None:
             raise key_error(file, "hypotheses.released_so2",
                             "r must be a positive excess (support within [0, inf) and not fixed)")
     return ReleasePrior(float(p2), dist, source, dsource)
+
+
+def prior_model_probabilities(spec):
+    """Prior probabilities (M0, M1) of a prior, or (M0, M1, M2) when it has [hypotheses]."""
+    release = getattr(spec, "release", None)
+    if release is None:
+        return float(spec.p_magmatic), 1.0 - float(spec.p_magmatic)
+    return tuple(float(p) for p in release.probabilities(spec.p_magmatic))
