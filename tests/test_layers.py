@@ -31,12 +31,7 @@ TOP_LEVEL_LAYER = LAYERS["inference"]
 MAX_FUNCTION_LINES = 60
 # Every module is held to the limit except these named functions (path under
 # src/ventsource, function name) -> why; DEVELOPERS.md, "Package map", lists them too.
-LENGTH_EXCEPTIONS = {
-    ("workflow/series.py", "run_series"):
-        "being reworked on another branch; split it once that work has landed",
-    ("workflow/series.py", "_run_locked"):
-        "62 lines; in the same file as run_series, split together with it",
-}
+LENGTH_EXCEPTIONS = {}
 # numba decorators whose kernels may run long (speed over screen size)
 NUMBA_DECORATORS = {"njit", "jit", "numba.njit", "numba.jit"}
 

@@ -464,21 +464,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
         _atomic(stored_prior, lambda part: shutil.copyfile(prior_path, part))
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
-    if groups is None:
-        work = _invert_row
-        todo = [(str(prior_path), prior_ref, m, rid, _time_text(t), row_seed(settings["seed"], rid),
-                 settings["options"], out_dir)
-                for rid, t, m in zip(series.ids, series.times, series.measurements) if rid not in done]
-    else:
-        work = invert_window
-        os.makedirs(os.path.join(out_dir, "windows"), exist_ok=True)
-        todo = [(str(prior_path), prior_ref, label, [series.ids[i] for i in idx],
-                 [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
-                 row_seed(settings["seed"], f"window-{label}"), settings["options"], out_dir)
-                for label, idx in groups if series.ids[idx[0]] not in done]
-        # longest windows first: two workers then finish together instead of one idling
-        # while the other inverts the biggest window last (results do not depend on order)
-        todo.sort(key=lambda job: -len(job[3]))
+    work, todo = _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir)
     bar = Progress(len(series.ids), len(done), stream=progress_stream,
                    label=extras.get("progress_label", ""))
     if failed:
@@ -486,20 +472,44 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
                          f"{', '.join(failed[:5])}{' ...' if len(failed) > 5 else ''}\n")
     bar.show("resumed" if done else "")
     _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe, work)
+    rows = _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note, extras)
+    _write_json(run_path, dict(settings, status="complete", caution=CAUTION))
+    return rows
+
+
+def _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir):
+    """(worker function, its argument tuples) for the rows or windows still to invert."""
+    if groups is None:
+        todo = [(str(prior_path), prior_ref, m, rid, _time_text(t), row_seed(settings["seed"], rid),
+                 settings["options"], out_dir)
+                for rid, t, m in zip(series.ids, series.times, series.measurements) if rid not in done]
+        return _invert_row, todo
+    os.makedirs(os.path.join(out_dir, "windows"), exist_ok=True)
+    todo = [(str(prior_path), prior_ref, label, [series.ids[i] for i in idx],
+             [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
+             row_seed(settings["seed"], f"window-{label}"), settings["options"], out_dir)
+            for label, idx in groups if series.ids[idx[0]] not in done]
+    # longest windows first: two workers then finish together instead of one idling
+    # while the other inverts the biggest window last (results do not depend on order)
+    todo.sort(key=lambda job: -len(job[3]))
+    return invert_window, todo
+
+
+def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note, extras):
+    """summary.csv, hazard.json and the tables' README.txt of a run whose rows are all done."""
     gap_days = extras.get("budget_max_gap_days")
     rows = add_budget(series, [done[i] for i in series.ids], settings["seed"], gap_days)
-    _rewrite(summary_path, cols, rows)  # final file in input order
+    _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
                              window_per_row=settings.get("window_per_row"),
                              synthetic_data=extras.get("synthetic_data", False))
     hazard = extend_hazard(hazard, rows, series, gap_days)
-    _write_json(hazard_path, hazard)
+    _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
                                  HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
                        synthetic=hazard["synthetic"])
-    _write_json(run_path, dict(settings, status="complete", caution=CAUTION))
     return rows
 
 
