@@ -169,6 +169,19 @@ def test_heavy_scrubbing_in_the_second_half_is_not_read_as_a_change_of_source(ba
     assert np.all([r.p_magmatic < 0.1 for r in res.rows[5:]])
 
 
+def test_a_failed_split_check_flags_the_window_and_keeps_its_rows(basalt, monkeypatch):
+    import ventsource.inference.window_inference as wi
+
+    def no_usable_state(*args, **kwargs):
+        raise wi.WindowError("window: no prior draw gives a finite likelihood")
+    monkeypatch.setattr(wi, "So2FreeWindowTarget", no_usable_state)
+    spec, forward = basalt
+    meas, _ = synthetic_window(spec, forward, 4, np.zeros(4), seed=7)
+    res = infer_window(meas, spec, forward=forward, seed=2, n_particles=100, n_runs=2)
+    assert "source_check_failed" in res.flags and np.isnan(res.log10_bf_split)
+    assert len(res.rows) == 4 and all(np.isfinite(r.p_magmatic) for r in res.rows)
+
+
 def test_split_check_is_skipped_below_its_row_minimum(basalt):
     spec, forward = basalt
     meas, _ = synthetic_window(spec, forward, 3, np.zeros(3), seed=7)

@@ -22,6 +22,8 @@ FLAG_GLOSSARY = {
     "mixed_sources": "The rows of this window are better explained each by its own source, or "
                      "by one source for each half of the window, than by one shared source: "
                      "the window may span a change of magma.",
+    "source_check_failed": "The change-of-source check of this window could not be computed "
+                           "(its SMC runs failed); the window's own results stand unchecked.",
     "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",
     "m0_not_converged": "The purely magmatic model's MCMC chains did not reach their target.",
     "m1_rhat_high": "The scrubbing model's MCMC chains disagree (R-hat above its limit).",

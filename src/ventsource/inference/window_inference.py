@@ -117,7 +117,8 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
     if opt["split_check"] and len(measurements) >= opt["split_min_rows"]:
         split_bf, split_err = _split_source_log10_bf(prior, forward, target_liks, seeds[3], opt)
     rhat_max = _rhat(res.theta)
-    flags = _window_flags(res, rhat_max, bf, split_bf, opt)
+    split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
+    flags = _window_flags(res, rhat_max, bf, split_bf, opt, split_ran)
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
@@ -162,8 +163,11 @@ def _split_source_log10_bf(prior, forward, liks, seed, opt):
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(3)]
     signs, total, var = (1.0, -1.0, -1.0), 0.0, 0.0
     for part, sign, s in zip((liks,) + halves, signs, seeds):
-        target = So2FreeWindowTarget(prior, forward, part)
-        lz, err = _run_smc(target, s, opt["split_particles"], opt["split_runs"], opt).log_z_mean_error
+        try:
+            target = So2FreeWindowTarget(prior, forward, part)
+            lz, err = _run_smc(target, s, opt["split_particles"], opt["split_runs"], opt).log_z_mean_error
+        except WindowError:   # the check failed, not the window: flagged, the rows stand
+            return np.nan, np.nan
         total, var = total + sign * lz, var + (err ** 2 if np.isfinite(err) else 0.0)
     return float(total / np.log(10.0)), float(np.sqrt(var) / np.log(10.0))
 
@@ -263,8 +267,10 @@ def _shared_source_log10_bf(target, log_z_window, rng, n):
     return float((log_z_window - log_zi.sum()) / np.log(10.0))
 
 
-def _window_flags(res, rhat_max, bf, split_bf, opt):
+def _window_flags(res, rhat_max, bf, split_bf, opt, split_ran=False):
     flags = []
+    if split_ran and not np.isfinite(split_bf):
+        flags.append("source_check_failed")
     if bf < 0.0 or split_bf < opt["split_flag_below"]:
         flags.append("mixed_sources")
     if rhat_max > opt["smc_rhat_max"]:
