@@ -126,6 +126,7 @@ def test_shared_pressure_equals_the_quadrature_at_its_solved_pressures(one_press
     assert "pressure_bar" not in quad.shared_prior.free_names
     psi = quad.shared_prior.sample(np.random.default_rng(1), 5)
     ll_quad = quad.row_log_likelihoods(*quad.gas_on_grid(psi))
+    psi = psi[:, :len(quad.shared_prior.base.free_names)] if quad.pooled else psi  # the magma's part
     j = one.shared_prior.free_names.index("pressure_bar")
     compared = 0
     for node in (0, 7, 15, 23):

@@ -27,6 +27,7 @@ from scipy import special
 
 from ventsource.ascent import observables
 from ventsource.inference.release_marginal import ReleaseMarginal
+from ventsource.inference.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights
 from ventsource.inference.priors.distributions import LogUniform
 from ventsource.inference.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
 from ventsource.inference.window_kernels import RowPack, qualifies
@@ -88,13 +89,15 @@ class WindowTarget:
         shared = prior.with_fixed("scrubbed_so2", 0.0)
         if self.pressure_per_row:  # a placeholder: gas_on_grid sets the grid's pressures
             shared = shared.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower))
-        self.shared_prior = shared
+        self.pooled = self.pressure_per_row and prior.window_pressure_rows == "pooled"
+        self.shared_prior = PooledPrior(shared) if self.pooled else shared
         self.forward = forward
         self.pi0 = float(pi0)
         if self.pressure_per_row:
             self.n_solve, self.refine = n_solve, refine
             self.p_solve, self.p_quad, self.log_w = pressure_grid(prior.distributions["pressure_bar"],
                                                                   n_solve, refine)
+            self._z = normal_scores(self.log_w)
         else:  # shared pressure: one solve per draw serves every row, a one-point "grid"
             self.n_solve, self.refine = 1, 1
             self.p_solve, self.p_quad, self.log_w = np.empty(0), np.empty(0), np.zeros(1)
@@ -158,6 +161,10 @@ class WindowTarget:
     def n_hypotheses(self):
         return self.log_pis.size
 
+    def log_weights(self, psi):
+        """Log quadrature weights of each row's pressure: (K,), or (n, K) when pooled."""
+        return pooled_log_weights(self.log_w, self._z, psi) if self.pooled else self.log_w
+
     def _flat(self, gas, h2s):
         """Grid gas flattened to (n K, species), its bad points, h2s_return and ln ratios."""
         n, K, s = gas.shape
@@ -188,14 +195,15 @@ class WindowTarget:
         (window_kernels.py); any other row through NumPy."""
         gas, h2s = self.gas_on_grid(psi)
         n = gas.shape[0]
+        log_w = self.log_weights(np.atleast_2d(psi))
         out = np.empty((self.n_hypotheses, n, self.n_rows))
         if self._pack is not None:
             _, bad, _, log_ratios = self._flat(gas, h2s)
-            out[:, :, self._compiled_rows] = self._pack.evidences(log_ratios, bad, self.log_w)
+            out[:, :, self._compiled_rows] = self._pack.evidences(log_ratios, bad, log_w)
         if self._numpy_rows:
             lls = self.row_log_likelihoods(gas, h2s, rows=self._numpy_rows)
             for k, ll in enumerate(lls):
-                out[k][:, self._numpy_rows] = _log_sum_weighted(ll, self.log_w).T
+                out[k][:, self._numpy_rows] = _log_sum_weighted(ll, log_w).T
         return tuple(out)
 
     def row_mixture(self, *lz):

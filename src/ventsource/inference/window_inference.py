@@ -205,7 +205,7 @@ def _row_draws(target, i, gas, h2s, lls, resp, rng, psi):
         cum = np.cumsum(resp, axis=1)
         model = np.minimum((cum < rng.random(n)[:, None] * cum[:, -1:]).sum(axis=1), 2)
     magmatic = model == 0
-    logp = np.stack(lls)[model, np.arange(n)] + target.log_w[None, :]
+    logp = np.stack(lls)[model, np.arange(n)] + target.log_weights(psi)
     logp = logp - special.logsumexp(logp, axis=1, keepdims=True)
     cdf = np.cumsum(np.exp(logp), axis=1)
     k = np.minimum((cdf < rng.random(n)[:, None]).sum(axis=1), K - 1)

@@ -118,9 +118,9 @@ def _magmatic_terms(log_ratios, i, K, r, log_w, cols, n_obs, y, inv_var, k_inv_v
         if not ok:
             ll0_w[q], base[q], m[q] = -np.inf, -np.inf, 0.0
             continue
-        ll0_w[q] = ll0 + log_w[q]
+        ll0_w[q] = ll0 + log_w[i, q]
         m[q] = b / precision[r]
-        base[q] = ll0 + 0.5 * b * m[q] + gauss + log_w[q]
+        base[q] = ll0 + 0.5 * b * m[q] + gauss + log_w[i, q]
 
 
 @njit(cache=True)
@@ -128,12 +128,12 @@ def row_evidences(log_ratios, bad, log_w, cols, n_obs, y, inv_var, k_inv_var, ll
                   mode, v_lo, v_hi, log_width, t0, dt, tables, n_tab, cap):
     """(hypotheses, draws, rows) log Z_h: pressure integrated out by the weights log_w.
 
-    log_ratios (draws * K, forward ratios), bad (draws * K,), log_w (K,); per row r:
+    log_ratios (draws * K, forward ratios), bad (draws * K,), log_w (draws, K); per row r:
     cols/y/inv_var/k_inv_var (r, n_obs[r]), ll0_const, precision; per row and alternative
     hypothesis a: mode, v_lo, v_hi, log_width, t0, dt, tables (r, a, :), n_tab and cap,
     an upper bound of log E[p_v]. A pressure whose bound base + cap lies PRUNE below a
     term already computed adds less than e^-PRUNE and is not evaluated."""
-    n_rows, n_alt, K = cols.shape[0], mode.shape[1], log_w.size
+    n_rows, n_alt, K = cols.shape[0], mode.shape[1], log_w.shape[1]
     n = log_ratios.shape[0] // K
     out = np.empty((n_alt + 1, n, n_rows))
     ll0_w, base, m, terms = np.empty(K), np.empty(K), np.empty(K), np.empty(K)
@@ -219,6 +219,9 @@ class RowPack:
         return np.asarray(marg._log_gauss_avg_prior(m, tau), dtype=float)
 
     def evidences(self, log_ratios, bad, log_w):
+        """log_w: (K,) weights shared by every draw, or (draws, K)."""
+        if log_w.ndim == 1:
+            log_w = np.ascontiguousarray(np.broadcast_to(log_w, (log_ratios.shape[0] // log_w.size, log_w.size)))
         return row_evidences(log_ratios, bad, log_w, self.cols, self.n_obs, self.y, self.inv_var,
                              self.k_inv_var, self.ll0_const, self.precision, self.mode, self.v_lo,
                              self.v_hi, self.log_width, self.t0, self.dt, self.tables, self.n_tab,

@@ -11,7 +11,7 @@ from ventsource.inference.priors.distributions import Distribution, Fixed, Unifo
 from ventsource.inference.priors.fields import PriorFileError
 from ventsource.inference.priors.parameter_table import check_physical_range
 from ventsource.inference.priors.schema import SCHEMA_VERSION
-from ventsource.inference.priors.window_table import PER_ROW_DEFAULT
+from ventsource.inference.priors.window_table import PER_ROW_DEFAULT, PRESSURE_ROWS_DEFAULT
 
 
 class PriorSpec:
@@ -64,6 +64,12 @@ class PriorSpec:
     def window_per_row(self) -> tuple[str, ...]:
         """Parameters that vary from row to row in the window model ([window] per_row)."""
         return PER_ROW_DEFAULT if self.window is None else self.window.per_row
+
+    @property
+    def window_pressure_rows(self) -> str:
+        """How per-row pressures relate in the window model ([window] pressure_rows)."""
+        chosen = None if self.window is None else self.window.pressure_rows
+        return PRESSURE_ROWS_DEFAULT if chosen is None else chosen
 
     # ---- shapes
     @property

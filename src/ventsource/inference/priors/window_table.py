@@ -23,15 +23,20 @@ from ventsource.inference.priors.schema import OPTIONAL_PARAMETERS, REQUIRED_PAR
 PER_ROW_DEFAULT = ("pressure_bar", "scrubbed_so2")
 PER_ROW_ALLOWED = ("pressure_bar", "scrubbed_so2")
 PER_ROW_REQUIRED = "scrubbed_so2"
+PRESSURE_ROWS = ("pooled", "independent")   # how per-row pressures relate (pooled_pressure.py)
+PRESSURE_ROWS_DEFAULT = "pooled"
 
 
 @dataclass(frozen=True)
 class WindowTable:
     per_row: tuple
     source: str | None = None
+    pressure_rows: str | None = None   # None: the default, PRESSURE_ROWS_DEFAULT
 
     def to_dict(self):
         out = {"per_row": list(self.per_row)}
+        if self.pressure_rows is not None:
+            out["pressure_rows"] = self.pressure_rows
         if self.source is not None:
             out["source"] = self.source
         return out
@@ -42,10 +47,14 @@ def parse_window(file: str, data: Mapping, dists: Mapping) -> WindowTable | None
     table = read_table(file, data, "window", "window", False)
     if table is None:
         return None
-    reject_unknown_keys(file, table, ("per_row", "source"), "window")
+    reject_unknown_keys(file, table, ("per_row", "source", "pressure_rows"), "window")
     source = read_string(file, table, "source", "window.source", False)
+    pressure_rows = read_string(file, table, "pressure_rows", "window.pressure_rows", False)
+    if pressure_rows is not None and pressure_rows not in PRESSURE_ROWS:
+        raise key_error(file, "window.pressure_rows",
+                        f"must be one of {', '.join(PRESSURE_ROWS)}, got {pressure_rows!r}")
     if "per_row" not in table:
-        return WindowTable(PER_ROW_DEFAULT, source)
+        return WindowTable(PER_ROW_DEFAULT, source, pressure_rows)
     names = table["per_row"]
     if not isinstance(names, list):
         raise key_error(file, "window.per_row",
@@ -59,7 +68,7 @@ def parse_window(file: str, data: Mapping, dists: Mapping) -> WindowTable | None
         raise key_error(file, "window.per_row",
                         "must include 'scrubbed_so2' (it carries each row's own scrubbing hypothesis)")
     # file order of the allowed names, so equal sets give equal records
-    return WindowTable(tuple(n for n in PER_ROW_ALLOWED if n in names), source)
+    return WindowTable(tuple(n for n in PER_ROW_ALLOWED if n in names), source, pressure_rows)
 
 
 def _check_name(file: str, name, dists: Mapping) -> None:
