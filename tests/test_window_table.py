@@ -225,3 +225,14 @@ def test_window_run_records_its_per_row_set(tmp_path, one_pressure):
     with pytest.raises(InputError, match="--resume with a different"):
         run_series(read_measurements(str(csv)), str(prior), str(out), seed=1, window=30 * 86400.0,
                    options=opts, resume=True)
+
+
+def test_pressure_rows_default_choice_and_bad_value():
+    assert parse_prior(fast_data(), "w.toml").window_pressure_rows == "pooled"
+    spec = with_window({"pressure_rows": "independent"})
+    assert spec.window_pressure_rows == "independent"
+    assert spec.to_dict()["window"]["pressure_rows"] == "independent"
+    with pytest.raises(PriorFileError) as info:
+        with_window({"pressure_rows": "together"})
+    msg = str(info.value)
+    assert "\n" not in msg and "w.toml" in msg and "window.pressure_rows" in msg and "pooled" in msg

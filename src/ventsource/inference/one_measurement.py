@@ -29,7 +29,8 @@ CAUTION = ("Model- and prior-dependent; supports, never replaces, the observator
            "and official warnings.")
 
 PARAMETER_UNITS = {
-    "pressure_bar": "bar", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
+    "pressure_bar": "bar", "pressure_pool_centre": "standard normal score (window model)",
+    "pressure_pool_spread": "1 = independent rows (window model)", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
     "scrubbed_so2": "fraction of SO2 removed", "scrubbed_h2s": "fraction of H2S removed",
     "h2s_return": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by mass", "s_ppm": "ppm by mass",
     "s_partition": "dimensionless (wt frac S in gas / wt frac S in melt)",
