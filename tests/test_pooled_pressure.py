@@ -22,8 +22,12 @@ NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 
 
 @pytest.fixture(scope="module")
-def basalt():
-    spec = load_prior_file(ROOT / "priors" / "arc_basalt.toml")
+def basalt(tmp_path_factory):
+    """arc_basalt with [window] pressure_rows = "pooled" (the default is independent)."""
+    path = tmp_path_factory.mktemp("pooled") / "arc_basalt_pooled.toml"
+    path.write_text((ROOT / "priors" / "arc_basalt.toml").read_text(encoding="utf-8")
+                    + '\n[window]\npressure_rows = "pooled"\n', encoding="utf-8")
+    spec = load_prior_file(path)
     return spec, ForwardModel(spec, ratio_names=NAMES)
 
 

@@ -61,14 +61,18 @@ def window_rows():
     return spec, forward, liks
 
 
-@pytest.mark.parametrize("release", [False, True])
-def test_compiled_row_evidences_match_the_numpy_path(window_rows, tmp_path, release):
+@pytest.mark.parametrize("release,pooled", [(False, False), (True, False), (False, True)])
+def test_compiled_row_evidences_match_the_numpy_path(window_rows, tmp_path, release, pooled):
     spec, forward, liks = window_rows
+    text = (ROOT / "priors" / "arc_basalt.toml").read_text(encoding="utf-8")
     if release:  # loguniform release prior: the tabulated Gauss-Legendre average
-        table = DEMO_RELEASE_PRIOR.read_text(encoding="utf-8").split("\n[hypotheses]\n", 1)[1]
-        path = tmp_path / "rel.toml"
-        path.write_text((ROOT / "priors" / "arc_basalt.toml").read_text(encoding="utf-8")
-                        + "\n[hypotheses]\n" + table, encoding="utf-8")
+        text += "\n[hypotheses]\n" + DEMO_RELEASE_PRIOR.read_text(encoding="utf-8").split(
+            "\n[hypotheses]\n", 1)[1]
+    if pooled:   # per-draw pressure weights (draws, K)
+        text += '\n[window]\npressure_rows = "pooled"\n'
+    if release or pooled:
+        path = tmp_path / "variant.toml"
+        path.write_text(text, encoding="utf-8")
         spec = load_prior_file(path)
     target = WindowTarget(spec, forward, liks, 0.5)
     assert len(target._compiled_rows) == 5

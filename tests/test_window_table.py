@@ -228,10 +228,10 @@ def test_window_run_records_its_per_row_set(tmp_path, one_pressure):
 
 
 def test_pressure_rows_default_choice_and_bad_value():
-    assert parse_prior(fast_data(), "w.toml").window_pressure_rows == "pooled"
-    spec = with_window({"pressure_rows": "independent"})
-    assert spec.window_pressure_rows == "independent"
-    assert spec.to_dict()["window"]["pressure_rows"] == "independent"
+    assert parse_prior(fast_data(), "w.toml").window_pressure_rows == "independent"
+    spec = with_window({"pressure_rows": "pooled"})
+    assert spec.window_pressure_rows == "pooled"
+    assert spec.to_dict()["window"]["pressure_rows"] == "pooled"
     with pytest.raises(PriorFileError) as info:
         with_window({"pressure_rows": "together"})
     msg = str(info.value)
