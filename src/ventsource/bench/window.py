@@ -31,11 +31,22 @@ def _window(spec, forward, n_rows, seed=5):
     return [Measurement(NAMES, obs[i], 0.15, label=f"r{i}") for i in range(n_rows)]
 
 
+def _warm_up_window_kernels(spec, forward):
+    """Load the compiled window loops (closed form and table) before any timing."""
+    from ventsource.inference.likelihood import Likelihood
+    from ventsource.inference.window import So2FreeWindowTarget, WindowTarget
+    liks = [Likelihood(m, prediction_names=NAMES) for m in _window(spec, forward, 2)]
+    psi_rng = np.random.default_rng(0)
+    for target in (WindowTarget(spec, forward, liks, 0.5), So2FreeWindowTarget(spec, forward, liks)):
+        target(target.shared_prior.sample(psi_rng, 4))
+
+
 def bench_window(spec, quick=False):
     from ventsource.forward.model import ForwardModel
     from ventsource.inference.window_inference import infer_window
     forward = ForwardModel(spec, ratio_names=NAMES)
     forward.ratios(spec.full(spec.sample(np.random.default_rng(0), 32)))  # warm up
+    _warm_up_window_kernels(spec, forward)
     sizes = (6, 12) if quick else (6, 12, 24)
     cost, draws = {}, {}
     with warnings.catch_warnings():
