@@ -20,8 +20,8 @@ FLAG_GLOSSARY = {
     "many_failed_states": "More than half of the model evaluations released no gas or failed; "
                           "the prior may be too wide.",
     "mixed_sources": "The rows of this window are better explained each by its own source, or "
-                     "by one source for each half of the window, than by one shared source: "
-                     "the window may span a change of magma.",
+                     "by one source before and another after a change inside the window, than "
+                     "by one shared source: the window may span a change of magma.",
     "source_check_failed": "The change-of-source check of this window could not be computed "
                            "(its SMC runs failed); the window's own results stand unchecked.",
     "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",
