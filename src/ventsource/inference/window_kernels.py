@@ -137,10 +137,10 @@ def row_evidences(log_ratios, bad, log_w, cols, n_obs, y, inv_var, k_inv_var, ll
     n = log_ratios.shape[0] // K
     out = np.empty((n_alt + 1, n, n_rows))
     ll0_w, base, m, terms = np.empty(K), np.empty(K), np.empty(K), np.empty(K)
-    for r in range(n_rows):
-        tau = 1.0 / math.sqrt(precision[r])
-        gauss = _HALF_LOG_2PI + math.log(tau)
-        for i in range(n):
+    for i in range(n):        # draws outer: a draw's gas stays in cache for every row
+        for r in range(n_rows):
+            tau = 1.0 / math.sqrt(precision[r])
+            gauss = _HALF_LOG_2PI + math.log(tau)
             _magmatic_terms(log_ratios, i, K, r, log_w, cols, n_obs, y, inv_var, k_inv_var, ll0_const,
                             precision, gauss, bad, ll0_w, base, m)
             out[0, i, r] = _log_sum(ll0_w, K)
