@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from dynesty_reference import dynesty_log_evidences
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.engines.smc_engine import tempered_smc
 from ventsource.inference.evidence.bridge import Transform
@@ -196,17 +197,7 @@ def test_p_magmatic_calibration(reduced):
 # ---- SMC against emcee + bridge sampling and against dynesty ------------------------------
 
 def _dynesty_p(spec, fw, m):
-    dynesty = pytest.importorskip("dynesty")
-    lik = Likelihood(m, prediction_names=NAMES)
-    log_z = {}
-    for name, pr in (("M1", spec), ("M0", spec.with_fixed("scrubbed_so2", 0.0))):
-        def loglike(x, pr=pr):
-            v = float(lik(fw.ratios(pr.full(np.atleast_2d(x))))[0])
-            return v if np.isfinite(v) else -1e300
-        ns = dynesty.NestedSampler(loglike, pr.prior_transform, len(pr.free_names), nlive=1500,
-                                   rstate=np.random.default_rng(5))
-        ns.run_nested(dlogz=0.01, print_progress=False)
-        log_z[name] = (float(ns.results.logz[-1]), float(ns.results.logzerr[-1]))
+    log_z = dynesty_log_evidences(spec, fw, Likelihood(m, prediction_names=NAMES))
     p, err = posterior_model_probability(*log_z["M0"], *log_z["M1"], spec.p_magmatic)
     return p, err, log_z
 

@@ -31,10 +31,7 @@ def write_table_readme(folder, files, synthetic=False):
     lines += ["Files:"] + [f"* {name}: {text}" for name, text in sorted(known.items())]
     lines += ["", "Flag meanings: docs/flags.md of the ventsource package, and 'flag_glossary' "
               "in hazard.json."]
-    with open(path + ".part", "w") as fh:
-        fh.write("\n".join(lines) + "\n")
-    os.replace(path + ".part", path)
-    return path
+    return _write_lines(path, lines)
 
 
 def write_table_sidecar(table_path, description, synthetic=False):
@@ -45,6 +42,11 @@ def write_table_sidecar(table_path, description, synthetic=False):
     if synthetic:
         lines += ["", "SYNTHETIC: the prior is fictional (made for a demonstration or a test); it "
                   "describes no real volcano."]
+    return _write_lines(path, lines)
+
+
+def _write_lines(path, lines):
+    """The text file in one piece: written beside it, then renamed over it."""
     with open(path + ".part", "w") as fh:
         fh.write("\n".join(lines) + "\n")
     os.replace(path + ".part", path)
