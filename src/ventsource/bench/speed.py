@@ -144,6 +144,8 @@ def _prior_path(name):
 
 
 def run_benchmarks(quick=False, only=None):
+    from ventsource.common.threads import limit_blas_threads
+    limit_blas_threads()  # idle BLAS threads spin and would be counted as CPU seconds
     sections = only or list(SECTIONS)
     cantera = None
     if "speciation" in sections or "forward" in sections:

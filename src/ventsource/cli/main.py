@@ -599,10 +599,10 @@ def main(argv=None):
         if not getattr(args, "handler", None):
             parser.print_help()
             return EXIT_USAGE
-        _resolve_prior_args(args)
         if args.command in ("run", "compare", "demo", "bench"):
             from ventsource.common.threads import single_thread_environment
-            single_thread_environment()  # before NumPy loads: one BLAS thread per process
+            single_thread_environment()  # before NumPy loads (the prior lookup loads it)
+        _resolve_prior_args(args)
         return args.handler(args)
     except InputError as exc:
         print(f"error: {exc}", file=sys.stderr)
