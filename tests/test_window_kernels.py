@@ -78,8 +78,8 @@ def test_compiled_row_evidences_match_the_numpy_path(window_rows, tmp_path, rele
     assert len(target._compiled_rows) == 5
     psi = target.shared_prior.sample(np.random.default_rng(1), 300)
     compiled = target.row_evidences(psi)
-    gas, h2s = target.gas_on_grid(psi)
-    numpy_path = [_log_sum_weighted(ll, target.log_weights(psi)).T
+    gas, h2s, edges = target.gas_on_grid(psi)
+    numpy_path = [_log_sum_weighted(ll, target.log_weights(psi, edges)).T
                   for ll in target.row_log_likelihoods(gas, h2s)]
     assert len(compiled) == (3 if release else 2)
     for got, ref in zip(compiled, numpy_path):
@@ -97,8 +97,8 @@ def test_censored_rows_take_the_numpy_path(window_rows):
     target = WindowTarget(spec, forward, liks[:2] + [cens], 0.5)
     assert target._compiled_rows == [0, 1] and target._numpy_rows == [2]
     psi = target.shared_prior.sample(np.random.default_rng(2), 50)
-    gas, h2s = target.gas_on_grid(psi)
-    ref = [_log_sum_weighted(ll, target.log_weights(psi)).T for ll in target.row_log_likelihoods(gas, h2s)]
+    gas, h2s, edges = target.gas_on_grid(psi)
+    ref = [_log_sum_weighted(ll, target.log_weights(psi, edges)).T for ll in target.row_log_likelihoods(gas, h2s)]
     for got, r in zip(target.row_evidences(psi), ref):
         f = np.isfinite(r)
         assert np.allclose(got[f], r[f], rtol=0, atol=1e-9)

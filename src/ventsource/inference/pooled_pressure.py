@@ -62,10 +62,14 @@ def normal_scores(log_w):
     return special.ndtri(np.clip(u, 1e-12, 1.0 - 1e-12))
 
 
-def pooled_log_weights(log_w, z, theta):
-    """(n, K) log weights of each row's pressure given the copula's c and s (last columns)."""
+def pooled_tilt(z, theta):
+    """(n, K) log of N(z; sqrt(1 - s^2) c, s^2) / phi(z) for z (K,) or (n, K)."""
     centre, spread = theta[:, -2:-1], theta[:, -1:]
     shrink = np.sqrt(1.0 - spread * spread)
-    tilt = -0.5 * ((z[None, :] - shrink * centre) / spread) ** 2 - np.log(spread) + 0.5 * z[None, :] ** 2
-    out = log_w[None, :] + tilt
+    return -0.5 * ((z - shrink * centre) / spread) ** 2 - np.log(spread) + 0.5 * z ** 2
+
+
+def pooled_log_weights(log_w, z, theta):
+    """(n, K) log weights of each row's pressure given the copula's c and s (last columns)."""
+    out = log_w[None, :] + pooled_tilt(z[None, :], theta)
     return out - special.logsumexp(out, axis=1, keepdims=True)

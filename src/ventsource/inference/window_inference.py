@@ -200,7 +200,7 @@ def _rhat(theta):
 def _row_results(target, res, measurements, rng, opt):
     R, N, d = res.theta.shape
     psi = res.theta.reshape(R * N, d)
-    gas, h2s = target.gas_on_grid(psi)
+    gas, h2s, edges = target.gas_on_grid(psi)
     lls = target.row_log_likelihoods(gas, h2s)
     lz = [res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)]
     mix = target.row_mixture(*lz)
@@ -209,13 +209,14 @@ def _row_results(target, res, measurements, rng, opt):
     for i, meas in enumerate(measurements):
         p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)
                            for k in range(resp.shape[2])], axis=1)            # (R, H)
-        draws = _row_draws(target, i, gas, h2s, [ll[i] for ll in lls], resp[:, i], rng, psi)
+        draws = _row_draws(target, i, (gas, h2s, edges), [ll[i] for ll in lls], resp[:, i], rng, psi)
         out.append(_summarise_row(meas, target, i, p_runs, draws, rng, opt))
     return out
 
 
-def _row_draws(target, i, gas, h2s, lls, resp, rng, psi):
+def _row_draws(target, i, grid, lls, resp, rng, psi):
     """One (model, pressure, s or r, predicted ratios) draw per shared draw."""
+    gas, h2s, edges = grid
     n, K, _ = gas.shape
     resp = np.nan_to_num(resp)
     if resp.shape[1] == 2:   # the two-hypothesis draws, random stream as before
@@ -224,7 +225,7 @@ def _row_draws(target, i, gas, h2s, lls, resp, rng, psi):
         cum = np.cumsum(resp, axis=1)
         model = np.minimum((cum < rng.random(n)[:, None] * cum[:, -1:]).sum(axis=1), 2)
     magmatic = model == 0
-    logp = np.stack(lls)[model, np.arange(n)] + target.log_weights(psi)
+    logp = np.stack(lls)[model, np.arange(n)] + target.log_weights(psi, edges)
     logp = logp - special.logsumexp(logp, axis=1, keepdims=True)
     cdf = np.cumsum(np.exp(logp), axis=1)
     k = np.minimum((cdf < rng.random(n)[:, None]).sum(axis=1), K - 1)
@@ -232,7 +233,7 @@ def _row_draws(target, i, gas, h2s, lls, resp, rng, psi):
     g = gas[rows, k]
     ok = np.isfinite(g).all(axis=1)
     g = np.where(ok[:, None], g, 1.0)
-    pressure = target.row_pressures(psi, k, rng)  # the shared draw's own when pressure is shared
+    pressure = target.row_pressures(psi, k, rng, edges)  # the draw's own when pressure is shared
     h = h2s[rows] if np.ndim(h2s) else h2s
     s = np.where(model == 1, target.marginals[i].sample(g, rng, h), 0.0)
     gas_out = scrub(g, s, target.forward.product, 0.0, h)
