@@ -26,12 +26,13 @@ def demo_files(tmp_path_factory):
     return pd.read_csv(path, dtype=str), pd.read_csv(out / "truth.csv"), path
 
 
-def test_release_prior_is_the_fast_prior_plus_hypotheses():
+def test_release_prior_is_the_fast_prior_plus_hypotheses_and_pooled_pressures():
     with open(ROOT / "priors" / "demo_mount_kerrow_fast.toml", "rb") as fh:
         fast = tomllib.load(fh)
     with open(DEMO_RELEASE_PRIOR, "rb") as fh:
         release = tomllib.load(fh)
-    assert set(release) - set(fast) == {"hypotheses"}
+    assert set(release) - set(fast) == {"hypotheses", "window"}
+    assert release["window"] == {"pressure_rows": "pooled"}
     for table in set(fast) - {"metadata"}:
         assert release[table] == fast[table], table
     spec = load_prior_file(DEMO_RELEASE_PRIOR)
