@@ -103,7 +103,7 @@ class InferenceResult:
         if idata is None:
             raise InferenceError(f"no posterior for model {model!r}")
         post = idata.posterior
-        rhat = az.rhat(post)
+        rhat = _rhat_by_parameter(post, self.engine)
         ess_b = az.ess(post, method="bulk")
         ess_t = az.ess(post, method="tail")
         rows = []
@@ -112,7 +112,7 @@ class InferenceResult:
             rows.append({"parameter": v, "units": post[v].attrs.get("units", ""),
                          "median": float(np.median(x)), "5%": float(np.quantile(x, 0.05)),
                          "95%": float(np.quantile(x, 0.95)), "mean": float(x.mean()),
-                         "sd": float(x.std(ddof=1)), "r_hat": float(rhat[v]),
+                         "sd": float(x.std(ddof=1)), "r_hat": rhat[v],
                          "ess_bulk": float(ess_b[v]), "ess_tail": float(ess_t[v])})
         return pd.DataFrame(rows).set_index("parameter")
 
@@ -390,3 +390,16 @@ def _model_probabilities(runs, prior, forward, pi0, seed, opt):
         probs = [p_mag, 1.0 - p_mag]
     budget = hypotheses_emcee.budget_draws(runs, probs, prior, forward, opt["scrub_name"], seed)
     return p_mag, p_err, hyp, budget
+
+
+def _rhat_by_parameter(post, engine):
+    """R-hat per parameter: split R-hat over emcee chains, between-run R-hat over SMC runs
+    (whose particles are exchangeable, engines/run_rhat.py)."""
+    import arviz as az
+    if engine != "smc":
+        rh = az.rhat(post)
+        return {v: float(rh[v]) for v in post.data_vars}
+    from ventsource.inference.engines.run_rhat import between_run_rhat
+    return {v: between_run_rhat(post[v].values.reshape(post.sizes["chain"], post.sizes["draw"], 1))
+            for v in post.data_vars}
+

@@ -1,7 +1,7 @@
 """infer() with the SMC engine: P(M0), evidences, both posteriors, flags.
 
-Diagnostics follow the engine's nature: rank-normalised split R-hat across the
-independent runs (Vehtari et al. 2021, Bayesian Analysis 16:667; flag above
+Diagnostics follow the engine's nature: rank-normalised R-hat across the
+independent runs, not split (engines/run_rhat.py; Vehtari et al. 2021; flag above
 smc_rhat_max = 1.01), distinct particles and the last stage's Kish ESS per run
 (not the ArviZ ESS of a resampled population, which overstates it), and the
 P(M0) Monte Carlo error from the between-run spread (sd / sqrt(runs)).
@@ -36,10 +36,8 @@ def _as_sample(draws, names, res, stats):
 
 
 def _rhat_max(theta):
-    import arviz as az
-    post = {f"x{j}": theta[:, :, j] for j in range(theta.shape[2])}
-    rh = az.rhat(az.convert_to_dataset(post))
-    return max(float(rh[v]) for v in rh.data_vars)
+    from ventsource.inference.engines.run_rhat import between_run_rhat
+    return between_run_rhat(theta)
 
 
 def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):

@@ -195,9 +195,8 @@ def _split_source_log10_bf(prior, forward, liks, seed, opt):
 
 
 def _rhat(theta):
-    import arviz as az
-    rh = az.rhat(az.convert_to_dataset({f"x{j}": theta[:, :, j] for j in range(theta.shape[2])}))
-    return max(float(rh[v]) for v in rh.data_vars)
+    from ventsource.inference.engines.run_rhat import between_run_rhat
+    return between_run_rhat(theta)
 
 
 def _row_results(target, res, measurements, rng, opt):
