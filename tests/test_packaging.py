@@ -116,3 +116,12 @@ def test_editable_install_finds_shipped_priors(tmp_path):
 
 def test_python_api_takes_a_shipped_name_too():
     assert load_prior_file("rhyolite_silicic").path == resolve_prior("rhyolite_silicic")
+
+
+def test_package_version_is_the_project_version():
+    """The version a run records (and --resume compares) is the one the wheel carries."""
+    import tomllib
+
+    import ventsource
+    with open(ROOT / "pyproject.toml", "rb") as fh:
+        assert ventsource.__version__ == tomllib.load(fh)["project"]["version"]
