@@ -153,7 +153,9 @@ def test_cli_emcee_run_with_release_prior_writes_three_probabilities(tmp_path, c
     # prior file: p_released 0.2, p_magmatic 0.5 -> 0.4, 0.4, 0.2 (docs/prior-files.md)
     assert hz["priors"][0]["prior_model_probabilities"] == pytest.approx([0.4, 0.4, 0.2])
     assert hz["priors"][0]["p_magmatic_prior"] == pytest.approx(0.4)
-    assert [r["p_released"] for r in hz["rows"]] == pytest.approx(table["p_released"].tolist(), abs=1e-6)
+    from ventsource.workflow.hazard_format import round_probability  # hazard.json's rounding rule
+    expected = [round_probability(p, e)[0] for p, e in zip(table["p_released"], table["p_released_error"])]
+    assert [r["p_released"] for r in hz["rows"]] == pytest.approx(expected, abs=1e-9)
     assert hz["rows"][0]["budget_basis"] == "CO2 flux"   # budget draws came with the rows
     assert (out / "figures" / "series.png").is_file()     # the series figure was drawn
 

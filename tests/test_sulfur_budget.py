@@ -167,6 +167,26 @@ def test_three_probabilities_sum_to_one_with_errors(tmp_path):
     assert set(HYPOTHESIS_COLUMNS + BUDGET_COLUMNS) <= set(table.columns)
 
 
+def test_hazard_json_with_fluxes_and_three_hypotheses_validates(tmp_path):
+    """The published schema (docs/hazard.schema.json) covers the three probabilities and
+    the budget, checked by the general-purpose jsonschema library; the budget carries its
+    stated limits and is rounded to 3 significant digits."""
+    import jsonschema
+    data = make_sulfur_series(tmp_path / "d", n_rows=4)
+    run_series(read_measurements(data), str(RELEASE_PRIOR), str(tmp_path / "o"), seed=1,
+               options=dict(n_particles=60, n_runs=2, max_moves=8))
+    doc = json.loads((tmp_path / "o" / "hazard.json").read_text())
+    schema = json.loads((ROOT / "docs" / "hazard.schema.json").read_text())
+    jsonschema.validate(doc, schema)
+    assert "reads as magmatic" in doc["sulfur_budget"]["limits"]
+    for row in doc["rows"]:
+        x = row["magmatic_so2_flux_tpd_median"]
+        assert x == float(f"{x:.3g}")
+    bad = dict(doc, rows=[dict(doc["rows"][0], p_released=1.5)])
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(bad, schema)
+
+
 # ---- slow: the synthetic Mount Kerrow sulfur series under the window model
 @pytest.fixture(scope="module")
 def kerrow_windows(tmp_path_factory):

@@ -15,7 +15,7 @@ import os
 ROUNDING_RULE = ("Probabilities are rounded to the decimal place of the first significant digit of "
                  "their Monte Carlo error (between 1 and 4 decimals; 2 decimals when no error is "
                  "estimated); the error is given to the same place; scrubbed-fraction quantiles "
-                 "to 2 decimals.")
+                 "to 2 decimals; sulfur-budget fluxes and masses to 3 significant digits.")
 
 
 def _finite(value):
@@ -35,6 +35,13 @@ def round_probability(value, error):
     v = round(float(value), d) if _finite(value) else None
     e = max(round(float(error), d), 10.0 ** -d) if _finite(error) else None
     return v, e
+
+
+def round_tonnes(value):
+    """Fluxes and sulfur masses to 3 significant digits (their bands span tens of %)."""
+    if not _finite(value) or value == 0:
+        return value if _finite(value) else None
+    return round(float(value), 2 - int(math.floor(math.log10(abs(value)))))
 
 
 def round_fraction(value):
