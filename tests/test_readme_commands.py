@@ -4,6 +4,7 @@ Slow (it creates a virtual environment, installs the package from the package
 index, runs the demo and the test suite): `python -m pytest -m slow
 tests/test_readme_commands.py`. Needs network access for pip.
 """
+import json
 import os
 import re
 import shutil
@@ -57,6 +58,10 @@ def test_readme_commands_in_order(tmp_path):
                                   text=True)
             assert done.returncode == 0, f"{line}\n{done.stdout[-2000:]}\n{done.stderr[-2000:]}"
     assert (work / "demo-output" / "hazard.json").exists()
+    import jsonschema  # the demo's hazard files follow the published schema
+    schema = json.loads((ROOT / "docs" / "hazard.schema.json").read_text())
+    for doc in (work / "demo-output" / "hazard.json", work / "demo-output" / "row_by_row" / "hazard.json"):
+        jsonschema.validate(json.loads(doc.read_text()), schema)
     assert (work / "results" / "summary.csv").exists()
     assert (work / "results-30d" / "summary.csv").exists()
     assert (work / "cmp" / "compare.csv").exists()
