@@ -13,7 +13,8 @@ with L1_i the scrubbed fraction integrated out (so2_marginal.py) and the pressur
 integral done by quadrature: one batch of forward solves on a grid of pressures
 (uniform in ln P, which resolves the fast change of the gas at low pressure) serves
 every row; the gas composition is interpolated linearly in ln(mole fraction)
-between the solved pressures onto a finer quadrature grid. The cost per draw of
+between the solved pressures onto a finer quadrature grid, up to the pressure where
+a draw's gas ends (saturation_edge.py). The cost per draw of
 psi does not grow with the number of rows beyond the cheap per-row likelihoods.
 
 The prior file's [window] table may make pressure shared (per_row without
@@ -185,7 +186,7 @@ class WindowTarget:
         return e, ln_p
 
     def _gas_at_shared_pressure(self, full):
-        """(gas (n, 1, species), h2s_return): the pressure is a shared parameter in full."""
+        """(gas (n, 1, species), h2s_return, None): the pressure is a shared parameter."""
         gas = self._solve(full)
         h2s = full[:, self._j_h] if self._j_h is not None else 1.0
         return gas[:, None, :], h2s, None
