@@ -21,6 +21,7 @@ from ventsource.inference.option_rules import OptionError, check_options
 from ventsource.inference.model_choice import (PredictiveCheck, model_flags, posterior_model_probability,
                            predictive_check, probability_below, release_flags)
 from ventsource.inference.engines.emcee_engine import LogPosterior, SampleResult, SamplerError, sample_posterior
+from ventsource.inference.engines.run_rhat import between_run_rhat
 
 __all__ = ["infer", "InferenceResult", "ModelRun", "prior_monte_carlo_evidence", "CAUTION",
            "PARAMETER_UNITS", "InferenceError"]
@@ -399,7 +400,6 @@ def _rhat_by_parameter(post, engine):
     if engine != "smc":
         rh = az.rhat(post)
         return {v: float(rh[v]) for v in post.data_vars}
-    from ventsource.inference.engines.run_rhat import between_run_rhat
     return {v: between_run_rhat(post[v].values.reshape(post.sizes["chain"], post.sizes["draw"], 1))
             for v in post.data_vars}
 

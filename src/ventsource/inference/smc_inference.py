@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from ventsource.inference.engines.emcee_engine import SampleResult
+from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.inference.engines.smc_engine import SMCError
 from ventsource.inference.model_choice import (model_flags, predictive_check, probability_below,
                                                release_flags)
@@ -33,11 +34,6 @@ def _as_sample(draws, names, res, stats):
                         acceptance_fraction=np.full(R, float(np.mean(res.acceptance or [0.0]))),
                         n_forward_evals=res.n_evals, n_failed_states=res.n_failed, n_init_failed=0,
                         stats=dict(stats))
-
-
-def _rhat_max(theta):
-    from ventsource.inference.engines.run_rhat import between_run_rhat
-    return between_run_rhat(theta)
 
 
 def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
@@ -65,7 +61,7 @@ def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
             "distinct_particles": res.distinct.tolist(), "p_magmatic_per_run": p0_runs.tolist(),
             "log_z_per_run": res.log_z.tolist(), "kish_ess_if_scrubbed": d1.kish_ess.round(1).tolist(),
             "kish_ess_magmatic": d0.kish_ess.round(1).tolist(),
-            "rhat_max": _rhat_max(res.theta)}
+            "rhat_max": between_run_rhat(res.theta)}
     flags = _flags(diag, p_err, opt, res)
     check1 = predictive_check(lik, d1.predictions, np.random.default_rng(seeds[2]), opt["alpha"])
     check0 = predictive_check(lik, d0.predictions, np.random.default_rng(seeds[3]), opt["alpha"])

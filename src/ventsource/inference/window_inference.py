@@ -28,6 +28,7 @@ import numpy as np
 from scipy import special
 
 from ventsource.ascent import observables
+from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.ascent.scrubbing import scrub
 from ventsource.inference.engines.smc_engine import SMCError, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
@@ -126,7 +127,7 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
         start = time.process_time()
         split_bf, split_err = _split_source_log10_bf(prior, forward, target_liks, seeds[3], opt)
         check_cpu = time.process_time() - start
-    rhat_max = _rhat(res.theta)
+    rhat_max = between_run_rhat(res.theta)
     split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
     flags = _window_flags(res, rhat_max, bf, split_bf, opt, split_ran)
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
@@ -194,15 +195,11 @@ def _split_source_log10_bf(prior, forward, liks, seed, opt):
     return float((lz_one - lz_change) / np.log(10.0)), float(np.sqrt(var) / np.log(10.0))
 
 
-def _rhat(theta):
-    from ventsource.inference.engines.run_rhat import between_run_rhat
-    return between_run_rhat(theta)
-
-
 def _row_results(target, res, measurements, rng, opt):
     R, N, d = res.theta.shape
     psi = res.theta.reshape(R * N, d)
     gas, h2s, edges = target.gas_on_grid(psi)
+    grid = (gas, h2s, edges, target.log_weights(psi, edges))   # shared by every row
     lls = target.row_log_likelihoods(gas, h2s)
     lz = [res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)]
     mix = target.row_mixture(*lz)
@@ -211,14 +208,14 @@ def _row_results(target, res, measurements, rng, opt):
     for i, meas in enumerate(measurements):
         p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)
                            for k in range(resp.shape[2])], axis=1)            # (R, H)
-        draws = _row_draws(target, i, (gas, h2s, edges), [ll[i] for ll in lls], resp[:, i], rng, psi)
+        draws = _row_draws(target, i, grid, [ll[i] for ll in lls], resp[:, i], rng, psi)
         out.append(_summarise_row(meas, target, i, p_runs, draws, rng, opt))
     return out
 
 
 def _row_draws(target, i, grid, lls, resp, rng, psi):
     """One (model, pressure, s or r, predicted ratios) draw per shared draw."""
-    gas, h2s, edges = grid
+    gas, h2s, edges, log_w = grid
     n, K, _ = gas.shape
     resp = np.nan_to_num(resp)
     if resp.shape[1] == 2:   # the two-hypothesis draws, random stream as before
@@ -227,7 +224,7 @@ def _row_draws(target, i, grid, lls, resp, rng, psi):
         cum = np.cumsum(resp, axis=1)
         model = np.minimum((cum < rng.random(n)[:, None] * cum[:, -1:]).sum(axis=1), 2)
     magmatic = model == 0
-    logp = np.stack(lls)[model, np.arange(n)] + target.log_weights(psi, edges)
+    logp = np.stack(lls)[model, np.arange(n)] + log_w
     logp = logp - special.logsumexp(logp, axis=1, keepdims=True)
     cdf = np.cumsum(np.exp(logp), axis=1)
     k = np.minimum((cdf < rng.random(n)[:, None]).sum(axis=1), K - 1)

@@ -39,8 +39,10 @@ def round_probability(value, error):
 
 def round_tonnes(value):
     """Fluxes and sulfur masses to 3 significant digits (their bands span tens of %)."""
-    if not _finite(value) or value == 0:
-        return value if _finite(value) else None
+    if not _finite(value):
+        return None
+    if value == 0:
+        return 0.0
     return round(float(value), 2 - int(math.floor(math.log10(abs(value)))))
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ventsource.workflow.hazard_format import round_probability, round_tonnes
 from ventsource.workflow.sulfur_budget import BUDGET_COLUMNS, series_budget
 
 HYPOTHESIS_COLUMNS = ["p_scrubbed", "p_scrubbed_error", "p_released", "p_released_error"]
@@ -94,7 +95,6 @@ BUDGET_LIMITS = ("Scrubbing within the ratio errors (up to about 35 % of the SO2
 
 def _round_row(out):
     """The hazard rounding rule (hazard_format.py) for the hypotheses and the budget."""
-    from ventsource.workflow.hazard_format import round_probability, round_tonnes
     for name in ("p_scrubbed", "p_released"):
         if name in out:
             out[name], out[f"{name}_error"] = round_probability(out[name], out.get(f"{name}_error"))
