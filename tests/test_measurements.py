@@ -123,3 +123,38 @@ def test_per_column_default_sigma(tmp_path):
     assert s.measurements[1].relative_sigma.tolist() == [0.25, 0.1, 0.3]
     with pytest.raises(InputError, match="not a ratio column"):
         read_measurements(write(tmp_path, GOOD), default_sigma={"CO/CO2": 0.3})
+
+
+@pytest.mark.parametrize("header, why", [
+    ("SO2/CO2,SO2 / CO2", "same ratio as column 'SO2/CO2'"),
+    ("SO2/CO2,CO2/SO2", "inverse of column 'SO2/CO2'"),
+    ("SO2/SO2,H2S/SO2", "a gas to itself"),
+    ("ST/CO2,SO2+H2S/CO2", "same ratio as column 'ST/CO2'"),   # ST = SO2 + H2S by definition
+])
+def test_a_ratio_counted_twice_is_refused(tmp_path, header, why):
+    # one measurement entering the likelihood twice would halve its error (common practice, no source)
+    p = write(tmp_path, f"id,time,{header}\na,2026-03-14T10:20:00Z,0.5,0.4\n")
+    with pytest.raises(InputError, match="row 1") as exc:
+        read_measurements(p)
+    assert why in str(exc.value)
+
+
+@pytest.mark.parametrize("cell", ["0_70351", "\uff11\uff12", "\u0663", "0x10", "1,5"])
+def test_only_plain_ascii_numbers_are_read(tmp_path, cell):
+    # Python's float() reads '0_70351' as 70351 and full-width or Arabic-Indic digits as numbers
+    p = write(tmp_path, f'id,time,SO2/CO2,H2S/SO2\na,2026-03-14T10:20:00Z,"{cell}",0.4\n')
+    with pytest.raises(InputError, match=r"row 2, column 'SO2/CO2'.*not a number"):
+        read_measurements(p)
+
+
+def test_sigma_cells_take_plain_numbers_only(tmp_path):
+    p = write(tmp_path, "id,time,SO2/CO2,sigma SO2/CO2\na,2026-03-14T10:20:00Z,0.5,0_2\n")
+    with pytest.raises(InputError, match=r"row 2, column 'sigma SO2/CO2'"):
+        read_measurements(p)
+
+
+@pytest.mark.parametrize("cell", ["NA", "nan", "N/A", "", "1.5e-1", "+.25", "2."])
+def test_missing_markers_and_plain_numbers_still_read(tmp_path, cell):
+    p = write(tmp_path, f"id,time,SO2/CO2,H2S/SO2\na,2026-03-14T10:20:00Z,{cell},0.4\n")
+    v = read_measurements(p).measurements[0].values[0]
+    assert np.isnan(v) if cell.upper() in ("NA", "NAN", "N/A", "") else v == float(cell)

@@ -140,6 +140,9 @@ def run(args):
         raise InputError("--window-figures needs --figures DIR")
     if os.path.isdir(args.out):
         raise InputError(f"--out {args.out}: is a directory; give a CSV file name")
+    from ventsource.workflow.output_guard import refuse_input_as_output
+    from ventsource.workflow.plume.writer import sidecar_paths
+    refuse_input_as_output((args.out, *sidecar_paths(args.out)), (args.raw,))
     out = run_ratios(args.raw, args.out, settings, unit_overrides=_units(args.units),
                      chunk_rows=args.chunk_rows, assume_utc=args.assume_utc, figure_dir=args.figures,
                      window_figures=args.window_figures)

@@ -10,12 +10,14 @@ Statist. Theory Meth. 18, 3851-3874): 1 for identical marginals, 0 for disjoint
 ones; estimated here from histograms on a shared grid.
 """
 import itertools
+import re
 import os
 
 import numpy as np
 import pandas as pd
 
 from ventsource.common.caution import CAUTION
+from ventsource.common.errors import InputError
 from ventsource.workflow.series import row_key, run_series
 
 
@@ -40,6 +42,16 @@ def _posterior(out_dir, rid):
     return az.from_netcdf(os.path.join(out_dir, "rows", f"{row_key(rid)}.nc")).posterior
 
 
+_FOLDER_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9_.+-]{0,99}")
+
+
+def _check_folder_name(prior_path, name):
+    """A prior's name becomes OUT/runs/NAME: a plain name, so that no run lands outside OUT."""
+    if _FOLDER_NAME.fullmatch(name or "") is None or ".." in name:
+        raise InputError(f"{prior_path}: metadata.name '{name}' names the prior's run folder: use "
+                         "letters, digits, '_', '-', '.', '+' only (no path, no leading '.')")
+
+
 def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume=False,
                 options=None, dask_scheduler=None, dask_local=False, progress_stream=None,
                 window=None, oversubscribe=False):
@@ -47,6 +59,11 @@ def run_compare(series_by_prior, prior_paths, out_dir, seed=0, workers=1, resume
     from ventsource.inference.priors import load_prior_file
     specs = [load_prior_file(p) for p in prior_paths]
     names = [s.name for s in specs]
+    for path, name in zip(prior_paths, names):
+        _check_folder_name(path, name)
+    if len(set(names)) < len(names):
+        raise InputError("two prior files share the metadata.name "
+                         f"'{next(n for n in names if names.count(n) > 1)}'; each needs its own")
     run_dirs = {n: os.path.join(out_dir, "runs", n) for n in names}
     results = {}
     for k, (path, spec) in enumerate(zip(prior_paths, specs)):

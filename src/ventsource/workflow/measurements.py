@@ -31,6 +31,7 @@ import pandas as pd
 from ventsource.common.errors import InputError
 from ventsource.inference.likelihood import Measurement
 from ventsource.ascent.observables import ratio_weights
+from ventsource.chemistry.species import INDEX
 from ventsource.workflow.flux_columns import FluxColumnReader
 
 SIGMA_PREFIX = "sigma "
@@ -126,6 +127,12 @@ def _check_id(row_id, path, row):
                                        f"U+{ord(ch):04X}; identifiers are one line of printable text")
 
 
+# A number as written in a CSV file: ASCII digits, optional sign, point and exponent;
+# Python's float() also reads '0_70351' as 70351 and other scripts' digits.
+_PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:inf|infinity|nan)",
+                           re.IGNORECASE)
+
+
 def _parse_cell(text, path, row, column):
     s = text.strip()
     if s == "" or s.upper() in ("NA", "NAN", "N/A"):
@@ -134,10 +141,9 @@ def _parse_cell(text, path, row, column):
     if s[0] in "<>":
         flag = -1 if s[0] == "<" else 1
         s = s[1:].strip()
-    try:
-        v = float(s)
-    except ValueError:
+    if _PLAIN_NUMBER.fullmatch(s) is None:  # float() would take '0_5', full-width digits
         _fail(path, row, column, f"'{text}' is not a number, '<x' or '>x'")
+    v = float(s)
     if not math.isfinite(v) or v <= 0:
         _fail(path, row, column, f"'{text}': a molar ratio must be a positive finite number")
     return v, flag
@@ -209,6 +215,7 @@ def _read_table(reader, path, per_column, fallback):
         except InputError as exc:
             _fail(path, 1, col, f"not a ratio column ({exc})")
         ratio_cols.append(col)
+    _check_distinct_ratios(path, ratio_cols)
     flux.check_has_ratios(ratio_cols)
     if not ratio_cols:
         _fail(path, 1, None, "no ratio columns (e.g. SO2/CO2, H2S/SO2)")
@@ -228,6 +235,40 @@ def _read_table(reader, path, per_column, fallback):
     recorded = dict(per_column, **{"*": fallback}) if per_column else fallback
     return MeasurementSeries(str(path), ids, times, tuple(ratio_cols), rows, default_sigma=recorded,
                              windows=windows, fluxes=flux.series())
+
+
+def _check_distinct_ratios(path, ratio_cols):
+    """Refuse a ratio of a gas to itself, the same ratio written twice ('SO2/CO2' and
+    'SO2 / CO2') and a ratio beside its inverse: each would count one measurement twice."""
+    seen = {}
+    for col in ratio_cols:
+        top, bottom = ratio_weights(col)
+        if np.array_equal(top, bottom):
+            _fail(path, 1, col, "a ratio of a gas to itself carries no information")
+        key, inverse = (top.tobytes(), bottom.tobytes()), (bottom.tobytes(), top.tobytes())
+        if key in seen:
+            _fail(path, 1, col, f"the same ratio as column '{seen[key]}'; keep one of them")
+        if inverse in seen:
+            _fail(path, 1, col, f"the inverse of column '{seen[inverse]}'; keep one of them")
+        seen[key] = col
+
+
+_SO2_BEARING = "a ratio with SO2 (SO2/CO2, H2S/SO2, CO2/ST, ...)"
+
+
+def _check_rows_speak_to_so2(path, ratio_cols, values, rownums):
+    """Scrubbing acts on SO2: a row without an SO2-bearing ratio has M0 and M1 fit it
+    equally, and would read as 'magmatic' on no evidence; it is refused, never guessed."""
+    so2 = INDEX["SO2"]
+    bearing = [j for j, c in enumerate(ratio_cols) if any(w[so2] for w in ratio_weights(c))]
+    if not bearing:
+        _fail(path, 1, None, f"no column is {_SO2_BEARING}: the gas's source cannot be told from "
+                             "scrubbing without one")
+    silent = np.isnan(values[:, bearing]).all(axis=1)
+    if silent.any():
+        _fail(path, rownums[int(np.argmax(silent))], None,
+              f"no value for {_SO2_BEARING}: such a row cannot speak to scrubbing; "
+              "fill one or remove the row")
 
 
 def _read_rows(reader, path, header, ratio_cols, sigma_cols, per_column, fallback, windows=None,
@@ -277,6 +318,7 @@ def _read_rows(reader, path, header, ratio_cols, sigma_cols, per_column, fallbac
     missing = np.isnan(values).all(axis=1) if n else np.zeros(0, bool)
     if missing.any():
         _fail(path, rownums[int(np.argmax(missing))], None, "every ratio is missing")
+    _check_rows_speak_to_so2(path, ratio_cols, values, rownums)
     return ids, _utc_times(times, rownums, path), values, flags, sigmas
 
 
@@ -311,10 +353,9 @@ def _sigma_column(raw, rownums, path, col, default):
 
 
 def _parse_sigma(raw, path, row, col):
-    try:
-        sig = float(raw)
-    except ValueError:
+    if _PLAIN_NUMBER.fullmatch(raw.strip()) is None:
         _fail(path, row, SIGMA_PREFIX + col, f"'{raw}' is not a number")
+    sig = float(raw)
     if not (math.isfinite(sig) and 0 < sig <= 5):
         _fail(path, row, SIGMA_PREFIX + col, f"relative 1-sigma must be in (0, 5], got '{raw}'")
     return sig

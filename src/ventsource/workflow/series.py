@@ -38,6 +38,7 @@ from ventsource.common.errors import InputError
 from ventsource.inference.priors.hypotheses import prior_model_probabilities
 from ventsource.workflow.hypothesis_rows import (DRAWS_KEY, add_budget, compact_draws, extend_hazard,
                                                  extra_columns, hypothesis_fields)
+from ventsource.workflow.output_guard import refuse_foreign_run_folder
 from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
                                          window_summary_columns)
 
@@ -380,6 +381,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     groups = assign_windows(series, window)  # checked before anything is written
     settings["window_per_row"] = None if groups is None else list(spec.window_per_row)
     _check_output_folder(out_dir)
+    refuse_foreign_run_folder(out_dir, (series.path, prior_path))
     _refuse_if_in_use(out_dir)
     _earlier_run(out_dir, settings, resume)
     with _FolderLock(out_dir):
@@ -549,7 +551,9 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
             if cluster is not None:
                 cluster.close()
     elif todo and n_workers > 1:
-        with ProcessPoolExecutor(max_workers=n_workers) as pool:
+        from ventsource.common.worker_death import die_with_parent
+        with ProcessPoolExecutor(max_workers=n_workers, initializer=die_with_parent,
+                                 initargs=(os.getpid(),)) as pool:
             futures = [pool.submit(work, job) for job in todo]
             try:
                 for fut in as_completed(futures):

@@ -33,7 +33,10 @@ def parse_window_option(text):
     if not m or float(m.group(1)) <= 0:
         raise InputError(f"--window '{text}': give 1 (row by row), a time span such as 30d, 12h, "
                          f"2w, or 'column' (the measurement file's window column)")
-    return float(m.group(1)) * _UNITS_S[m.group(2)]
+    seconds = float(m.group(1)) * _UNITS_S[m.group(2)]
+    if seconds < 1:  # row times have one-second resolution
+        raise InputError(f"--window '{text}': a window spans at least 1 s (times are read to the second)")
+    return seconds
 
 
 def assign_windows(series, window):

@@ -1,0 +1,95 @@
+"""Hostile inputs: each is refused with one line naming file, row and column, exit status 2,
+and leaves every input file and the output folder as they were (common practice, no source).
+
+The corpus is tests/data/hostile/*.case: line 1 the command (with {data} and {out}),
+line 2 the text the error must contain, the rest the measurement file.
+"""
+import hashlib
+import os
+import shutil
+from pathlib import Path
+
+import pytest
+
+from ventsource.cli.main import main
+
+ROOT = Path(__file__).resolve().parents[1]
+CORPUS = sorted((ROOT / "tests" / "data" / "hostile").glob("*.case"))
+RAW = ROOT / "examples" / "mount_kerrow_raw_sensors_synthetic.csv"
+GOOD = ("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n"
+        "a,2026-01-01T00:00:00Z,0.5,0.3,30\n")
+
+
+def tree_state(folder):
+    """{relative path: sha256} of every file under folder (None if it does not exist)."""
+    if not os.path.exists(folder):
+        return None
+    out = {}
+    for base, _, files in os.walk(folder):
+        for f in files:
+            p = os.path.join(base, f)
+            out[os.path.relpath(p, folder)] = hashlib.sha256(Path(p).read_bytes()).hexdigest()
+    return out
+
+
+def refused(argv, capsys, expected, watched):
+    before = {w: tree_state(w) for w in watched}
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "Traceback" not in err, err
+    assert expected in err, err
+    assert {w: tree_state(w) for w in watched} == before
+    return err
+
+
+def test_the_corpus_is_there():
+    assert len(CORPUS) >= 15
+
+
+@pytest.mark.parametrize("case", CORPUS, ids=[c.stem for c in CORPUS])
+def test_every_corpus_case_is_refused_cleanly(case, tmp_path, capsys):
+    command, expected, data = case.read_text(encoding="utf-8").split("\n", 2)
+    data_path, out = tmp_path / "in" / "data.csv", tmp_path / "out"
+    data_path.parent.mkdir()
+    data_path.write_text(data, encoding="utf-8")
+    argv = [a.format(data=data_path, out=out) for a in command.split()]
+    refused(argv, capsys, expected, [tmp_path / "in", out])
+    assert not out.exists()
+
+
+def test_ratios_never_writes_over_its_raw_file(tmp_path, capsys):
+    raw = tmp_path / "raw.csv"
+    shutil.copy(RAW, raw)
+    refused(["ratios", str(raw), "--out", str(raw)], capsys, "is the input file", [tmp_path])
+
+
+def test_a_run_never_writes_over_its_own_measurement_file(tmp_path, capsys):
+    out = tmp_path / "out"
+    out.mkdir()
+    data = out / "summary.csv"
+    data.write_text(GOOD)
+    refused(["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out)], capsys,
+            "over the input file", [tmp_path])
+
+
+def test_a_folder_with_the_users_own_tables_is_refused(tmp_path, capsys):
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    out.mkdir()
+    (out / "summary.csv").write_text("my own notes\n")
+    (out / "README.txt").write_text("mine\n")
+    refused(["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out)], capsys,
+            "not written by a ventsource run", [tmp_path])
+
+
+@pytest.mark.parametrize("name", ["../../x", "/tmp/elsewhere", ".hidden", "a/b", ""])
+def test_compare_keeps_every_run_inside_out(tmp_path, capsys, name):
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    shipped = (ROOT / "priors" / "demo_mount_kerrow_fast.toml").read_text()
+    assert 'name = "demo_mount_kerrow_fast"' in shipped
+    prior = tmp_path / "p.toml"
+    prior.write_text(shipped.replace('name = "demo_mount_kerrow_fast"', f'name = "{name}"'))
+    refused(["compare", str(data), "--prior", str(prior), "--prior", "demo_mount_kerrow_fast",
+             "--out", str(out)], capsys, "metadata.name", [tmp_path])
+    assert not out.exists()
