@@ -93,3 +93,34 @@ def test_compare_keeps_every_run_inside_out(tmp_path, capsys, name):
     refused(["compare", str(data), "--prior", str(prior), "--prior", "demo_mount_kerrow_fast",
              "--out", str(out)], capsys, "metadata.name", [tmp_path])
     assert not out.exists()
+
+
+def test_prior_predictive_reads_its_data_before_writing(tmp_path, capsys):
+    bad = tmp_path / "bad.csv"
+    bad.write_text("id,time,SO2/CO2\na,not a time,0.5\n")
+    table = tmp_path / "t.csv"
+    refused(["prior-predictive", "--prior", "demo_mount_kerrow_fast", "-n", "5", "--table", str(table),
+             "--plot", str(tmp_path / "p.png"), "--data", str(bad)], capsys, "row 2, column 'time'",
+            [tmp_path])
+
+
+def test_emcee_is_refused_for_windows_before_anything_is_written(tmp_path, capsys):
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    refused(["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out), "--engine", "emcee",
+             "--window", "30d"], capsys, "--engine emcee inverts row by row", [tmp_path])
+
+
+def test_a_window_option_error_comes_before_the_data_is_read(tmp_path, capsys):
+    missing = tmp_path / "no-such-file.csv"
+    refused(["run", str(missing), "--prior", "demo_mount_kerrow_fast", "--out", str(tmp_path / "o"),
+             "--window", "5y"], capsys, "--window '5y'", [tmp_path])
+
+
+def test_dask_options_without_dask_are_refused_first(tmp_path, capsys, monkeypatch):
+    import sys
+    monkeypatch.setitem(sys.modules, "dask.distributed", None)  # import fails as if not installed
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    refused(["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out), "--dask-local"],
+            capsys, "need dask", [tmp_path])

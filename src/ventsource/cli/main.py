@@ -461,8 +461,16 @@ def _window_option(args):
 
 
 def _check_series_args(args):
+    """Cheap checks of options, before the data file is read."""
     if args.workers < 1:
         raise InputError("--workers must be at least 1")
+    _window_option(args)
+    if getattr(args, "dask_local", False) or getattr(args, "dask_scheduler", None):
+        try:
+            import dask.distributed  # noqa: F401
+        except ImportError:
+            raise InputError("--dask-local and --dask-scheduler need dask: "
+                             "pip install 'ventsource[dask]'") from None
 
 
 def _default_sigma(args, spec):

@@ -1,4 +1,6 @@
 """Prior predictive draws of the gas ratios, with and without scrubbing."""
+import os
+
 import numpy as np
 import pandas as pd
 
@@ -35,14 +37,15 @@ def run_prior_predictive(spec, n, out_csv, plot_path=None, data_path=None, x_rat
                          y_ratio="SO2/CO2", seed=0):
     names = ("SO2/CO2", "H2S/SO2", "H2O/CO2", "CO2/ST")
     names = tuple(dict.fromkeys(names + (x_ratio, y_ratio)))
+    data = _read_overlay(data_path, x_ratio, y_ratio) if data_path else None  # checked before writing
     table = prior_predictive_table(spec, n, seed=seed, ratio_names=names)
-    table.to_csv(out_csv, index=False)
+    table.to_csv(f"{out_csv}.part", index=False)
+    os.replace(f"{out_csv}.part", out_csv)
     from ventsource.workflow.table_notes import write_table_sidecar
     write_table_sidecar(out_csv, f"prior-predictive draws of prior '{spec.name}': one row per draw and "
                         "model (M0 purely magmatic, M1 with scrubbing), parameters, status (0 = gas) and "
                         "gas ratios in mol/mol", synthetic=bool(getattr(spec, "fictional", False)))
     if plot_path:
-        data = _read_overlay(data_path, x_ratio, y_ratio) if data_path else None
         plot_ratio_plane(table, x_ratio, y_ratio, plot_path, data=data, title=spec.name)
     return table
 

@@ -379,6 +379,9 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
               "budget_max_gap_days": budget_max_gap_days}
     groups = assign_windows(series, window)  # checked before anything is written
+    if groups is not None and (options or {}).get("engine") == "emcee":
+        raise InputError("--engine emcee inverts row by row; windows (--window or the file's window "
+                         "column) use the SMC engine: drop --engine emcee or give --window 1")
     settings["window_per_row"] = None if groups is None else list(spec.window_per_row)
     _check_output_folder(out_dir)
     refuse_foreign_run_folder(out_dir, (series.path, prior_path))
