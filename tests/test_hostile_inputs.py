@@ -124,3 +124,31 @@ def test_dask_options_without_dask_are_refused_first(tmp_path, capsys, monkeypat
     data.write_text(GOOD)
     refused(["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out), "--dask-local"],
             capsys, "need dask", [tmp_path])
+
+
+def _edited_prior(tmp_path, old, new, name="p.toml"):
+    shipped = (ROOT / "priors" / "demo_mount_kerrow_fast.toml").read_text()
+    assert old in shipped
+    prior = tmp_path / name
+    prior.write_text(shipped.replace(old, new))
+    return prior
+
+
+def test_a_prior_that_never_makes_gas_is_named_before_the_folder_is_made(tmp_path, capsys):
+    prior = _edited_prior(tmp_path, "min = 5.0\nmax = 2500.0", "min = 4500.0\nmax = 5000.0")
+    text = prior.read_text().replace("value = 4.0", "value = 0.2").replace("value = 80.0", "value = 1.0")
+    prior.write_text(text.replace("min = 300.0\nmax = 6000.0", "min = 300.0\nmax = 310.0"))
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    err = refused(["run", str(data), "--prior", str(prior), "--out", str(out)], capsys,
+                  "releases gas", [tmp_path])
+    assert str(prior) in err and "row" not in err
+    assert not out.exists()
+
+
+def test_an_absurd_student_t_dof_is_refused(tmp_path, capsys):
+    prior = _edited_prior(tmp_path, 'kind = "normal"\n', 'kind = "student_t"\ndof = 1e308\n')
+    data = tmp_path / "data.csv"
+    data.write_text(GOOD)
+    refused(["run", str(data), "--prior", str(prior), "--out", str(tmp_path / "out")], capsys,
+            "likelihood.dof", [tmp_path])

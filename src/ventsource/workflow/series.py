@@ -415,6 +415,8 @@ def _checked_inputs(series, prior_path, seed, workers, options):
         raise InputError(str(exc)) from None
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed must be a whole number >= 0, got {seed!r}")
+    from ventsource.workflow.prior_check import refuse_prior_without_gas
+    refuse_prior_without_gas(spec, prior_path)
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
         raise InputError(f"workers must be a whole number >= 1, got {workers!r}")
     try:

@@ -203,8 +203,9 @@ def _parse_likelihood(file: str, data: Mapping) -> dict[str, Any]:
     likelihood: dict[str, Any] = {"kind": kind, "relative_sigma": sigma}
     if kind == "student_t":
         dof = read_number(file, lik_t, "dof", "likelihood.dof", False, DEFAULT_DOF)
-        if not dof > 0.0:
-            raise key_error(file, "likelihood.dof", f"must be > 0, got {fmt_number(dof)}")
+        if not 0.0 < dof <= 1e6:  # above 1e6 the Student-t is a Gaussian to 1e-6: say so
+            raise key_error(file, "likelihood.dof", f"must be in (0, 1e6], got {fmt_number(dof)}; "
+                            "for a Gaussian likelihood write kind = 'normal'")
         likelihood["dof"] = dof
     elif "dof" in lik_t:
         raise key_error(file, "likelihood.dof", "only used when likelihood.kind = 'student_t'")
