@@ -93,3 +93,25 @@ def test_sigkill_after_a_finished_row(tmp_path, reference):
 @pytest.mark.parametrize("rows_done", [0, 1, 4])
 def test_kill_at_three_moments(tmp_path, reference, sig, rows_done):
     check_kill_and_resume(tmp_path, reference, sig, rows_done)
+
+
+def test_a_full_disk_gives_one_line_and_leaves_no_part_file(tmp_path, reference):
+    """A file-size limit (RLIMIT_FSIZE) stands in for a full disk: the write fails with EFBIG."""
+    import resource
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_bytes(reference[0].read_bytes())
+    limit = 200 * 1024  # the prior copy and the tables fit; a row's netCDF file does not
+
+    def small_files():
+        resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
+
+    run = subprocess.run(command(data, out), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                         timeout=600, preexec_fn=small_files)
+    errors = [line for line in run.stderr.splitlines() if not line.startswith("[")]  # progress bar
+    assert run.returncode == 2, run.stderr
+    assert len(errors) == 1 and "cannot write" in errors[0] and "--resume" in errors[0], run.stderr
+    assert not list(out.rglob("*.part"))
+    done = subprocess.run(command(data, out, "--resume"), stdout=subprocess.DEVNULL,
+                          stderr=subprocess.PIPE, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr
+    assert (out / "summary.csv").read_bytes() == reference[1]

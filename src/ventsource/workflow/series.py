@@ -24,6 +24,7 @@ import csv
 import fcntl
 import hashlib
 import json
+from functools import partial
 import os
 import shutil
 import sys
@@ -35,6 +36,7 @@ import numpy as np
 
 from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
+from ventsource.workflow.netcdf_bytes import write_netcdf
 from ventsource.inference.priors.hypotheses import prior_model_probabilities
 from ventsource.workflow.hypothesis_rows import (DRAWS_KEY, add_budget, compact_draws, extend_hazard,
                                                  extra_columns, hypothesis_fields)
@@ -131,7 +133,7 @@ def _invert_row(args):
     result.idata.posterior.attrs["prior"] = json.dumps(prior_ref)
     key = row_key(row_id)
     nc_path = os.path.join(out_dir, "rows", f"{key}.nc")
-    _atomic(nc_path, result.idata.to_netcdf)  # a file present is a finished file
+    _atomic(nc_path, partial(write_netcdf, result.idata))  # a file present is a finished file
     row = _summary_row(result, spec, row_id, time_text, seed)
     row["nc_sha256"], row["prior_sha256"] = file_sha256(nc_path), prior_ref["sha256"]
     _atomic(os.path.join(out_dir, "rows", f"{key}.json"), lambda part: _dump_json(part, row, None))
@@ -630,15 +632,64 @@ def _time_text(t):
 def _atomic(path, write):
     """write(PART) then rename PART to path; a failed write leaves no PART file behind."""
     part = path + ".part"
+    failure = None
+    try:
+        _quiet_unless_ok(write, part)
+        os.replace(part, path)
+    except BaseException as exc:
+        _remove_quietly(part)
+        if not isinstance(exc, OSError):
+            raise
+        failure = OSError(exc.errno or _errno_in(exc), _one_line_reason(exc), path)
+    if failure is not None:  # raised here, the failed write's frames are already let go
+        _release_quietly()  # and its HDF5 objects are freed now, not at exit (a crash there)
+        _remove_quietly(part)
+        raise failure
+
+
+def _remove_quietly(path):
+    try:
+        os.remove(path)
+    except OSError:
+        pass
+
+
+def _quiet_unless_ok(write, part):
+    """Run write(part) holding back what it prints on stderr: a full disk makes HDF5 print a
+    traceback per object it frees; a write that succeeds passes its messages on."""
+    import io
+    import sys
+    held, real = io.StringIO(), sys.stderr
+    sys.stderr = held
     try:
         write(part)
-        os.replace(part, path)
-    except BaseException:
-        try:
-            os.remove(part)
-        except OSError:
-            pass
-        raise
+    finally:
+        sys.stderr = real
+    if held.getvalue():
+        real.write(held.getvalue())
+
+
+def _release_quietly():
+    """After a failed write the run stops: the HDF5 objects it left behind complain as they
+    are freed (dozens of 'Exception ignored' tracebacks); the one-line error says it all."""
+    import gc
+    import sys
+    sys.unraisablehook = lambda unraisable: None
+    gc.collect()
+
+
+def _errno_in(exc):
+    import re
+    m = re.search(r"errno = (\d+)", str(exc))
+    return int(m.group(1)) if m else None
+
+
+def _one_line_reason(exc):
+    """'No space left on device' rather than an HDF5 message spread over several lines."""
+    code = exc.errno or _errno_in(exc)
+    if code:
+        return os.strerror(code)
+    return (exc.strerror or str(exc)).splitlines()[0] if (exc.strerror or str(exc)) else "write failed"
 
 
 def _dump_json(path, doc, indent=2):

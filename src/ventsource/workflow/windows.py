@@ -10,6 +10,7 @@ windows/WKEY.nc, so an interrupted run keeps every finished window.
 from __future__ import annotations
 
 import json
+from functools import partial
 import os
 import re
 import warnings
@@ -17,6 +18,7 @@ import warnings
 import numpy as np
 
 from ventsource.common.errors import InputError
+from ventsource.workflow.netcdf_bytes import write_netcdf
 
 _UNITS_S = {"s": 1, "min": 60, "h": 3600, "d": 86400, "w": 7 * 86400}
 WINDOW_SUMMARY_EXTRA = ("window", "log10_bf_one_source")
@@ -80,7 +82,7 @@ def invert_window(args):
     idata = res.idata()
     idata.posterior.attrs["prior"] = json.dumps(prior_ref)
     nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")
-    _atomic(nc, idata.to_netcdf)
+    _atomic(nc, partial(write_netcdf, idata))
     nc_sha = file_sha256(nc)
     rows = []
     for rid, t, r in zip(ids, times, res.rows):
