@@ -152,3 +152,27 @@ def test_an_absurd_student_t_dof_is_refused(tmp_path, capsys):
     data.write_text(GOOD)
     refused(["run", str(data), "--prior", str(prior), "--out", str(tmp_path / "out")], capsys,
             "likelihood.dof", [tmp_path])
+
+
+RAW_HEAD = "# a comment line\n# another\ntime,CO2 [ppmv],SO2 [ppmv],H2S [ppmv],T [C],RH [%],P [hPa]\n"
+
+
+@pytest.mark.parametrize("cells, column, expected", [
+    ("418.5,0.02,0.01,-300,48,850", "T [C]", "not a plausible air temperature"),
+    ("418.5,0.02,0.01,12,500,850", "RH [%]", "not a relative humidity"),
+    ("418.5,0.02,0.01,12,48,0", "P [hPa]", "not a plausible station pressure"),
+    ("1e300,0.02,0.01,12,48,850", "CO2 [ppmv]", "more than a mole fraction of 100 %"),
+])
+def test_raw_sensor_values_outside_physics_are_refused(tmp_path, capsys, cells, column, expected):
+    raw = tmp_path / "raw.csv"
+    good = "418.5,0.02,0.01,12,48,850"
+    raw.write_text(RAW_HEAD + f"2026-03-14T00:00:00Z,{good}\n2026-03-14T00:00:01Z,{cells}\n")
+    err = refused(["ratios", str(raw), "--out", str(tmp_path / "m.csv")], capsys, expected, [tmp_path])
+    assert f"row 5, column '{column}'" in err, err    # line 5 of the file: 2 comments, header, 2 rows
+
+
+def test_a_unit_error_names_the_header_line_after_comments(tmp_path, capsys):
+    raw = tmp_path / "raw.csv"
+    raw.write_text(RAW_HEAD.replace("T [C]", "T [F]") + "2026-03-14T00:00:00Z,418.5,0.02,0.01,12,48,850\n")
+    refused(["ratios", str(raw), "--out", str(tmp_path / "m.csv")], capsys,
+            "row 3, column 'T [F]': unknown unit", [tmp_path])

@@ -80,7 +80,7 @@ def inspect_header(path, unit_overrides=None):
         if canon in columns:
             _fail(path, row, c, f"a second column for {canon} (first: '{columns[canon]}')")
         unit = unit_overrides.get(canon, unit)
-        scale[canon] = conversion(path, c, canon, unit)
+        scale[canon] = conversion(path, c, canon, unit, row)
         columns[canon] = c
     for name in unit_overrides:
         if name not in columns:
@@ -138,7 +138,22 @@ def _check_numbers(layout, name, series, first_line):
                 or str(raw).strip().lower() in ("", "nan") else f"'{raw}' is not a finite number")
         _fail(layout.path, first_line + i, column, what)
     scale, offset = layout.scale[name]
-    return values * scale + offset if (scale != 1.0 or offset != 0.0) else values
+    values = values * scale + offset if (scale != 1.0 or offset != 0.0) else values
+    low, high, what = PLAUSIBLE.get(name, GAS_PLAUSIBLE)
+    out = np.flatnonzero((values < low) | (values > high))
+    if out.size:
+        i = out[0]
+        _fail(layout.path, first_line + i, column, f"'{series.iloc[i]}' is {what}")
+    return values
+
+
+# Plausible readings of a plume station, in ppmv / C / % / hPa (common practice, no source):
+# air from polar cold to air warmed near a vent; RH sensors read a little above 100 % near
+# saturation; station pressure from the highest summits (~330 hPa) to sea level (~1085 hPa).
+PLAUSIBLE = {"T": (-90.0, 100.0, "not a plausible air temperature (-90 to 100 C)"),
+             "RH": (0.0, 105.0, "not a relative humidity (0 to 105 %)"),
+             "P": (300.0, 1100.0, "not a plausible station pressure (300 to 1100 hPa)")}
+GAS_PLAUSIBLE = (-1e6, 1e6, "more than a mole fraction of 100 %")
 
 
 def read_chunks(layout, needed, chunk_rows=200_000, assume_utc=False):

@@ -36,14 +36,14 @@ def canonical_name(name):
     return METEO_ALIASES.get(name, METEO_ALIASES.get(name.lower()))
 
 
-def conversion(path, column, name, unit):
+def conversion(path, column, name, unit, row=1):
     """(scale, offset) turning the column's unit into ppmv / C / % / hPa."""
     if unit is None:
-        raise InputError(f"{path}: row 1, column '{column}': no unit; write it in the header "
+        raise InputError(f"{path}: row {row}, column '{column}': no unit; write it in the header "
                          f"(e.g. '{name} [{'ppmv' if name in SPECIES else next(iter(METEO_UNITS[name]))}]') "
                          f"or pass --units {name}=UNIT")
     table = ({u: (f, 0.0) for u, f in GAS_UNITS.items()} if name in SPECIES else METEO_UNITS[name])
     if unit not in table:
-        raise InputError(f"{path}: row 1, column '{column}': unknown unit '{unit}' for {name} "
+        raise InputError(f"{path}: row {row}, column '{column}': unknown unit '{unit}' for {name} "
                          f"(known: {', '.join(table)})")
     return table[unit]
