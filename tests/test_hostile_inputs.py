@@ -176,3 +176,31 @@ def test_a_unit_error_names_the_header_line_after_comments(tmp_path, capsys):
     raw.write_text(RAW_HEAD.replace("T [C]", "T [F]") + "2026-03-14T00:00:00Z,418.5,0.02,0.01,12,48,850\n")
     refused(["ratios", str(raw), "--out", str(tmp_path / "m.csv")], capsys,
             "row 3, column 'T [F]': unknown unit", [tmp_path])
+
+
+def test_resume_takes_options_spelled_at_their_defaults(tmp_path, capsys):
+    """--window 1 on a file without a window column and --engine smc are what the run used."""
+    tiny = ["--target-ess", "20", "--max-steps", "200", "--infer-option", "n_proposal=2000",
+            "--infer-option", "n_prior_draws=100", "--infer-option", "n_walkers=16", "--no-figures"]
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    base = ["run", str(data), "--prior", "demo_mount_kerrow_fast", "--out", str(out), *tiny]
+    assert main(base) == 0
+    summary = (out / "summary.csv").read_bytes()
+    capsys.readouterr()
+    assert main(base + ["--resume", "--window", "1", "--engine", "smc"]) == 0, capsys.readouterr().err
+    assert (out / "summary.csv").read_bytes() == summary
+    refused(base + ["--resume", "--engine", "emcee"], capsys, "different inference option engine", [out])
+
+
+def test_a_windows_rows_are_taken_in_time_order():
+    """The change-of-source check splits a window in time; a file need not be sorted."""
+    import numpy as np
+    from ventsource.workflow.windows import assign_windows
+
+    class Series:
+        path = "x.csv"
+        times = [np.datetime64("2026-01-01") + np.timedelta64(d, "D") for d in (9, 2, 5, 40, 1)]
+        windows = ["a", "a", "a", "b", "a"]
+    assert assign_windows(Series, None) == [("a", [4, 1, 2, 0]), ("b", [3])]
+    assert [rows for _, rows in assign_windows(Series, 30 * 86400)] == [[4, 1, 2, 0], [3]]

@@ -278,7 +278,7 @@ def _check_output_folder(out_dir):
         raise InputError(f"{rows}: not a writable folder")
 
 
-def _earlier_run(out_dir, settings, resume):
+def _earlier_run(out_dir, settings, resume, window_column=False):
     """The earlier run's run.json (or None); refuses what would mix or lose results."""
     run_path = os.path.join(out_dir, "run.json")
     if not os.path.exists(run_path):
@@ -298,7 +298,7 @@ def _earlier_run(out_dir, settings, resume):
         return old  # an earlier start that finished no row: nothing to lose, start again
     now = json.loads(json.dumps(settings, default=str))
     for key, label in RECORDED_SETTINGS.items():
-        if _old_setting(old, key, now[key]) != now[key]:
+        if not _same_setting(key, _old_setting(old, key, now[key]), now[key], window_column):
             if key == "options":
                 diff = sorted(k for k in set(old.get(key) or {}) | set(now[key])
                               if (old.get(key) or {}).get(k) != now[key].get(k))
@@ -307,6 +307,21 @@ def _earlier_run(out_dir, settings, resume):
                              f"({_short(old.get(key))} there, {_short(now[key])} now); "
                              "use the same settings or choose another --out")
     return old
+
+
+def _same_setting(key, old_value, now_value, window_column):
+    """Settings that give the same numbers compare equal: an option given at its default
+    value, and --window 1 (or 'column') where the file's own layout already meant it."""
+    if key == "options":
+        from ventsource.inference.one_measurement import _DEFAULTS
+        def plain(opts):
+            return {k: v for k, v in (opts or {}).items() if _DEFAULTS.get(k, object()) != v}
+        return plain(old_value) == plain(now_value)
+    if key == "window":
+        def plain(w):
+            return ("column" if window_column else "rows") if w is None else w
+        return plain(old_value) == plain(now_value)
+    return old_value == now_value
 
 
 def _old_setting(old, key, now):
@@ -388,9 +403,10 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     _check_output_folder(out_dir)
     refuse_foreign_run_folder(out_dir, (series.path, prior_path))
     _refuse_if_in_use(out_dir)
-    _earlier_run(out_dir, settings, resume)
+    window_column = series.windows is not None
+    _earlier_run(out_dir, settings, resume, window_column)
     with _FolderLock(out_dir):
-        old = _earlier_run(out_dir, settings, resume)  # again, now that no other run can write
+        old = _earlier_run(out_dir, settings, resume, window_column)  # again, now that no other run can write
         try:
             return _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, resume,
                                workers, dask_scheduler, dask_local, progress_stream, model_note,

@@ -54,9 +54,11 @@ def assign_windows(series, window):
         k = np.floor((t - t.min()) / window).astype(int)
         labels = [f"w{v:04d}" for v in k]
     groups = {}
-    for i, lab in enumerate(labels):
-        groups.setdefault(lab, []).append(i)
-    return list(groups.items())
+    t = np.array(series.times, dtype="datetime64[s]").astype(np.int64)
+    for i in np.argsort(t, kind="stable"):  # a window's rows in time order, whatever the file's
+        groups.setdefault(labels[i], []).append(int(i))
+    first = {lab: min(rows) for lab, rows in groups.items()}  # windows in file order, as before
+    return sorted(groups.items(), key=lambda item: first[item[0]])
 
 
 def window_key(label):
