@@ -7,6 +7,7 @@ import sys
 import time
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -115,3 +116,27 @@ def test_a_full_disk_gives_one_line_and_leaves_no_part_file(tmp_path, reference)
                           stderr=subprocess.PIPE, text=True, timeout=600)
     assert done.returncode == 0, done.stderr
     assert (out / "summary.csv").read_bytes() == reference[1]
+
+
+@pytest.mark.slow
+def test_a_million_rows_start_in_bounded_memory(tmp_path):
+    """Acceptance: 1e6 valid rows reach the first progress line holding under 1 GiB
+    (the time to it is reported by the test, not asserted: these machines are shared)."""
+    data, out = tmp_path / "big.csv", tmp_path / "out"
+    with open(data, "w") as fh:
+        fh.write("id,time,SO2/CO2,H2S/SO2,H2O/CO2\n")
+        for i in range(1_000_000):  # one row a minute from 2020
+            fh.write(f"r{i},{np.datetime64('2020-01-01T00:00') + np.timedelta64(i, 'm')}:00Z,0.5,0.3,30\n")
+    start = time.monotonic()
+    proc = subprocess.Popen(command(data, out), stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    seen = b""
+    while b" rows" not in seen:
+        chunk = proc.stderr.read(1)
+        assert chunk, seen.decode(errors="replace")
+        seen += chunk
+    status = Path(f"/proc/{proc.pid}/status").read_text()
+    peak_kib = int(next(line.split()[1] for line in status.splitlines() if line.startswith("VmHWM")))
+    proc.send_signal(signal.SIGINT)
+    proc.wait(timeout=60)
+    print(f"first progress line after {time.monotonic() - start:.1f} s, peak {peak_kib / 2**20:.2f} GiB")
+    assert peak_kib < 2**20

@@ -30,7 +30,7 @@ import shutil
 import sys
 import time
 import warnings
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, as_completed, wait
 
 import numpy as np
 
@@ -505,10 +505,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
 def _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir):
     """(worker function, its argument tuples) for the rows or windows still to invert."""
     if groups is None:
-        todo = [(str(prior_path), prior_ref, m, rid, _time_text(t), row_seed(settings["seed"], rid),
-                 settings["options"], out_dir)
-                for rid, t, m in zip(series.ids, series.times, series.measurements) if rid not in done]
-        return _invert_row, todo
+        return _invert_row, _RowJobs(series, done, (str(prior_path), prior_ref), settings, out_dir)
     os.makedirs(os.path.join(out_dir, "windows"), exist_ok=True)
     todo = [(str(prior_path), prior_ref, label, [series.ids[i] for i in idx],
              [_time_text(series.times[i]) for i in idx], [series.measurements[i] for i in idx],
@@ -518,6 +515,25 @@ def _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir):
     # while the other inverts the biggest window last (results do not depend on order)
     todo.sort(key=lambda job: -len(job[3]))
     return invert_window, todo
+
+
+class _RowJobs:
+    """The rows still to invert, each job made only when it is handed out: a million-row
+    file starts at once and holds one Measurement per job in flight, not one per row."""
+
+    def __init__(self, series, done, prior, settings, out_dir):
+        self.series, self.prior, self.settings, self.out_dir = series, prior, settings, out_dir
+        self.todo = [i for i, rid in enumerate(series.ids) if rid not in done]
+
+    def __len__(self):
+        return len(self.todo)
+
+    def __iter__(self):
+        s, seed = self.series, self.settings["seed"]
+        for i in self.todo:
+            rid = s.ids[i]
+            yield (*self.prior, s.measurements[i], rid, _time_text(s.times[i]), row_seed(seed, rid),
+                   self.settings["options"], self.out_dir)
 
 
 def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note, extras):
@@ -542,6 +558,24 @@ def worker_count(requested, n_jobs, oversubscribe=False):
     """Processes to start: no more than rows to invert, nor (unless asked) than cores."""
     n = min(int(requested), max(n_jobs, 1))
     return n if oversubscribe else max(1, min(n, os.cpu_count() or 1))
+
+
+def _pool_map(pool, work, jobs, record, in_flight):
+    """Submit jobs as workers free up (at most in_flight pending), record each result."""
+    pending, jobs = set(), iter(jobs)
+    try:
+        for job in jobs:
+            pending.add(pool.submit(work, job))
+            if len(pending) >= in_flight:
+                finished, pending = wait(pending, return_when=FIRST_COMPLETED)
+                for fut in finished:
+                    record(fut.result())
+        for fut in as_completed(pending):
+            record(fut.result())
+    except BaseException:
+        for fut in pending:
+            fut.cancel()
+        raise
 
 
 def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe,
@@ -577,14 +611,7 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
         from ventsource.common.worker_death import die_with_parent
         with ProcessPoolExecutor(max_workers=n_workers, initializer=die_with_parent,
                                  initargs=(os.getpid(),)) as pool:
-            futures = [pool.submit(work, job) for job in todo]
-            try:
-                for fut in as_completed(futures):
-                    record(fut.result())
-            except BaseException:
-                for fut in futures:
-                    fut.cancel()
-                raise
+            _pool_map(pool, work, todo, record, in_flight=4 * n_workers)
     else:
         for job in todo:
             record(work(job))
