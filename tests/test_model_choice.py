@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 
 from toy_models import ScrubToyForward, scrub_toy_prior
-from ventsource.inference.one_measurement import CAUTION, InferenceError, infer, prior_monte_carlo_evidence
+from ventsource.inference.row.one_measurement import CAUTION, InferenceError, infer, prior_monte_carlo_evidence
 from ventsource.inference.likelihood import Likelihood, Measurement
-from ventsource.inference.model_choice import posterior_model_probability, probability_below
+from ventsource.inference.hypotheses.model_choice import posterior_model_probability, probability_below
 
 warnings.filterwarnings("ignore", category=FutureWarning)
 

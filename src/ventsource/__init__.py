@@ -5,8 +5,8 @@ __version__ = "0.2.0"
 
 
 def infer(measurement, prior, seed=0, **options):
-    """Posterior of the degassing conditions and P(purely magmatic); see ventsource.inference.one_measurement.infer."""
-    from ventsource.inference.one_measurement import infer as _infer
+    """Posterior of the degassing conditions and P(purely magmatic); see ventsource.inference.row.one_measurement.infer."""
+    from ventsource.inference.row.one_measurement import infer as _infer
     if isinstance(prior, (str, bytes)) or hasattr(prior, "__fspath__"):
         from ventsource.inference.priors import load_prior_file
         prior = load_prior_file(prior)

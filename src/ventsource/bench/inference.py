@@ -38,8 +38,8 @@ def bench_inference(quick=False):
     import warnings
 
     from ventsource.forward.model import ForwardModel
-    from ventsource.inference.one_measurement import infer, prior_monte_carlo_evidence
-    from ventsource.inference.model_choice import posterior_model_probability
+    from ventsource.inference.row.one_measurement import infer, prior_monte_carlo_evidence
+    from ventsource.inference.hypotheses.model_choice import posterior_model_probability
     from ventsource.inference.priors import load_prior_file
 
     from ventsource.inference.priors.shipped import shipped_prior_path

@@ -433,7 +433,7 @@ def _inference_options(args):
         if args.max_steps < 1:
             raise InputError("--max-steps must be at least 1")
         opts["max_steps"] = int(args.max_steps)
-    from ventsource.inference.one_measurement import _DEFAULTS
+    from ventsource.inference.row.one_measurement import _DEFAULTS
     for item in args.infer_option:
         name, sep, text = item.partition("=")
         if not sep or name not in _DEFAULTS:

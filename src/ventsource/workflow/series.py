@@ -115,7 +115,7 @@ def _invert_row(args):
     prior_path, prior_ref, measurement, row_id, time_text, seed, options, out_dir = args
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()  # bitwise-reproducible rows, whatever the process
-    from ventsource.inference.one_measurement import InferenceError, infer
+    from ventsource.inference.row.one_measurement import InferenceError, infer
     spec = _cached_spec(prior_path, prior_ref["sha256"])
     opts = dict(options)
     opts.setdefault("epsilon", float(getattr(spec, "epsilon", 0.05)))
@@ -399,7 +399,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
 
 
 def _checked_inputs(series, prior_path, seed, workers, options):
-    from ventsource.inference.one_measurement import _DEFAULTS
+    from ventsource.inference.row.one_measurement import _DEFAULTS
     from ventsource.inference.option_rules import OptionError, check_options
     from ventsource.inference.priors import PriorFileError, load_prior_file
     from ventsource.inference.priors.shipped import resolve_prior
@@ -572,7 +572,7 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
     Paths are relative to the run folder; numbers are rounded by hazard_format's rule."""
     from ventsource import __version__
     from ventsource.common.flag_glossary import glossary_for
-    from ventsource.inference.one_measurement import _DEFAULTS
+    from ventsource.inference.row.one_measurement import _DEFAULTS
     from ventsource.workflow.hazard_format import ROUNDING_RULE, relative_path
     effective = dict(_DEFAULTS, epsilon=float(getattr(spec, "epsilon", 0.05)), **options)
     flag_lists = [[f for f in (r.get("flags") or "").split(";") if f] for r in rows]

@@ -3,7 +3,7 @@
 A window is chosen by the user: `--window 30d` (consecutive spans of time from the
 first measurement: s, min, h, d, w), a `window` column in the measurement file (the
 user's own periods), or `--window 1` (every row alone, the row-by-row inversion).
-Each window's rows are inverted together (ventsource.inference.window_inference);
+Each window's rows are inverted together (ventsource.inference.window.sampling);
 each row's summary is written as rows/KEY.json and the shared posterior as
 windows/WKEY.nc, so an interrupted run keeps every finished window.
 """
@@ -64,7 +64,7 @@ def invert_window(args):
     prior_path, prior_ref, label, ids, times, measurements, seed, options, out_dir = args
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()
-    from ventsource.inference.window_inference import WindowError, infer_window
+    from ventsource.inference.window.sampling import WindowError, infer_window
     from ventsource.workflow.series import _atomic, _cached_spec, _dump_json, file_sha256, row_key
     spec = _cached_spec(prior_path, prior_ref["sha256"])
     opts = {k: v for k, v in options.items() if k in _WINDOW_OPTION_NAMES}

@@ -33,9 +33,9 @@ from ventsource.ascent.scrubbing import scrub
 from ventsource.inference.engines.smc_engine import SMCError, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
 from ventsource.inference.likelihood import Likelihood
-from ventsource.inference.model_choice import predictive_check
-from ventsource.inference.smc_measurement import model_averaged_quantiles
-from ventsource.inference.window import So2FreeWindowTarget, WindowTarget
+from ventsource.inference.hypotheses.model_choice import predictive_check
+from ventsource.inference.row.smc_measurement import model_averaged_quantiles
+from ventsource.inference.window.target import So2FreeWindowTarget, WindowTarget
 from ventsource.chemistry.species import INDEX
 
 _SO2, _CO2 = INDEX["SO2"], INDEX["CO2"]
@@ -86,7 +86,7 @@ class WindowResult:
     def idata(self):
         """The shared posterior as ArviZ InferenceData (units in attributes)."""
         import arviz as az
-        from ventsource.inference.one_measurement import CAUTION, PARAMETER_UNITS
+        from ventsource.inference.row.one_measurement import CAUTION, PARAMETER_UNITS
         post = {n: self.shared_draws[:, :, j] for j, n in enumerate(self.shared_names)}
         idata = az.from_dict(posterior=post)
         for n in self.shared_names:

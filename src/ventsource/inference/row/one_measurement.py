@@ -18,7 +18,7 @@ import numpy as np
 from ventsource.inference.evidence.bridge import BridgeResult, bridge_sampling, prior_monte_carlo_evidence, support_bounds, _likelihood_options
 from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError
 from ventsource.inference.option_rules import OptionError, check_options
-from ventsource.inference.model_choice import (PredictiveCheck, model_flags, posterior_model_probability,
+from ventsource.inference.hypotheses.model_choice import (PredictiveCheck, model_flags, posterior_model_probability,
                            predictive_check, probability_below, release_flags)
 from ventsource.inference.engines.emcee_engine import LogPosterior, SampleResult, SamplerError, sample_posterior
 from ventsource.inference.engines.run_rhat import between_run_rhat
@@ -286,7 +286,7 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
             raise InferenceError(f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter "
                                  f"{scrub!r} (the smc engine integrates it out); use engine='emcee' "
                                  f"with model_choice=False to sample without the M0/M1 comparison")
-        from ventsource.inference.smc_inference import infer_smc
+        from ventsource.inference.row.smc_inference import infer_smc
         return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
@@ -345,7 +345,7 @@ def _run_models(prior, forward, lik, seed, seeds, opt, flags) -> dict:
             flags.append("m0_no_valid_state")
         runs["M0"] = run0
         if getattr(prior, "release", None) is not None:  # third hypothesis: released sulfur
-            from ventsource.inference.hypotheses_emcee import run_release_model
+            from ventsource.inference.row.hypotheses_emcee import run_release_model
             runs["M2"] = run_release_model(prior, forward, lik, seed, opt)
     return runs
 
@@ -379,7 +379,7 @@ def _run_flags(flags, runs, idata1, opt) -> list:
 
 def _model_probabilities(runs, prior, forward, pi0, seed, opt):
     """(P(M0), its error, the three-hypothesis summary or None, budget draws or None)."""
-    from ventsource.inference import hypotheses_emcee
+    from ventsource.inference.row import hypotheses_emcee
     run0, run1 = runs["M0"], runs["M1"]
     if "M2" in runs:
         hyp = hypotheses_emcee.three_hypotheses(runs, prior, pi0)

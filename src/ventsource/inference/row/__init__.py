@@ -1,0 +1,12 @@
+"""The one-measurement model: one row of gas ratios inverted on its own.
+
+Holds the inversion's entry point and result types (`one_measurement`), the
+smc path (`smc_measurement`: the target and its draws; `smc_inference`: the
+result from one population; `hypotheses_smc`: P(M0), P(M1), P(M2) and the
+budget quantities from that population) and the emcee path's third
+hypothesis (`hypotheses_emcee`).
+
+May import: ventsource.common ... ventsource.forward, and from
+ventsource.inference: priors, likelihood, option_rules, evidence, engines,
+hypotheses, and this package.
+"""
