@@ -55,7 +55,7 @@ def assign_windows(series, window):
 
 
 def window_key(label):
-    from ventsource.workflow.series import row_key
+    from ventsource.workflow.run_folder import row_key
     return row_key(f"window-{label}")
 
 
@@ -65,7 +65,8 @@ def invert_window(args):
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()
     from ventsource.inference.window.sampling import WindowError, infer_window
-    from ventsource.workflow.series import _atomic, _cached_spec, _dump_json, file_sha256, row_key
+    from ventsource.workflow.row_jobs import _cached_spec
+    from ventsource.workflow.run_folder import _atomic, _dump_json, file_sha256, row_key
     spec = _cached_spec(prior_path, prior_ref["sha256"])
     opts = {k: v for k, v in options.items() if k in _WINDOW_OPTION_NAMES}
     with warnings.catch_warnings():
@@ -127,7 +128,7 @@ def window_summary_columns(ratio_names):
 def read_done_windows(out_dir, groups, ids):
     """Rows of windows whose files are all present and agree (resume): every row's summary
     names the window file's sha256; anything else is inverted again."""
-    from ventsource.workflow.series import file_sha256, row_key
+    from ventsource.workflow.run_folder import file_sha256, row_key
     done = {}
     for label, idx in groups:
         nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")

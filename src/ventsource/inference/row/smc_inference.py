@@ -15,7 +15,7 @@ from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.inference.engines.smc_engine import SMCError
 from ventsource.inference.hypotheses.model_choice import (model_flags, predictive_check, probability_below,
                                                release_flags)
-from ventsource.inference.row.one_measurement import InferenceError, InferenceResult, ModelRun, _to_idata
+from ventsource.inference.row.result import InferenceError, InferenceResult, ModelRun, _to_idata
 from ventsource.inference.row.hypotheses_smc import (budget_draws, log_evidences, log_priors,
                                                  probabilities_with_errors, release_draws,
                                                  responsibilities)

@@ -86,7 +86,7 @@ class WindowResult:
     def idata(self):
         """The shared posterior as ArviZ InferenceData (units in attributes)."""
         import arviz as az
-        from ventsource.inference.row.one_measurement import CAUTION, PARAMETER_UNITS
+        from ventsource.inference.row.result import CAUTION, PARAMETER_UNITS
         post = {n: self.shared_draws[:, :, j] for j, n in enumerate(self.shared_names)}
         idata = az.from_dict(posterior=post)
         for n in self.shared_names:
