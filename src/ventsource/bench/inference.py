@@ -64,7 +64,7 @@ def bench_inference(quick=False):
     for run in res.runs.values():
         if run.sample is not None:
             evals += run.sample.stats["n_forward_evals"] + run.sample.stats.get("n_forward_evals_bridge", 0)
-    table = res.summary()
+    table = res.summary("M1")
     ess_min = float(table["ess_bulk"].min())
     rhat_max = float(table["r_hat"].max())
     print(f"[inference] infer(): {seconds:.1f} s, {evals:,} forward evaluations, min bulk ESS {ess_min:.0f}, "

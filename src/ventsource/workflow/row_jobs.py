@@ -67,7 +67,7 @@ def _invert_row(args):
 
 
 def _summary_row(result, spec, row_id, time_text, seed):
-    summary = result.summary()
+    summary = result.summary("M1")
     row = {"id": row_id, "time": time_text, "p_magmatic": _num(result.p_magmatic),
            "p_magmatic_error": _num(result.p_magmatic_error),
            "p_scrubbed_below_epsilon": _num(result.p_scrubbed_below_epsilon),

@@ -14,6 +14,7 @@ from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.hypotheses.model_choice import PredictiveCheck
 from ventsource.inference.engines.emcee_engine import SampleResult
 from ventsource.inference.engines.run_rhat import between_run_rhat
+from ventsource.inference.row.averaged import averaged_summary
 
 CAUTION = ("Model- and prior-dependent; supports, never replaces, the observatory's assessment "
            "and official warnings.")
@@ -41,6 +42,10 @@ class ModelRun:
     check: PredictiveCheck | None
     log_z: float
     log_z_error: float
+
+
+# other names of the hypotheses in summary() and posterior()
+MODEL_NAMES = {"scrubbed": "M1", "magmatic": "M0"}
 
 
 def _safe_var(name: str) -> str:
@@ -76,14 +81,28 @@ class InferenceResult:
     def log_evidence(self) -> dict:
         return {k: (r.log_z, r.log_z_error) for k, r in self.runs.items()}
 
-    def summary(self, model: str = "M1"):
-        """pandas DataFrame: median, 5%, 95%, mean, sd, r_hat, ess_bulk, ess_tail per parameter."""
+    def posterior(self, model: str = "M1"):
+        """ArviZ InferenceData of one hypothesis: "M1" (scrubbed; also "scrubbed") or
+        "M0" (purely magmatic; also "magmatic")."""
+        idata = {"M1": self.idata, "M0": self.idata_m0}.get(MODEL_NAMES.get(model, model))
+        if idata is None:
+            raise InferenceError(f"no posterior for model {model!r}; known: M0 (magmatic), M1 (scrubbed)")
+        return idata
+
+    def summary(self, model: str = "averaged"):
+        """pandas DataFrame, one row per parameter.
+
+        model="averaged" (the default): the posterior averaged over M0 and M1 with weights
+        P(M0), 1 - P(M0) (scrubbed_so2 is 0 under M0): units, median, 5%, 95%, mean, sd.
+        With a release prior the average is over M0 and M1 renormalised (M2 keeps no
+        draws). model="M1" or "M0": that hypothesis' posterior with r_hat, ess_bulk and
+        ess_tail as well.
+        """
+        if model == "averaged":
+            return averaged_summary(self)
         import arviz as az
         import pandas as pd
-        idata = self.idata if model == "M1" else self.idata_m0
-        if idata is None:
-            raise InferenceError(f"no posterior for model {model!r}")
-        post = idata.posterior
+        post = self.posterior(model).posterior
         rhat = _rhat_by_parameter(post, self.engine)
         ess_b = az.ess(post, method="bulk")
         ess_t = az.ess(post, method="tail")
