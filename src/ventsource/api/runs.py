@@ -17,7 +17,8 @@ def _prior_path(prior):
 
 
 def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_sigma=0.15,
-        figures=False, **options):
+        figures=False, dask_scheduler=None, dask_local=False, oversubscribe=False,
+        budget_max_gap_days=None, **options):
     """Invert every row of a measurement file into the folder ``out``; returns its
     summary.csv as a pandas DataFrame (one row per measurement, as ``ventsource run``
     writes it; columns: docs/outputs.md).
@@ -27,7 +28,10 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     else row by row), "rows", "column" or a span in seconds (rows sharing a source).
     The folder also gets hazard.json, rows/*.nc (each row's InferenceData) and run.json;
     ``resume=True`` keeps verified finished rows; ``figures=True`` draws the figures.
-    ``options``: options of infer (n_particles, engine, ...). Bad input raises
+    ``dask_scheduler`` (an address) or ``dask_local`` spread the rows over Dask
+    workers; ``oversubscribe`` allows more workers than cores;
+    ``budget_max_gap_days``: longest interval the sulfur budget bridges (files with
+    flux columns). ``options``: options of infer (n_particles, engine, ...). Bad input raises
     InputError (a ValueError) with one line. Results are model- and prior-dependent and
     support, never replace, the responsible observatory's assessment.
 
@@ -49,7 +53,8 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     series = _series(data, default_sigma)
     prior_path = _prior_path(prior)
     run_series(series, prior_path, out, seed=seed, workers=workers, resume=resume,
-               options=options, window=window)
+               options=options, dask_scheduler=dask_scheduler, dask_local=dask_local, window=window,
+               oversubscribe=oversubscribe, budget_max_gap_days=budget_max_gap_days)
     if figures:
         from ventsource.workflow.figures import run_figures
         run_figures(out, series, load_prior(prior_path))

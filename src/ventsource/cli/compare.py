@@ -20,7 +20,7 @@ def add_parser(sub):
 def cmd_compare(args):
     from ventsource.common.caution import CAUTION
     from ventsource.workflow.compare import run_compare
-    from ventsource.workflow.measurements import read_measurements
+    from ventsource import read_measurements
     _check_series_args(args)
     if len(args.prior) < 2:
         raise InputError("compare: give at least two --prior files")

@@ -20,7 +20,7 @@ def add_parser(sub):
 def cmd_forward(args):
     import numpy as np
 
-    from ventsource.forward.model import ForwardModel
+    from ventsource import ForwardModel
 
     spec = _load_prior(args.prior)
     announce_compilation()

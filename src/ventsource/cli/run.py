@@ -20,23 +20,21 @@ def add_parser(sub):
 
 
 def cmd_run(args):
+    import ventsource as vs
     from ventsource.common.caution import CAUTION
-    from ventsource.workflow.measurements import read_measurements
-    from ventsource.workflow.series import run_series
     _check_series_args(args)
     spec = _load_prior(args.prior)
     options = _inference_options(args)
-    series = read_measurements(args.data, default_sigma=_default_sigma(args, spec))  # checks first
+    series = vs.read_measurements(args.data, default_sigma=_default_sigma(args, spec))  # checks first
     for rid in args.corner:
         if rid not in series.ids:
             raise InputError(f"--corner: '{rid}' is not an id in {args.data}")
     window = _window_option(args)
     route_warnings(args.out)
     announce_compilation()
-    run_series(series, args.prior, args.out, seed=args.seed, workers=args.workers,
-               resume=args.resume, options=options, dask_scheduler=args.dask_scheduler,
-               dask_local=args.dask_local, window=window, oversubscribe=args.oversubscribe,
-               budget_max_gap_days=_budget_gap(args))
+    vs.run(series, args.prior, args.out, seed=args.seed, workers=args.workers, resume=args.resume,
+           window=window, dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
+           oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args), **options)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
