@@ -74,3 +74,13 @@ def test_import_stays_light():
     code = "import sys, ventsource; print(sorted(ventsource.__all__) == sorted(set(ventsource.__all__)), 'numpy' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.split() == ["True", "False"]
+
+
+def test_weighted_quantiles_match_numpy_with_equal_weights():
+    """Equal weights give the Hazen quantiles, numpy's method="hazen" (Hyndman & Fan 1996,
+    The American Statistician 50:361, definition 5)."""
+    from ventsource.inference.row.averaged import weighted_quantiles
+    x = np.random.default_rng(5).lognormal(size=999)
+    qs = (0.01, 0.05, 0.5, 0.95, 0.999)
+    np.testing.assert_allclose(weighted_quantiles(x, np.ones_like(x), qs), np.quantile(x, qs, method="hazen"),
+                               rtol=1e-12)

@@ -47,6 +47,7 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     True
     >>> all(os.path.exists(os.path.join(folder, "run", f)) for f in ("summary.csv", "hazard.json"))
     True
+    >>> import shutil; shutil.rmtree(folder)
     """
     from ventsource.workflow.series import SUMMARY_NAME, run_series
     import pandas as pd
@@ -75,8 +76,9 @@ def compare(data, priors, out, seed=0, workers=1, resume=False, window=None, def
     >>> pd.read_csv("examples/mount_kerrow_synthetic.csv", dtype=str).head(2).to_csv(data, index=False)
     >>> table = vs.compare(data, ["demo_mount_kerrow_fast", "demo_mount_kerrow_fast_release"],
     ...                    os.path.join(folder, "cmp"), window="rows", n_particles=100, n_runs=2)
-    >>> len(table)
-    2
+    >>> len(table), sorted(os.listdir(os.path.join(folder, "cmp", "runs")))
+    (2, ['demo_mount_kerrow_fast', 'demo_mount_kerrow_fast_release'])
+    >>> import shutil; shutil.rmtree(folder)
     """
     from ventsource.common.errors import InputError
     from ventsource.workflow.compare import run_compare
