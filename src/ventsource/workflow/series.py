@@ -29,8 +29,7 @@ from ventsource.common.caution import CAUTION
 from ventsource.common.errors import InputError
 from ventsource.workflow.hazard_export import hazard_document
 from ventsource.workflow.hypothesis_rows import add_budget, extend_hazard, extra_columns
-from ventsource.workflow.row_jobs import (DASK_CONNECT_TIMEOUT_S, Progress, _invert_row, _run_rows,
-                                          _time_text, row_seed, worker_count)
+from ventsource.workflow.row_jobs import Progress, _invert_row, _run_rows, _time_text, row_seed, worker_count
 from ventsource.workflow.run_folder import (HAZARD_NAME, LOCK_NAME, RECORDED_SETTINGS, RUNNING_NAME,
                                             SUMMARY_NAME, _FolderLock, _atomic, _check_output_folder,
                                             _earlier_run, _mark_stopped, _refuse_if_in_use, _rewrite,
@@ -41,7 +40,7 @@ from ventsource.workflow.windows import (assign_windows, invert_window, read_don
 
 # names other modules and tests import from here (their homes: run_folder, row_jobs, hazard_export)
 __all__ = ["run_series", "summary_columns", "hazard_document", "Progress", "row_key", "row_seed",
-           "worker_count", "file_sha256", "DASK_CONNECT_TIMEOUT_S", "HAZARD_NAME", "LOCK_NAME",
+           "worker_count", "file_sha256", "HAZARD_NAME", "LOCK_NAME",
            "RECORDED_SETTINGS", "RUNNING_NAME", "SUMMARY_NAME"]
 
 
