@@ -27,10 +27,11 @@ data = os.path.join(out, "six_rows.csv")
 rows.to_csv(data, index=False)
 series = vs.read_measurements(data, default_sigma=0.15)
 
-# 2. invert (a second call with resume=True would recompute nothing); the fast demo prior
+# 2. invert row by row (the file's window column would otherwise group them); a second
+#    call with resume=True recomputes nothing; the fast demo prior
 prior = vs.load_prior("demo_mount_kerrow_fast")
 summary = vs.run(series, "demo_mount_kerrow_fast", os.path.join(out, "run"), seed=1, workers=2,
-                 resume=True)
+                 resume=True, window="rows")
 
 # 3. posterior beside the truth
 truth = pd.read_csv(os.path.join(HERE, "mount_kerrow_truth.csv"), dtype={"id": str})

@@ -84,3 +84,16 @@ def test_weighted_quantiles_match_numpy_with_equal_weights():
     qs = (0.01, 0.05, 0.5, 0.95, 0.999)
     np.testing.assert_allclose(weighted_quantiles(x, np.ones_like(x), qs), np.quantile(x, qs, method="hazen"),
                                rtol=1e-12)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("script, expected", [("invert_one_measurement.py", "P(purely magmatic) = "),
+                                              ("worked_example.py", "figure: ")])
+def test_example_scripts_run(script, expected, tmp_path):
+    """The examples use the interface as docs/python.md shows it; they must keep running."""
+    import subprocess
+    import sys
+    proc = subprocess.run([sys.executable, str(ROOT / "examples" / script), str(tmp_path / "out")],
+                          capture_output=True, text=True, cwd=tmp_path, timeout=900)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert expected in proc.stdout and "Caution:" in proc.stdout
