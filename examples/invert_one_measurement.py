@@ -1,12 +1,18 @@
-"""Invert one synthetic measurement (fictional data) and print P(purely magmatic)."""
-from ventsource import infer
-from ventsource.inference.likelihood import Measurement
-from ventsource.inference.priors import load_prior_file
+"""Invert one synthetic measurement (fictional data) and print P(purely magmatic).
 
-prior = load_prior_file("priors/arc_basalt.toml")
-measurement = Measurement.from_strings(
+Results are model- and prior-dependent; they support, never replace, the responsible
+observatory's assessment.
+"""
+import ventsource as vs
+from ventsource.common.caution import CAUTION
+
+measurement = vs.Measurement.from_strings(
     {"SO2/CO2": 0.55, "H2S/SO2": 0.22, "H2O/CO2": "<60"}, relative_sigma=0.15, label="synthetic")
-result = infer(measurement, prior, seed=1, target_ess=500)
+result = vs.infer(measurement, "arc_basalt", seed=1)
 print(f"P(purely magmatic) = {result.p_magmatic:.3f} +/- {result.p_magmatic_error:.3f}")
-print(result.summary())
+print("posterior averaged over the hypotheses:")
+print(result.summary().to_string(float_format=lambda v: f"{v:.4g}"))
+print("if scrubbed (M1):")
+print(result.summary("M1").drop(columns="units").to_string(float_format=lambda v: f"{v:.4g}"))
 print("flags:", result.flags)
+print("Caution:", CAUTION)

@@ -13,12 +13,9 @@ import sys
 
 import pandas as pd
 
+import ventsource as vs
 from ventsource.common.caution import CAUTION
-from ventsource.workflow.demo import DEMO_FAST_PRIOR, DEMO_OPTIONS
 from ventsource.workflow.figures import run_figures
-from ventsource.workflow.measurements import read_measurements
-from ventsource.inference.priors import load_prior_file
-from ventsource.workflow.series import run_series
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 out = sys.argv[1] if len(sys.argv) > 1 else "worked-example-output"
@@ -28,14 +25,15 @@ rows = pd.read_csv(os.path.join(HERE, "mount_kerrow_synthetic.csv"), dtype=str).
 os.makedirs(out, exist_ok=True)
 data = os.path.join(out, "six_rows.csv")
 rows.to_csv(data, index=False)
-series = read_measurements(data, default_sigma=0.15)
+series = vs.read_measurements(data, default_sigma=0.15)
 
-# 2. invert (a second call with resume=True would recompute nothing)
-run_series(series, str(DEMO_FAST_PRIOR), os.path.join(out, "run"), seed=1, workers=2,
-           options=dict(DEMO_OPTIONS), resume=True)
+# 2. invert row by row (the file's window column would otherwise group them); a second
+#    call with resume=True recomputes nothing; the fast demo prior
+prior = vs.load_prior("demo_mount_kerrow_fast")
+summary = vs.run(series, "demo_mount_kerrow_fast", os.path.join(out, "run"), seed=1, workers=2,
+                 resume=True, window="rows")
 
 # 3. posterior beside the truth
-summary = pd.read_csv(os.path.join(out, "run", "summary.csv"), dtype={"id": str})
 truth = pd.read_csv(os.path.join(HERE, "mount_kerrow_truth.csv"), dtype={"id": str})
 both = summary.merge(truth[["id", "episode", "pressure_bar", "scrubbed_so2"]], on="id")
 print(both[["id", "episode", "p_magmatic", "p_magmatic_error", "scrubbed_so2", "scrubbed_so2_median",
@@ -43,7 +41,7 @@ print(both[["id", "episode", "p_magmatic", "p_magmatic_error", "scrubbed_so2", "
       .to_string(index=False, float_format=lambda v: f"{v:.3g}"))
 
 # 4. figures
-for path in run_figures(os.path.join(out, "run"), series, load_prior_file(DEMO_FAST_PRIOR),
+for path in run_figures(os.path.join(out, "run"), series, prior,
                         corner_ids=[series.ids[0]], n_prior=1000):
     print("figure:", path)
 print("Caution:", CAUTION)

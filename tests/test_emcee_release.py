@@ -22,9 +22,9 @@ from ventsource.cli.main import main
 from ventsource.common.flag_glossary import FLAG_GLOSSARY
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Measurement
-from ventsource.inference.model_choice import (posterior_model_probabilities,
+from ventsource.inference.hypotheses.model_choice import (posterior_model_probabilities,
                                                posterior_model_probability)
-from ventsource.inference.one_measurement import infer
+from ventsource.inference.row.one_measurement import infer
 from ventsource.inference.priors import load_prior_file
 from ventsource.workflow.demo import DEMO_FAST_PRIOR
 from ventsource.workflow.hypothesis_rows import HYPOTHESIS_COLUMNS

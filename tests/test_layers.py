@@ -1,6 +1,7 @@
-"""Package layout: imports run only downward through the layers, and functions
-fit on a screen (the layer table and the 60-line limit are the contributor
-guide's, DEVELOPERS.md "Package map").
+"""Package layout: imports run only downward through the layers (and through the
+sub-layers of inference/), no module imports itself in a circle, modules stay under
+400 lines and functions fit on a screen (the layer tables and the limits are the
+contributor guide's, DEVELOPERS.md "Package map"; common practice, no source).
 
 Both checks read the source with `ast` (nothing is imported), so they see
 imports inside functions as well as at module level.
@@ -22,11 +23,25 @@ LAYERS = {
     "forward": 4,
     "inference": 5,
     "workflow": 6,
+    "api": 6.5,
     "bench": 7,
     "cli": 8,
 }
-# The top-level ventsource/__init__.py imports the inference lazily (infer()).
-TOP_LEVEL_LAYER = LAYERS["inference"]
+# The top-level ventsource/__init__.py is the public API: it loads its names lazily
+# from api/ (which uses inference, forward and workflow): above workflow, below bench.
+TOP_LEVEL_LAYER = LAYERS["api"]
+# `from ventsource import __version__` reads a constant the top level sets before any
+# import of its own; it counts as common.
+VERSION_IMPORT = "ventsource.__version__"
+# Inside a layer with sub-layers, a module may import only from its own sub-layer or
+# below (the first name under the layer's package; a module directly in the package
+# is named by its own name).
+SUBLAYERS = {
+    "inference": {"priors": 0, "likelihood": 1, "option_rules": 1, "evidence": 2, "engines": 3,
+                  "hypotheses": 4, "row": 5, "window": 6},
+}
+
+MAX_MODULE_LINES = 400
 
 MAX_FUNCTION_LINES = 60
 # Every module is held to the limit except these named functions (path under
@@ -49,15 +64,30 @@ def module_name(path):
 
 
 def layer_of(name, where):
-    """Layer of the dotted module name `name` ("ventsource" itself: the top level)."""
+    """(layer, sub-layer) of the dotted module name `name` ("ventsource" itself: the top
+    level; the version constant: common)."""
+    if name == VERSION_IMPORT:
+        return (LAYERS["common"], 0)
     parts = name.split(".")
     if len(parts) == 1:
-        return TOP_LEVEL_LAYER
+        return (TOP_LEVEL_LAYER, 0)
     if parts[1] not in LAYERS:
         raise UnknownSubpackage(
             f"{where}: 'ventsource.{parts[1]}' is not in the layer table of tests/test_layers.py; "
             f"add it to LAYERS (and to the package map in DEVELOPERS.md) at the layer it belongs to")
-    return LAYERS[parts[1]]
+    subs = SUBLAYERS.get(parts[1])
+    if subs is None or len(parts) == 2:
+        return (LAYERS[parts[1]], 0)
+    if parts[2] not in subs:
+        raise UnknownSubpackage(
+            f"{where}: 'ventsource.{parts[1]}.{parts[2]}' is not in the sub-layer table of "
+            f"tests/test_layers.py; add it to SUBLAYERS['{parts[1]}'] (and to DEVELOPERS.md)")
+    return (LAYERS[parts[1]], subs[parts[2]])
+
+
+def _layer_text(layer):
+    top, sub = layer
+    return f"layer {top:g}" + (f".{sub}" if sub else "")
 
 
 def imported_modules(tree, own_name, is_package):
@@ -74,12 +104,22 @@ def imported_modules(tree, own_name, is_package):
                 anchor = package.split(".")[:len(package.split(".")) - (node.level - 1)]
                 base = ".".join(anchor + ([base] if base else []))
             if base == "ventsource":
-                # `from ventsource import x`: x may be a subpackage
-                found += [(node.lineno, f"ventsource.{a.name}" if a.name in LAYERS else "ventsource")
+                # `from ventsource import x`: x may be a subpackage, or the version constant
+                found += [(node.lineno, f"ventsource.{a.name}" if a.name in LAYERS or a.name == "__version__"
+                           else "ventsource") for a in node.names]
+            elif base.startswith("ventsource."):
+                # `from ventsource.pkg import mod`: mod may be a module of that package
+                found += [(node.lineno, f"{base}.{a.name}" if _is_module(f"{base}.{a.name}") else base)
                           for a in node.names]
             else:
                 found.append((node.lineno, base))
     return [(line, name) for line, name in found if name == "ventsource" or name.startswith("ventsource.")]
+
+
+def _is_module(dotted):
+    """True when the dotted name is a module or package file under SRC."""
+    rel = pathlib.Path(*dotted.split("."))
+    return (SRC / rel).with_suffix(".py").is_file() or (SRC / rel / "__init__.py").is_file()
 
 
 def layer_violations(source, path):
@@ -90,10 +130,76 @@ def layer_violations(source, path):
     bad = []
     for line, name in imported_modules(tree, own, path.name == "__init__.py"):
         target = layer_of(name, f"{path}:{line}")
-        if target > own_layer:
-            bad.append(f"{path.relative_to(SRC)}:{line}: {own} (layer {own_layer}) imports {name} "
-                       f"(layer {target})")
+        upward = target[0] > own_layer[0] or (target[0] == own_layer[0] and target[1] > own_layer[1])
+        if upward:
+            bad.append(f"{path.relative_to(SRC)}:{line}: {own} ({_layer_text(own_layer)}) imports {name} "
+                       f"({_layer_text(target)})")
     return bad
+
+
+def import_graph(sources):
+    """{module: set of ventsource modules it imports} from {path: source text}; the version
+    constant is no edge (it is set before the top level imports anything)."""
+    graph = {}
+    for path, source in sources.items():
+        own = module_name(path)
+        tree = ast.parse(source, filename=str(path))
+        graph[own] = {name for _, name in imported_modules(tree, own, path.name == "__init__.py")
+                      if name != VERSION_IMPORT and name != own}
+    return graph
+
+
+def import_circles(graph):
+    """Every strongly connected set of two or more modules (Tarjan 1972, SIAM J. Comput. 1:146),
+    each as a sorted list; modules outside the graph are leaves."""
+    index, low, stack, on_stack, circles = {}, {}, [], set(), []
+
+    def visit(v):  # iterative depth-first search: no recursion limit on deep packages
+        work = [(v, iter(sorted(graph.get(v, ()))))]
+        index[v] = low[v] = len(index)
+        stack.append(v)
+        on_stack.add(v)
+        while work:
+            node, children = work[-1]
+            child = next(children, None)
+            if child is None:
+                work.pop()
+                if work:
+                    low[work[-1][0]] = min(low[work[-1][0]], low[node])
+                if low[node] == index[node]:
+                    group = []
+                    while True:
+                        w = stack.pop()
+                        on_stack.discard(w)
+                        group.append(w)
+                        if w == node:
+                            break
+                    if len(group) > 1:
+                        circles.append(sorted(group))
+            elif child not in index:
+                index[child] = low[child] = len(index)
+                stack.append(child)
+                on_stack.add(child)
+                work.append((child, iter(sorted(graph.get(child, ())))))
+            elif child in on_stack:
+                low[node] = min(low[node], index[child])
+
+    for v in sorted(graph):
+        if v not in index:
+            visit(v)
+    return sorted(circles)
+
+
+def module_lines_outside_kernels(source, kernel_decorators):
+    """Lines of a module minus those of its numba kernels."""
+    kernel_lines = 0
+    for node in ast.walk(ast.parse(source)):
+        if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)):
+            decorators = {ast.unparse(d.func if isinstance(d, ast.Call) else d) for d in node.decorator_list}
+            if decorators & kernel_decorators:
+                first = min([node.lineno] + [d.lineno for d in node.decorator_list])
+                kernel_lines += node.end_lineno - first + 1
+    return len(source.splitlines()) - kernel_lines
 
 
 def numba_decorator_names():
@@ -158,11 +264,67 @@ def test_the_checker_sees_upward_relative_unknown_and_lazy_imports():
     assert len(layer_violations("from ..forward import model\n", chem)) == 1
     # the top level counts as the inference layer
     assert len(layer_violations("import ventsource\n", chem)) == 1
+    assert len(layer_violations("import ventsource\n", PACKAGE / "workflow" / "x.py")) == 1
+    assert layer_violations("import ventsource\n", PACKAGE / "bench" / "x.py") == []
     assert layer_violations("from ventsource import __version__\n", PACKAGE / "workflow" / "x.py") == []
     with pytest.raises(UnknownSubpackage, match="'ventsource.plotting' is not in the layer table"):
         layer_violations("from ventsource.plotting import draw\n", chem)
     with pytest.raises(UnknownSubpackage, match="'ventsource.plotting' is not in the layer table"):
         layer_violations("x = 1\n", PACKAGE / "plotting" / "draw.py")
+
+
+def test_sublayers_of_inference_run_downward():
+    """The checker sees an import from a higher sub-layer of inference, lazy or not."""
+    hyp = PACKAGE / "inference" / "hypotheses" / "made_up.py"
+    assert len(layer_violations("def f():\n    from ventsource.inference.row import one_measurement\n", hyp)) == 1
+    assert len(layer_violations("from ventsource.inference.window.target import WindowTarget\n", hyp)) == 1
+    assert layer_violations("from ventsource.inference.priors import load_prior_file\n"
+                            "from ventsource.inference.likelihood import Measurement\n", hyp) == []
+    row = PACKAGE / "inference" / "row" / "made_up.py"
+    assert layer_violations("from ventsource.inference.hypotheses.model_choice import model_flags\n", row) == []
+    with pytest.raises(UnknownSubpackage, match="'ventsource.inference.extras' is not in the sub-layer table"):
+        layer_violations("from ventsource.inference.extras import x\n", row)
+
+
+def all_sources():
+    return {path: path.read_text() for path in all_modules()}
+
+
+def test_no_import_circles():
+    circles = import_circles(import_graph(all_sources()))
+    assert not circles, "import circles (each set imports itself round about):\n" + "\n".join(
+        " <-> ".join(c) for c in circles)
+
+
+def test_the_circle_check_can_fail():
+    """Three made-up modules in a ring, one import lazy, one `from package import module`."""
+    base = PACKAGE / "workflow"
+    sources = {base / "series.py": "from ventsource.workflow.windows import x\n",
+               base / "windows.py": "def f():\n    from ventsource.workflow import figures\n",
+               base / "figures.py": "import ventsource.workflow.series\n",
+               base / "compare.py": "from ventsource.workflow.series import y\n"}
+    assert import_circles(import_graph(sources)) == [
+        ["ventsource.workflow.figures", "ventsource.workflow.series", "ventsource.workflow.windows"]]
+    # the version constant is no edge; the top level importing a module is one
+    sources = {PACKAGE / "__init__.py": "def f():\n    from ventsource.workflow import series\n",
+               base / "series.py": "from ventsource import __version__\n"}
+    assert import_circles(import_graph(sources)) == []
+    sources[base / "series.py"] = "import ventsource\n"
+    assert import_circles(import_graph(sources)) == [["ventsource", "ventsource.workflow.series"]]
+
+
+def test_modules_stay_under_the_limit():
+    kernels = numba_decorator_names()
+    too_long = [(str(path.relative_to(SRC)), n) for path in all_modules()
+                if (n := module_lines_outside_kernels(path.read_text(), kernels)) > MAX_MODULE_LINES]
+    assert not too_long, f"modules over {MAX_MODULE_LINES} lines outside numba kernels: {too_long}"
+
+
+def test_the_module_length_check_can_fail():
+    body = "".join(f"x{i} = {i}\n" for i in range(401))
+    assert module_lines_outside_kernels(body, {"njit"}) == 401
+    kernel = "@njit(cache=True)\ndef k():\n" + "".join(f"    y{i} = {i}\n" for i in range(100))
+    assert module_lines_outside_kernels(body[:-len("x400 = 400\n")] + kernel, {"njit"}) == 400
 
 
 def test_functions_fit_on_a_screen():

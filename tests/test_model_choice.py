@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 
 from toy_models import ScrubToyForward, scrub_toy_prior
-from ventsource.inference.one_measurement import CAUTION, InferenceError, infer, prior_monte_carlo_evidence
+from ventsource.inference.row.one_measurement import CAUTION, InferenceError, infer, prior_monte_carlo_evidence
 from ventsource.inference.likelihood import Likelihood, Measurement
-from ventsource.inference.model_choice import posterior_model_probability, probability_below
+from ventsource.inference.hypotheses.model_choice import posterior_model_probability, probability_below
 
 warnings.filterwarnings("ignore", category=FutureWarning)
 
@@ -115,7 +115,7 @@ def test_inference_data_contents_summary_and_plot():
     assert idata.sample_stats.attrs["n_forward_evals"] > 0
     ll_sum = sum(idata.log_likelihood[v].values for v in idata.log_likelihood.data_vars)
     np.testing.assert_allclose(ll_sum, idata.sample_stats["total_log_likelihood"].values)
-    df = r.summary()
+    df = r.summary("M1")
     assert list(df.columns) == ["units", "median", "5%", "95%", "mean", "sd", "r_hat", "ess_bulk", "ess_tail"]
     assert list(df.index) == ["depth", "scrubbed_so2"]
     assert (df["5%"] < df["median"]).all() and (df["median"] < df["95%"]).all()

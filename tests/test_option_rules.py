@@ -2,7 +2,7 @@
 import pytest
 
 from ventsource.inference.likelihood import Measurement
-from ventsource.inference.one_measurement import _DEFAULTS, InferenceError, infer
+from ventsource.inference.row.one_measurement import _DEFAULTS, InferenceError, infer
 from ventsource.inference.option_rules import OPTION_RULES, OptionError, check_option, check_options
 
 

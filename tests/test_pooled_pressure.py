@@ -1,4 +1,4 @@
-"""Pooled per-row pressures of the window model (ventsource.inference.pooled_pressure).
+"""Pooled per-row pressures of the window model (ventsource.inference.window.pooled_pressure).
 
 The copula must leave each row's prior exactly the prior file's: checked against the
 file's own pressure distribution by Monte Carlo over the copula's centre and spread,
@@ -13,9 +13,9 @@ from scipy import stats
 
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
-from ventsource.inference.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights
+from ventsource.inference.window.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights
 from ventsource.inference.priors import load_prior_file
-from ventsource.inference.window import WindowTarget, pressure_grid
+from ventsource.inference.window.target import WindowTarget, pressure_grid
 
 ROOT = Path(__file__).resolve().parents[1]
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
@@ -68,7 +68,7 @@ def test_rows_at_one_pressure_pool_and_recover_the_source(basalt):
     """10 unscrubbed rows made at 150-180 bar from one arc_basalt source: the pooled model
     finds the rows alike (spread median below 0.3) and keeps the true dFMQ and pressure
     inside their 90 % bands."""
-    from ventsource.inference.window_inference import infer_window
+    from ventsource.inference.window.sampling import infer_window
     spec, forward = basalt
     rng = np.random.default_rng(21)
     names = list(spec.free_names)

@@ -104,7 +104,7 @@ def test_series_figure_marks_flags_and_units_of_pressure(small_run, tmp_path):
 
 
 def test_plain_number_ticks():
-    from ventsource.workflow.figures import plain_number
+    from ventsource.workflow.log_axes import plain_number
     assert [plain_number(v) for v in (0.2, 0.5, 1.0, 2.0, 300.0)] == ["0.2", "0.5", "1", "2", "300"]
 
 
@@ -267,7 +267,7 @@ def test_every_option_has_help_with_default():
 
 def test_compile_notice_only_with_empty_cache(tmp_path, monkeypatch):
     import ventsource
-    from ventsource.cli import main as cli
+    from ventsource.cli import shared as cli
     fake = tmp_path / "ventsource"
     (fake / "chemistry" / "__pycache__").mkdir(parents=True)
     monkeypatch.setattr(ventsource, "__file__", str(fake / "__init__.py"))
@@ -316,7 +316,7 @@ def test_unknown_law_lists_citations(tmp_path):
 
 def test_library_warnings_go_to_a_log(tmp_path, monkeypatch, capsys):
     import warnings
-    from ventsource.cli.main import route_warnings
+    from ventsource.cli.shared import route_warnings
     monkeypatch.setattr(warnings, "showwarning", warnings.showwarning)  # restored afterwards
     route_warnings(str(tmp_path))
     with warnings.catch_warnings():

@@ -12,8 +12,8 @@ from ventsource.ascent import observables
 from ventsource.chemistry.species import INDEX, SPECIES
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors.distributions import LogUniform, Uniform
-from ventsource.inference.release_marginal import ReleaseMarginal
-from ventsource.inference.so2_marginal import ScrubbingMarginal
+from ventsource.inference.hypotheses.release_marginal import ReleaseMarginal
+from ventsource.inference.hypotheses.so2_marginal import ScrubbingMarginal
 
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 

@@ -151,7 +151,8 @@ def test_disk_full_during_a_run_is_one_line_and_resumable(inputs, tmp_path, monk
         with open(path, "wb") as fh:
             fh.write(b"CDF\x01" + b"\0" * 100)
         _no_space()
-    monkeypatch.setattr(series_mod, "write_netcdf", half_written)
+    from ventsource.workflow import row_jobs
+    monkeypatch.setattr(row_jobs, "write_netcdf", half_written)
     with pytest.raises(InputError) as err:
         run_series(read_measurements(data), prior, out, seed=5, options=TINY, progress_stream=open(os.devnull, "w"))
     msg = str(err.value)

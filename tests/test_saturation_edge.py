@@ -8,8 +8,8 @@ from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import load_prior_file
 from ventsource.inference.priors.distributions import LogUniform
-from ventsource.inference.saturation_edge import edge_nodes, edge_positions, trapezoid_log_weights
-from ventsource.inference.window import WindowTarget, pressure_grid
+from ventsource.inference.window.saturation_edge import edge_nodes, edge_positions, trapezoid_log_weights
+from ventsource.inference.window.target import WindowTarget, pressure_grid
 
 ROOT = Path(__file__).resolve().parents[1]
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")

@@ -155,9 +155,9 @@ def test_dask_scheduler_address(one_worker, data_file, tmp_path):
 
 def test_dask_scheduler_unreachable_is_one_line(data_file, tmp_path, monkeypatch):
     pytest.importorskip("distributed")
-    from ventsource.workflow import series
+    from ventsource.workflow import row_jobs
     from ventsource.common.errors import InputError
-    monkeypatch.setattr(series, "DASK_CONNECT_TIMEOUT_S", 1)
+    monkeypatch.setattr(row_jobs, "DASK_CONNECT_TIMEOUT_S", 1)
     with pytest.raises(InputError, match="cannot connect"):
         run_series(read_measurements(data_file), PRIOR, str(tmp_path / "x"), options=TINY,
                    dask_scheduler="tcp://127.0.0.1:1", progress_stream=io.StringIO())

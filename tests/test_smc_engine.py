@@ -17,7 +17,7 @@ from toy_models import ScrubToyForward, scrub_toy_prior
 from ventsource.inference.engines.smc_engine import tempered_smc
 from ventsource.inference.evidence.bridge import Transform
 from ventsource.inference.likelihood import Measurement
-from ventsource.inference.one_measurement import InferenceError, infer
+from ventsource.inference.row.one_measurement import InferenceError, infer
 from ventsource.inference.priors import load_prior_file
 
 LO = np.array([-2.0, 0.0, -5.0])

@@ -28,10 +28,10 @@ from ventsource.forward.model import ForwardModel
 from ventsource.inference.engines.smc_engine import tempered_smc
 from ventsource.inference.evidence.bridge import Transform
 from ventsource.inference.likelihood import Likelihood, Measurement
-from ventsource.inference.model_choice import posterior_model_probability
-from ventsource.inference.one_measurement import infer
+from ventsource.inference.hypotheses.model_choice import posterior_model_probability
+from ventsource.inference.row.one_measurement import infer
 from ventsource.inference.priors import load_prior_file
-from ventsource.inference.smc_measurement import model_draws, model_probabilities, run_smc
+from ventsource.inference.row.smc_measurement import model_draws, model_probabilities, run_smc
 
 pytestmark = pytest.mark.slow
 

@@ -24,7 +24,7 @@ from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import load_prior_file
 from ventsource.inference.priors.distributions import Beta
-from ventsource.inference.so2_marginal import ScrubbingMarginal
+from ventsource.inference.hypotheses.so2_marginal import ScrubbingMarginal
 
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 PRIORS = Path(__file__).resolve().parents[1] / "priors"

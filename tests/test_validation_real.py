@@ -28,9 +28,9 @@ from scipy import stats
 
 from dynesty_reference import dynesty_log_evidences
 from ventsource.forward.model import ForwardModel
-from ventsource.inference.one_measurement import infer, prior_monte_carlo_evidence
+from ventsource.inference.row.one_measurement import infer, prior_monte_carlo_evidence
 from ventsource.inference.likelihood import Likelihood, Measurement
-from ventsource.inference.model_choice import posterior_model_probability
+from ventsource.inference.hypotheses.model_choice import posterior_model_probability
 from ventsource.inference.priors import load_prior_file
 from ventsource.inference.engines.emcee_engine import sample_posterior
 

@@ -13,8 +13,8 @@ from ventsource.common.errors import InputError
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import load_prior_file
-from ventsource.inference.window import WindowTarget
-from ventsource.inference.window_inference import infer_window
+from ventsource.inference.window.target import WindowTarget
+from ventsource.inference.window.sampling import infer_window
 from ventsource.workflow.windows import assign_windows, parse_window_option
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -77,7 +77,7 @@ def test_pressure_quadrature_against_a_much_finer_grid(basalt):
 def test_window_of_one_row_matches_the_single_row_inversion(basalt):
     """A window of one row is the single-row model with pressure integrated out by
     quadrature instead of sampled: P(M0) agrees within Monte Carlo error."""
-    from ventsource.inference.one_measurement import infer
+    from ventsource.inference.row.one_measurement import infer
     spec, forward = basalt
     meas, _ = synthetic_window(spec, forward, 2, np.array([0.0, 0.0]), seed=11)
     single = infer(meas[0], spec, forward=forward, seed=3)
@@ -114,7 +114,7 @@ def test_window_acceptance_magmatic_and_scrubbed_rows(basalt, capsys):
     """12 rows, one source, pressures 50-1500 bar, 6 unscrubbed and 6 with 50-90 % of their
     SO2 scrubbed: every magmatic row P(M0) >= 0.6 and their mean >= 0.8; every scrubbed row
     P(M0) <= 0.1. The same rows inverted one at a time are printed beside them."""
-    from ventsource.inference.one_measurement import infer
+    from ventsource.inference.row.one_measurement import infer
     spec, forward = basalt
     scrubbed = np.r_[np.zeros(6), np.linspace(0.5, 0.9, 6)]
     meas, theta = synthetic_window(spec, forward, 12, scrubbed)
@@ -200,7 +200,7 @@ def test_heavy_scrubbing_in_the_second_half_is_not_read_as_a_change_of_source(ba
 
 
 def test_a_failed_split_check_flags_the_window_and_keeps_its_rows(basalt, monkeypatch):
-    import ventsource.inference.window_inference as wi
+    import ventsource.inference.window.sampling as wi
 
     def no_usable_state(*args, **kwargs):
         raise wi.WindowError("window: no prior draw gives a finite likelihood")

@@ -1,4 +1,4 @@
-"""Compiled per-row evidences of the window model (ventsource.inference.window_kernels).
+"""Compiled per-row evidences of the window model (ventsource.inference.window.kernels).
 
 log Phi is checked against scipy.special.log_ndtr (reference library) over the body and
 both tails; the compiled row evidences against the NumPy path of the same window, which
@@ -13,8 +13,8 @@ from scipy import special
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import load_prior_file
-from ventsource.inference.window import WindowTarget, _log_sum_weighted
-from ventsource.inference.window_kernels import log_diff_ndtr, log_ndtr
+from ventsource.inference.window.target import WindowTarget, _log_sum_weighted
+from ventsource.inference.window.kernels import log_diff_ndtr, log_ndtr
 from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
 
 ROOT = Path(__file__).resolve().parents[1]

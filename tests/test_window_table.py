@@ -16,8 +16,8 @@ import pytest
 from ventsource.forward.model import ForwardModel
 from ventsource.inference.likelihood import Likelihood, Measurement
 from ventsource.inference.priors import PriorFileError, parse_prior
-from ventsource.inference.window import WindowTarget
-from ventsource.inference.window_inference import infer_window
+from ventsource.inference.window.target import WindowTarget
+from ventsource.inference.window.sampling import infer_window
 
 ROOT = Path(__file__).resolve().parents[1]
 FAST = ROOT / "priors" / "demo_mount_kerrow_fast.toml"
@@ -150,7 +150,7 @@ def test_one_row_shared_pressure_window_matches_the_single_row_inversion(one_pre
     fraction integrated out): P(M0) within 4 combined Monte Carlo errors + 0.03 (as for
     the per-row-pressure window in test_window.py), and the pressure median likewise
     inside the single-row 90 % interval."""
-    from ventsource.inference.one_measurement import infer
+    from ventsource.inference.row.one_measurement import infer
     per, shared, fwd, meas = one_pressure
     single = infer(meas[0], per, forward=fwd, seed=3)
     window = infer_window(meas[:1], shared, forward=fwd, seed=3)

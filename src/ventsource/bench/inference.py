@@ -38,8 +38,8 @@ def bench_inference(quick=False):
     import warnings
 
     from ventsource.forward.model import ForwardModel
-    from ventsource.inference.one_measurement import infer, prior_monte_carlo_evidence
-    from ventsource.inference.model_choice import posterior_model_probability
+    from ventsource.inference.row.one_measurement import infer, prior_monte_carlo_evidence
+    from ventsource.inference.hypotheses.model_choice import posterior_model_probability
     from ventsource.inference.priors import load_prior_file
 
     from ventsource.inference.priors.shipped import shipped_prior_path
@@ -64,7 +64,7 @@ def bench_inference(quick=False):
     for run in res.runs.values():
         if run.sample is not None:
             evals += run.sample.stats["n_forward_evals"] + run.sample.stats.get("n_forward_evals_bridge", 0)
-    table = res.summary()
+    table = res.summary("M1")
     ess_min = float(table["ess_bulk"].min())
     rhat_max = float(table["r_hat"].max())
     print(f"[inference] infer(): {seconds:.1f} s, {evals:,} forward evaluations, min bulk ESS {ess_min:.0f}, "

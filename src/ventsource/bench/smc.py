@@ -36,7 +36,7 @@ def _measurement(spec, names, rel, seed=2026):
 
 
 def _one_case(spec, label, names, rel, n_seeds, reference_particles):
-    from ventsource.inference.one_measurement import infer
+    from ventsource.inference.row.one_measurement import infer
     meas, forward = _measurement(spec, names, rel)
     forward.ratios(spec.full(spec.sample(np.random.default_rng(0), 64)))  # warm up
     p, cpu, evals, flags = [], [], [], []
@@ -59,7 +59,7 @@ def _one_case(spec, label, names, rel, n_seeds, reference_particles):
 
 def _brute_force_evals(spec, row, pilot):
     from ventsource.inference.evidence.bridge import prior_monte_carlo_evidence
-    from ventsource.inference.model_choice import posterior_model_probability
+    from ventsource.inference.hypotheses.model_choice import posterior_model_probability
     z1 = prior_monte_carlo_evidence(row["meas"], spec, row["forward"], n=pilot, seed=11)
     z0 = prior_monte_carlo_evidence(row["meas"], spec.with_fixed("scrubbed_so2", 0.0), row["forward"],
                                     n=pilot, seed=12)

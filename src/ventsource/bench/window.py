@@ -35,14 +35,14 @@ def _window(spec, forward, n_rows, seed=5):
 def _warm_up_window_kernels(spec, forward):
     """One small window first: compiled loops, tables and the libraries used once per window
     (ArviZ for R-hat) load before any timing."""
-    from ventsource.inference.window_inference import infer_window
+    from ventsource.inference.window.sampling import infer_window
     infer_window(_window(spec, forward, 4), spec, forward=forward, seed=0, n_particles=40, n_runs=2,
                  split_particles=40)
 
 
 def bench_window(spec, quick=False):
     from ventsource.forward.model import ForwardModel
-    from ventsource.inference.window_inference import infer_window
+    from ventsource.inference.window.sampling import infer_window
     forward = ForwardModel(spec, ratio_names=NAMES)
     forward.ratios(spec.full(spec.sample(np.random.default_rng(0), 32)))  # warm up
     _warm_up_window_kernels(spec, forward)

@@ -53,6 +53,14 @@ class Measurement:
     relative_sigma : relative 1-sigma per value (scalar broadcast allowed)
     censoring   : 0 exact, -1 upper limit (<x), +1 lower limit (>x)
     label       : free text (time stamp, sample id) for reports
+
+    >>> import ventsource as vs
+    >>> m = vs.Measurement.from_strings({"SO2/CO2": 0.55, "H2S/SO2": 0.22, "H2O/CO2": "<60"},
+    ...                                 relative_sigma=0.15, label="synthetic")
+    >>> m.ratio_names, m.censoring.tolist()
+    (('SO2/CO2', 'H2S/SO2', 'H2O/CO2'), [0, 0, -1])
+    >>> vs.Measurement(("SO2/CO2",), [0.4], relative_sigma=0.1).values.tolist()
+    [0.4]
     """
 
     ratio_names: tuple

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from ventsource.common.caution import CAUTION
+from ventsource.workflow.log_axes import plain_log_axis
 
 INK = "#1d3557"
 BAND = "#b5651d"
@@ -29,39 +30,6 @@ def _footnote(fig):
 
 UNITS_RATIO = "mol/mol"
 FLAG_COLOUR = "#c0392b"
-
-
-def plain_number(value, _pos=None):
-    """Tick text in plain decimals (0.2, 0.5, 1, 2, 300), never powers of ten."""
-    if not np.isfinite(value) or value <= 0:
-        return ""
-    return f"{value:.6g}" if 1e-4 <= value < 1e6 else f"{value:.0e}"
-
-
-def _plain_at(leads):
-    """Minor-tick formatter: plain text only where the leading digit is one of leads."""
-    def fmt(value, _pos=None):
-        if not np.isfinite(value) or value <= 0:
-            return ""
-        lead = value / 10.0 ** np.floor(np.log10(value) + 1e-9)
-        return plain_number(value) if any(abs(lead - d) < 1e-6 for d in leads) else ""
-    return fmt
-
-
-def plain_log_axis(ax, axis="y"):
-    """Log scale with plain decimal labels: every digit inside one decade, 2 and 5 over a few
-    decades, powers of ten only over many."""
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-    target = ax.yaxis if axis == "y" else ax.xaxis
-    (ax.set_yscale if axis == "y" else ax.set_xscale)("log")
-    lo, hi = (ax.get_ylim() if axis == "y" else ax.get_xlim())
-    span = hi / lo if lo > 0 else np.inf
-    leads = (2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0) if span < 10 else (2.0, 5.0)
-    target.set_major_locator(LogLocator(base=10.0))
-    target.set_major_formatter(FuncFormatter(plain_number))
-    target.set_minor_locator(LogLocator(base=10.0, subs=leads))
-    target.set_minor_formatter(FuncFormatter(_plain_at(leads)) if span < 200 else NullFormatter())
-    target.get_offset_text().set_visible(False)
 
 
 def _read_summary(summary_csv):
@@ -324,7 +292,7 @@ def plot_corner(out_dir, row_ids, fig_dir=None, truth_csv=None):
     """Corner plot of the M1 posterior of each named row, from rows/KEY.nc; with truth_csv
     (a synthetic series) the true values are drawn as lines."""
     from ventsource.common.errors import InputError
-    from ventsource.workflow.series import row_key
+    from ventsource.workflow.run_folder import row_key
     plt = _plt()
     fig_dir = fig_dir or os.path.join(out_dir, "figures")
     os.makedirs(fig_dir, exist_ok=True)

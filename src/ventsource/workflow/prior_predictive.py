@@ -155,7 +155,7 @@ def ratio_plane_figure(table, x_ratio, y_ratio, data=None, title=""):
     import matplotlib.dates as mdates
     import matplotlib.pyplot as plt
     from matplotlib.patches import Patch
-    from ventsource.workflow.figures import plain_log_axis
+    from ventsource.workflow.log_axes import plain_log_axis
     if data is not None and not isinstance(data, pd.DataFrame):  # plain (k, 2) array of exact values
         data = pd.DataFrame({"x": data[:, 0], "y": data[:, 1], "time": pd.Timestamp("2000-01-01"),
                              "cens_x": 0, "cens_y": 0}) if len(data) else None

@@ -3,7 +3,7 @@
 A window is chosen by the user: `--window 30d` (consecutive spans of time from the
 first measurement: s, min, h, d, w), a `window` column in the measurement file (the
 user's own periods), or `--window 1` (every row alone, the row-by-row inversion).
-Each window's rows are inverted together (ventsource.inference.window_inference);
+Each window's rows are inverted together (ventsource.inference.window.sampling);
 each row's summary is written as rows/KEY.json and the shared posterior as
 windows/WKEY.nc, so an interrupted run keeps every finished window.
 """
@@ -62,7 +62,7 @@ def assign_windows(series, window):
 
 
 def window_key(label):
-    from ventsource.workflow.series import row_key
+    from ventsource.workflow.run_folder import row_key
     return row_key(f"window-{label}")
 
 
@@ -71,8 +71,9 @@ def invert_window(args):
     prior_path, prior_ref, label, ids, times, measurements, seed, options, out_dir = args
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()
-    from ventsource.inference.window_inference import WindowError, infer_window
-    from ventsource.workflow.series import _atomic, _cached_spec, _dump_json, file_sha256, row_key
+    from ventsource.inference.window.sampling import WindowError, infer_window
+    from ventsource.workflow.row_jobs import _cached_spec
+    from ventsource.workflow.run_folder import _atomic, _dump_json, file_sha256, row_key
     spec = _cached_spec(prior_path, prior_ref["sha256"])
     opts = {k: v for k, v in options.items() if k in _WINDOW_OPTION_NAMES}
     with warnings.catch_warnings():
@@ -134,7 +135,7 @@ def window_summary_columns(ratio_names):
 def read_done_windows(out_dir, groups, ids):
     """Rows of windows whose files are all present and agree (resume): every row's summary
     names the window file's sha256; anything else is inverted again."""
-    from ventsource.workflow.series import file_sha256, row_key
+    from ventsource.workflow.run_folder import file_sha256, row_key
     done = {}
     for label, idx in groups:
         nc = os.path.join(out_dir, "windows", f"{window_key(label)}.nc")

@@ -33,9 +33,9 @@ from ventsource.ascent.scrubbing import scrub
 from ventsource.inference.engines.smc_engine import SMCError, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
 from ventsource.inference.likelihood import Likelihood
-from ventsource.inference.model_choice import predictive_check
-from ventsource.inference.smc_measurement import model_averaged_quantiles
-from ventsource.inference.window import So2FreeWindowTarget, WindowTarget
+from ventsource.inference.hypotheses.model_choice import predictive_check
+from ventsource.inference.row.smc_measurement import model_averaged_quantiles
+from ventsource.inference.window.target import So2FreeWindowTarget, WindowTarget
 from ventsource.chemistry.species import INDEX
 
 _SO2, _CO2 = INDEX["SO2"], INDEX["CO2"]
@@ -83,10 +83,27 @@ class WindowResult:
     log10_bf_split: float = float("nan")        # one source vs a change of source mid-window
     log10_bf_split_error: float = float("nan")
 
+    def summary(self, model: str = "averaged"):
+        """pandas DataFrame, one row per measurement: P(M0) and its error, the scrubbed
+        fraction (model="averaged", the default: averaged over M0 and M1; "M1": if
+        scrubbed) and the pressure (model-averaged), 5 % / median / 95 %, and the flags."""
+        import pandas as pd
+        key = {"averaged": "scrubbed_model_averaged", "M1": "scrubbed_if_scrubbed",
+               "scrubbed": "scrubbed_if_scrubbed"}.get(model)
+        if key is None:
+            raise WindowError(f"window summary: unknown model {model!r}; known: averaged, M1")
+        rows = []
+        for r in self.rows:
+            row = {"label": r.label, "p_magmatic": r.p_magmatic, "p_magmatic_error": r.p_magmatic_error}
+            for name, q in (("scrubbed_so2", getattr(r, key)), ("pressure_bar", r.pressure_bar)):
+                row.update({f"{name}_q05": q[0], f"{name}_median": q[1], f"{name}_q95": q[2]})
+            rows.append(dict(row, flags=";".join(r.flags)))
+        return pd.DataFrame(rows)
+
     def idata(self):
         """The shared posterior as ArviZ InferenceData (units in attributes)."""
         import arviz as az
-        from ventsource.inference.one_measurement import CAUTION, PARAMETER_UNITS
+        from ventsource.inference.row.result import CAUTION, PARAMETER_UNITS
         post = {n: self.shared_draws[:, :, j] for j, n in enumerate(self.shared_names)}
         idata = az.from_dict(posterior=post)
         for n in self.shared_names:

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ventsource.chemistry.species import INDEX
-from ventsource.inference.so2_marginal import So2MultiplierMarginal
+from ventsource.inference.hypotheses.so2_marginal import So2MultiplierMarginal
 
 _SO2 = INDEX["SO2"]
 V_CEILING = np.log(1e3)   # r up to ~1000: a prior reaching further is cut here

@@ -16,7 +16,7 @@ import numpy as np
 
 from ventsource.ascent import observables
 from ventsource.chemistry.species import INDEX
-from ventsource.inference.release_marginal import released_gas
+from ventsource.inference.hypotheses.release_marginal import released_gas
 
 _SO2, _CO2 = INDEX["SO2"], INDEX["CO2"]
 
@@ -57,7 +57,7 @@ def release_draws(res, target, r2, rng):
     """M2 posterior: particles resampled by their M2 responsibility, r from p(r | gas, data).
 
     Returns (predicted ratios (R, N, m), r (R, N))."""
-    from ventsource.inference.smc_measurement import _resample_rows
+    from ventsource.inference.row.smc_measurement import _resample_rows
     R, N, _ = res.theta.shape
     preds, rs = [], []
     for r in range(R):

@@ -27,13 +27,13 @@ import numpy as np
 from scipy import special
 
 from ventsource.ascent import observables
-from ventsource.inference.release_marginal import ReleaseMarginal
-from ventsource.inference.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights, pooled_tilt
-from ventsource.inference.saturation_edge import (bisect_edge, edge_gas, edge_nodes, edge_positions,
+from ventsource.inference.hypotheses.release_marginal import ReleaseMarginal
+from ventsource.inference.window.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights, pooled_tilt
+from ventsource.inference.window.saturation_edge import (bisect_edge, edge_gas, edge_nodes, edge_positions,
                                                   trapezoid_log_weights)
 from ventsource.inference.priors.distributions import LogUniform
-from ventsource.inference.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
-from ventsource.inference.window_kernels import RowPack, qualifies
+from ventsource.inference.hypotheses.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
+from ventsource.inference.window.kernels import RowPack, qualifies
 
 # Forward solves per draw of psi and quadrature points per solved interval. Measured on
 # near-posterior draws of a synthetic 8-row arc_basalt window against 400 solves: 24 x 3

@@ -13,13 +13,13 @@ import numpy as np
 from ventsource.inference.engines.emcee_engine import SampleResult
 from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.inference.engines.smc_engine import SMCError
-from ventsource.inference.model_choice import (model_flags, predictive_check, probability_below,
+from ventsource.inference.hypotheses.model_choice import (model_flags, predictive_check, probability_below,
                                                release_flags)
-from ventsource.inference.one_measurement import InferenceError, InferenceResult, ModelRun, _to_idata
-from ventsource.inference.hypotheses_smc import (budget_draws, log_evidences, log_priors,
+from ventsource.inference.row.result import InferenceError, InferenceResult, ModelRun, _to_idata
+from ventsource.inference.row.hypotheses_smc import (budget_draws, log_evidences, log_priors,
                                                  probabilities_with_errors, release_draws,
                                                  responsibilities)
-from ventsource.inference.smc_measurement import (model_averaged_quantiles, model_draws,
+from ventsource.inference.row.smc_measurement import (model_averaged_quantiles, model_draws,
                                                   model_probabilities, run_smc)
 
 MIN_DISTINCT_SHARE = 0.25   # fewer distinct particles than this share of N: flag

@@ -21,9 +21,10 @@ import numpy as np
 from ventsource.ascent import observables
 from ventsource.chemistry.species import INDEX
 from ventsource.inference.engines.emcee_engine import SamplerError
-from ventsource.inference.model_choice import posterior_model_probabilities
-from ventsource.inference.one_measurement import InferenceError, ModelRun, _run_model
-from ventsource.inference.release_marginal import released_gas
+from ventsource.inference.hypotheses.model_choice import posterior_model_probabilities
+from ventsource.inference.row.emcee_model import _run_model
+from ventsource.inference.row.result import InferenceError, ModelRun
+from ventsource.inference.hypotheses.release_marginal import released_gas
 
 RELEASE_NAME = "released_so2"
 NAMES = ["M0 magmatic", "M1 scrubbed", "M2 released"]

@@ -22,8 +22,8 @@ import numpy as np
 
 from ventsource.inference.engines.smc_engine import SMCResult, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
-from ventsource.inference.release_marginal import ReleaseMarginal
-from ventsource.inference.so2_marginal import ScrubbingMarginal
+from ventsource.inference.hypotheses.release_marginal import ReleaseMarginal
+from ventsource.inference.hypotheses.so2_marginal import ScrubbingMarginal
 from ventsource.ascent import observables
 from ventsource.ascent.scrubbing import scrub
 
