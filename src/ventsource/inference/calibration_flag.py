@@ -12,9 +12,11 @@ FLAG_SHARE = 0.10  # issue 28: more than 10 % of the posterior mass
 
 
 def _values(spec, draws, name):
+    """The draws of name, or its fixed value; None when the prior has neither."""
     if name in draws:
         return np.asarray(draws[name], dtype=float).ravel()
-    return np.array([float(spec.fixed_values[name])])
+    fixed = getattr(spec, "fixed_values", {})
+    return np.array([float(fixed[name])]) if name in fixed else None
 
 
 def shares_outside(spec, draws):
@@ -22,6 +24,8 @@ def shares_outside(spec, draws):
     an array (a fixed parameter may be absent: its value is taken from spec)."""
     p = _values(spec, draws, "pressure_bar")
     t = _values(spec, draws, "temperature_c")
+    if p is None or t is None or not isinstance(getattr(spec, "models", None), dict):
+        return {}
     p, t = np.broadcast_arrays(p, t)
     out = {}
     for key, law, rng in ranges_for(spec.models):
