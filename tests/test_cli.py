@@ -57,6 +57,7 @@ def test_forward_json(capsys):
     code, out, _ = run(["forward", "--prior", "priors/arc_basalt.toml", "--set", "pressure_bar=200",
                         "temperature_c=1100", "dfmq=1", "scrubbed_so2=0.3", "h2o_wt=4",
                         "co2_ppm=2000", "s_ppm=2000", "s_partition=100", "quench_temperature_c=900",
+                        "h2_retained_log10=0",
                         "--json"], capsys)
     assert code == 0
     doc = json.loads(out)
@@ -198,7 +199,7 @@ def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):
     prior.write_text(text)
     base = ["forward", "--prior", str(prior), "--json", "--set", "pressure_bar=1000", "temperature_c=1199",
             "dfmq=1.8", "scrubbed_so2=0", "h2o_wt=5.3", "co2_ppm=1980", "s_partition=354",
-            "quench_temperature_c=900"]
+            "quench_temperature_c=900", "h2_retained_log10=0"]
     code, out, _ = run(base + ["s_ppm=2380"], capsys)
     doc = json.loads(out)
     assert code == 0 and doc["status"] == "gas" and doc["open_path_started_at_cap"] is True

@@ -129,7 +129,8 @@ def test_sulfide_capacity_closes_the_sulfur_balance_and_retains_sulfur():
     for st in states:
         ok = st["status"] == STATUS_OK
         assert ok.mean() > 0.9
-        x, g = st["magmatic_gas"][ok], st["gas_wt_fraction"][ok]
+        # the gas the melt exchanged with (at depth): air oxidation of H2 in the plume adds O
+        x, g = st["deep_gas"][ok], st["gas_wt_fraction"][ok]
         per_gram = (x @ ELEMENT_MATRIX) / (x @ MOLAR_MASS_G_MOL)[:, None]
         s_bulk = theta[ok, low.parameter_names.index("s_ppm")] * 1e-6 / 32.06
         s_back = g * per_gram[:, 3] + (1 - g) * st["melt_s_ppm"][ok] * 1e-6 / 32.06

@@ -37,7 +37,7 @@ from ventsource.inference.engines.emcee_engine import sample_posterior
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 PRIOR = Path(__file__).resolve().parents[1] / "priors" / "arc_basalt.toml"
 FIXED = {"pressure_bar": 1000.0, "temperature_c": 1150.0, "h2o_wt": 4.0, "co2_ppm": 3000.0,
-         "s_partition": 100.0}
+         "s_partition": 100.0, "quench_temperature_c": 900.0, "h2_retained_log10": 0.0}
 KINDS = {"magmatic": 0, "scrubbed": 1, "ambiguous": 2}
 
 

@@ -28,13 +28,14 @@ def basalt():
 
 
 def _with_quench(spec, quench):
-    """The same prior file with another [models] quench (quench parameters dropped for 'none')."""
+    """The same prior file with another [models] quench; for 'none' the quench and plume
+    parameters are dropped (the prior file as it was before the quench stage)."""
     import tomllib
     from ventsource.inference.priors import parse_prior
     data = tomllib.loads(Path(spec.path).read_text())
     data["models"]["quench"] = quench
     if quench == "none":
-        for name in ("quench_temperature_c", "quench_pressure_bar"):
+        for name in ("quench_temperature_c", "quench_pressure_bar", "h2_retained_log10"):
             data["parameters"].pop(name, None)
     return parse_prior(data, spec.path)
 
@@ -60,8 +61,9 @@ def synthetic_window(spec, forward, n_rows, scrubbed, seed=5, change_source=Fals
     return [Measurement(NAMES, obs[i], 0.15, label=f"r{i}") for i in range(n_rows)], theta
 
 
-@pytest.mark.parametrize("quench,max_limit,p95_limit", [("none", 1.0, 0.1), ("gas_buffered", 1.5, 0.3)])
-def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, max_limit, p95_limit):
+@pytest.mark.parametrize("quench,max_limit,p95_limit,resp_limit",
+                         [("none", 1.0, 0.1, 0.03), ("gas_buffered", 1.5, 0.3, 0.08)])
+def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, max_limit, p95_limit, resp_limit):
     """Row evidences on the default grid (48 solves, 2 quadrature points per interval)
     against 400 solved pressures, on the draws that matter: the 60 best of 3000 prior
     draws of the magma for an 8-row window (pressures 50-1500 bar, half scrubbed). Levels
@@ -71,7 +73,10 @@ def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, max_limit
     percentile 0.06, responsibilities within 0.008 (the old 24 x 3 grid: 0.34 and 0.047).
     With the shipped gas-buffered quench the grid resolves less well: measured on the M0
     evidences 0.31 nats at most, 95th percentile 0.20 (in the deep, CO2-rich rows, H2O/CO2
-    3-10), on the M1 evidences 1.18 and 0.10; open item: a finer grid there."""
+    3-10), on the M1 evidences 1.18 and 0.10; with H2 burnt in the plume as a further
+    parameter (the shipped arc_basalt; other draws, the same grid) 0.19 and 0.03 (M0),
+    0.78 and 0.05 (M1), responsibilities within 0.045. The limits below are set for
+    both measurements. Open item: a finer grid there."""
     spec, forward = basalt
     if quench != spec.models["quench"]:
         spec, forward = _with_quench(spec, quench), None
@@ -91,7 +96,7 @@ def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, max_limit
                                                                          np.quantile(err, 0.95))
     r_coarse = 1.0 / (1.0 + np.exp(a[1] - a[0]))
     r_fine = 1.0 / (1.0 + np.exp(b[1] - b[0]))
-    assert np.max(np.abs(r_coarse - r_fine)) < 0.03
+    assert np.max(np.abs(r_coarse - r_fine)) < resp_limit
 
 
 def test_window_of_one_row_matches_the_single_row_inversion(basalt):

@@ -11,6 +11,7 @@ from ventsource.ascent import observables
 from ventsource.common.errors import InputError
 from ventsource.ascent.scrubbing import scrub
 from ventsource.ascent.quench import quench
+from ventsource.ascent.plume_oxidation import oxidise_h2
 from ventsource.magma.solubility_registry import prepare_co2, prepare_h2o
 from ventsource.magma.solubility_h2o import LAW_POWER, prepare_power
 from ventsource.chemistry.species import SPECIES
@@ -21,12 +22,13 @@ STATUS_FAILED = degassing.STATUS_FAILED
 
 DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0,
             "s_partition": float("nan"), "quench_temperature_c": float("nan"),
-            "quench_pressure_bar": 1.0}
+            "quench_pressure_bar": 1.0, "h2_retained_log10": 0.0}
 UNITS = {"pressure_bar": "bar", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
          "scrubbed_so2": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by weight",
          "s_ppm": "ppm by weight", "s_partition": "mass fraction ratio gas/melt",
          "scrubbed_h2s": "fraction", "h2s_return": "fraction", "exsolved_gas_wt": "wt%",
-         "quench_temperature_c": "degC", "quench_pressure_bar": "bar"}
+         "quench_temperature_c": "degC", "quench_pressure_bar": "bar",
+         "h2_retained_log10": "log10 of the fraction of H2 not burnt by air"}
 
 
 class ForwardModel:
@@ -81,6 +83,8 @@ class ForwardModel:
                               saturation=saturation, open_steps=self.open_steps,
                               sulfide_capacity=self.sulfide_capacity)
         vent_gas, status = self._quench(theta, res)
+        if "h2_retained_log10" in self._index:  # H2 burnt by air in the plume
+            vent_gas = oxidise_h2(vent_gas, col("h2_retained_log10"))
         gas = scrub(vent_gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
                     col("h2s_return"))
         return {

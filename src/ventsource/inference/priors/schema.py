@@ -8,7 +8,7 @@ REQUIRED_PARAMETERS = (
     "pressure_bar", "temperature_c", "dfmq", "scrubbed_so2", "h2o_wt", "co2_ppm", "s_ppm",
 )
 OPTIONAL_PARAMETERS = ("s_partition", "scrubbed_h2s", "h2s_return", "exsolved_gas_wt",
-                       "quench_temperature_c", "quench_pressure_bar")
+                       "quench_temperature_c", "quench_pressure_bar", "h2_retained_log10")
 
 # Physical limits: (lower, upper, lower_open, upper_open). A prior's whole
 # support must lie inside. Pressure, temperature and dFMQ limits are the
@@ -30,6 +30,7 @@ PHYSICAL_LIMITS: dict[str, tuple[float, float, bool, bool]] = {
     # water or sulfur above ~400 C at 1 bar; common practice, no source)
     "quench_temperature_c": (400.0, 1300.0, False, False),
     "quench_pressure_bar": (1.0, 5000.0, False, False),
+    "h2_retained_log10": (-8.0, 0.0, False, False),
 }
 
 REQUIRED_OXIDES = ("SiO2", "TiO2", "Al2O3", "FeOt", "MgO", "CaO", "Na2O", "K2O")
