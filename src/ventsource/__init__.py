@@ -1,6 +1,6 @@
 """ventsource: Bayesian inversion of volcanic gas ratios."""
 
-__version__ = "0.2.0"
+__version__ = "0.3.0"
 
 
 
