@@ -1,5 +1,7 @@
 """Command-line behaviour: public option names, JSON shape, one-line errors with exit 2."""
 import json
+
+import numpy as np
 from pathlib import Path
 import subprocess
 import sys
@@ -54,12 +56,22 @@ def test_speciate_bad_input_is_one_line_exit_2(args, needle, capsys):
 def test_forward_json(capsys):
     code, out, _ = run(["forward", "--prior", "priors/arc_basalt.toml", "--set", "pressure_bar=200",
                         "temperature_c=1100", "dfmq=1", "scrubbed_so2=0.3", "h2o_wt=4",
-                        "co2_ppm=2000", "s_ppm=2000", "s_partition=100", "--json"], capsys)
+                        "co2_ppm=2000", "s_ppm=2000", "s_partition=100", "quench_temperature_c=900",
+                        "h2_retained_log10=0",
+                        "--json"], capsys)
     assert code == 0
     doc = json.loads(out)
-    for key in ("ratios", "gas", "gas_wt_fraction", "saturation_pressure_bar"):
+    for key in ("ratios", "gas", "gas_wt_fraction", "saturation_pressure_bar", "deep_gas", "magmatic_gas"):
         assert key in doc
     assert doc["ratios"]["SO2/CO2"] > 0 and doc["saturation_pressure_bar"] > 200
+    # the shipped prior's gas-buffered quench re-speciates the gas at 900 C and 1 bar: the
+    # species move, the atoms do not (H, C, O, S per mole of H)
+    from ventsource.chemistry.species import ELEMENT_MATRIX, SPECIES
+    deep, vent = (np.array([doc[k][s] for s in SPECIES]) for k in ("deep_gas", "magmatic_gas"))
+    atoms_deep, atoms_vent = deep @ ELEMENT_MATRIX, vent @ ELEMENT_MATRIX
+    assert np.allclose(atoms_vent / atoms_vent[0], atoms_deep / atoms_deep[0], rtol=1e-9)
+    h2s_so2 = [g[SPECIES.index("H2S")] / g[SPECIES.index("SO2")] for g in (deep, vent)]
+    assert abs(np.log10(h2s_so2[1] / h2s_so2[0])) > 0.05
 
 
 @pytest.mark.parametrize("extra,needle", [
@@ -186,7 +198,8 @@ def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):
     prior = tmp_path / "open.toml"
     prior.write_text(text)
     base = ["forward", "--prior", str(prior), "--json", "--set", "pressure_bar=1000", "temperature_c=1199",
-            "dfmq=1.8", "scrubbed_so2=0", "h2o_wt=5.3", "co2_ppm=1980", "s_partition=354"]
+            "dfmq=1.8", "scrubbed_so2=0", "h2o_wt=5.3", "co2_ppm=1980", "s_partition=354",
+            "quench_temperature_c=900", "h2_retained_log10=0"]
     code, out, _ = run(base + ["s_ppm=2380"], capsys)
     doc = json.loads(out)
     assert code == 0 and doc["status"] == "gas" and doc["open_path_started_at_cap"] is True

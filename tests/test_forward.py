@@ -98,7 +98,8 @@ def test_gas_exsolved_at_depth_makes_the_gas_co2_richer():
     spec = load_prior_file("priors/demo_mount_kerrow.toml")
     model = ForwardModel(spec, ("SO2/CO2", "H2O/CO2"))
     base = dict(pressure_bar=150, temperature_c=1080, dfmq=1, scrubbed_so2=0, h2o_wt=4,
-                co2_ppm=1500, s_ppm=1500, s_partition=80, scrubbed_h2s=0, h2s_return=0.5)
+                co2_ppm=1500, s_ppm=1500, s_partition=80, scrubbed_h2s=0, h2s_return=0.5,
+                quench_temperature_c=900)
     rows = [[dict(base, exsolved_gas_wt=w)[n] for n in spec.parameter_names] for w in (0.0, 0.2, 1.0)]
     r = model.ratios(np.array(rows, dtype=float))
     assert np.all(np.isfinite(r))
@@ -128,7 +129,8 @@ def test_sulfide_capacity_closes_the_sulfur_balance_and_retains_sulfur():
     for st in states:
         ok = st["status"] == STATUS_OK
         assert ok.mean() > 0.9
-        x, g = st["magmatic_gas"][ok], st["gas_wt_fraction"][ok]
+        # the gas the melt exchanged with (at depth): air oxidation of H2 in the plume adds O
+        x, g = st["deep_gas"][ok], st["gas_wt_fraction"][ok]
         per_gram = (x @ ELEMENT_MATRIX) / (x @ MOLAR_MASS_G_MOL)[:, None]
         s_bulk = theta[ok, low.parameter_names.index("s_ppm")] * 1e-6 / 32.06
         s_back = g * per_gram[:, 3] + (1 - g) * st["melt_s_ppm"][ok] * 1e-6 / 32.06

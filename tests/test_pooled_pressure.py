@@ -53,12 +53,14 @@ def test_spread_one_is_the_independent_model(basalt):
 
 def test_each_rows_prior_is_the_prior_files_pressure_prior(basalt):
     """Averaged over the copula's centre and spread (their priors), one row's pressure
-    weights are the prior file's: 40,000 Monte Carlo draws, within 0.01 of total mass."""
+    weights are the prior file's: 160,000 Monte Carlo draws, within 0.01 of total mass
+    (the Monte Carlo noise of this distance is about 0.01 at 40,000 draws, 0.005-0.006
+    at 160,000: measured over three seeds)."""
     spec, _ = basalt
     _, _, log_w = pressure_grid(spec.distributions["pressure_bar"])
     z = normal_scores(log_w)
     prior = PooledPrior(spec.with_fixed("pressure_bar", 100.0).with_fixed("scrubbed_so2", 0.0))
-    hyper = prior.sample(np.random.default_rng(4), 40000)[:, -2:]
+    hyper = prior.sample(np.random.default_rng(4), 160000)[:, -2:]
     mean = np.exp(pooled_log_weights(log_w, z, hyper)).mean(axis=0)
     assert 0.5 * np.abs(mean - np.exp(log_w)).sum() < 0.01
 

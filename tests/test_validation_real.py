@@ -37,7 +37,7 @@ from ventsource.inference.engines.emcee_engine import sample_posterior
 NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
 PRIOR = Path(__file__).resolve().parents[1] / "priors" / "arc_basalt.toml"
 FIXED = {"pressure_bar": 1000.0, "temperature_c": 1150.0, "h2o_wt": 4.0, "co2_ppm": 3000.0,
-         "s_partition": 100.0}
+         "s_partition": 100.0, "quench_temperature_c": 900.0, "h2_retained_log10": 0.0}
 KINDS = {"magmatic": 0, "scrubbed": 1, "ambiguous": 2}
 
 
@@ -132,10 +132,12 @@ CONSTRAINED = Path(__file__).resolve().parent / "data" / "arc_basalt_constrained
 @pytest.fixture(scope="module")
 def constrained():
     """arc_basalt with S content and dfmq pinned (as melt inclusions would) and a
-    non-local beta(2, 2) prior on scrubbed_so2; same fixed values as `reduced`."""
+    non-local beta(2, 2) prior on scrubbed_so2; same fixed values as `reduced` (its file
+    has no quench stage, so the quench and plume parameters are not among them)."""
     spec = load_prior_file(CONSTRAINED)
     for name, value in FIXED.items():
-        spec = spec.with_fixed(name, value)
+        if name in spec.distributions:
+            spec = spec.with_fixed(name, value)
     return spec, ForwardModel(spec, ratio_names=NAMES)
 
 

@@ -19,7 +19,7 @@ NumPy loads).
 ['ForwardModel', 'Measurement', 'compare']
 """
 
-__version__ = "0.2.0"
+__version__ = "0.3.0"
 
 __all__ = ["Measurement", "load_prior", "read_measurements", "infer", "infer_window", "run",
            "compare", "ForwardModel"]

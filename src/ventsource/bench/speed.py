@@ -112,6 +112,8 @@ def bench_forward(cantera_per_state, quick=False):
             line += (f" -> {cantera_per_state / per_state:.1f}x Cantera's per-state time "
                      f"(target >= {target}x)")
         print(line)
+    from ventsource.bench.quench import bench_quench
+    bench_quench(spec, theta, _best_of, batches=(32, big))
     bench_open_style(model, spec, theta[:300 if quick else 2000])
 
 

@@ -95,6 +95,7 @@ def _forward_summary(args, spec, theta, state, ratio_names, label):
         "gas_wt_fraction": float(state["gas_wt_fraction"][0]),
         "gas": {n: _finite_or_none(gas[i]) for i, n in enumerate(SPECIES)},
         "magmatic_gas": {n: _finite_or_none(state["magmatic_gas"][0][i]) for i, n in enumerate(SPECIES)},
+        "deep_gas": {n: _finite_or_none(state["deep_gas"][0][i]) for i, n in enumerate(SPECIES)},
         "melt": {"h2o_wt": float(state["melt_h2o_wt"][0]), "co2_ppm": float(state["melt_co2_ppm"][0]),
                  "s_ppm": float(state["melt_s_ppm"][0])},
         "ratios": {r: _finite_or_none(state["ratios"][0][k]) for k, r in enumerate(ratio_names)},

@@ -33,7 +33,9 @@ def cmd_prior_predictive(args):
         raise InputError("-n must be at least 1")
     spec = _load_prior(args.prior)
     announce_compilation()
-    run_prior_predictive(spec, args.n, args.table, plot_path=args.plot, data_path=args.data,
-                         x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
+    table = run_prior_predictive(spec, args.n, args.table, plot_path=args.plot, data_path=args.data,
+                                 x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
     print(f"wrote {args.table}, {args.table}.README.txt" + (f" and {args.plot}" if args.plot else ""))
+    from ventsource.workflow.calibration_report import calibration_lines
+    print("\n".join(calibration_lines(spec, table)))
     return 0

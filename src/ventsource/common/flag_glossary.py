@@ -38,6 +38,9 @@ FLAG_GLOSSARY = {
     "m2_many_failed_states": "More than half of the released-sulfur model's evaluations released "
                              "no gas.",
     "m2_no_valid_state": "No state of the released-sulfur model released gas at these conditions.",
+    "outside_calibration": "More than 10 % of this row's posterior lies outside the pressure or "
+                           "temperature range a solubility law of the prior was calibrated for; "
+                           "there the law extrapolates.",
 }
 
 

@@ -10,6 +10,8 @@ from ventsource.magma import degassing
 from ventsource.ascent import observables
 from ventsource.common.errors import InputError
 from ventsource.ascent.scrubbing import scrub
+from ventsource.ascent.quench import quench
+from ventsource.ascent.plume_oxidation import oxidise_h2
 from ventsource.magma.solubility_registry import prepare_co2, prepare_h2o
 from ventsource.magma.solubility_h2o import LAW_POWER, prepare_power
 from ventsource.chemistry.species import SPECIES
@@ -19,11 +21,14 @@ STATUS_NO_GAS = degassing.STATUS_NO_GAS
 STATUS_FAILED = degassing.STATUS_FAILED
 
 DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0,
-            "s_partition": float("nan")}
+            "s_partition": float("nan"), "quench_temperature_c": float("nan"),
+            "quench_pressure_bar": 1.0, "h2_retained_log10": 0.0}
 UNITS = {"pressure_bar": "bar", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
          "scrubbed_so2": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by weight",
          "s_ppm": "ppm by weight", "s_partition": "mass fraction ratio gas/melt",
-         "scrubbed_h2s": "fraction", "h2s_return": "fraction", "exsolved_gas_wt": "wt%"}
+         "scrubbed_h2s": "fraction", "h2s_return": "fraction", "exsolved_gas_wt": "wt%",
+         "quench_temperature_c": "degC", "quench_pressure_bar": "bar",
+         "h2_retained_log10": "log10 of the fraction of H2 not burnt by air"}
 
 
 class ForwardModel:
@@ -48,6 +53,7 @@ class ForwardModel:
         self.style = models["degassing"]
         self.product = models["scrubbing_product"]
         self.eos = models["eos"]
+        self.quench = models.get("quench", "none")
         self.open_steps = open_steps
         self._index = {name: i for i, name in enumerate(self.parameter_names)}
 
@@ -76,11 +82,15 @@ class ForwardModel:
                               self.co2_law, style=self.style, eos=self.eos,
                               saturation=saturation, open_steps=self.open_steps,
                               sulfide_capacity=self.sulfide_capacity)
-        gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
+        vent_gas, status = self._quench(theta, res)
+        if "h2_retained_log10" in self._index:  # H2 burnt by air in the plume
+            vent_gas = oxidise_h2(vent_gas, col("h2_retained_log10"))
+        gas = scrub(vent_gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
                     col("h2s_return"))
         return {
-            "status": res.status,
-            "magmatic_gas": res.gas,
+            "status": status,
+            "deep_gas": res.gas,        # at the degassing pressure and temperature
+            "magmatic_gas": vent_gas,   # at the vent, after the quench, before scrubbing
             "gas": gas,
             "gas_wt_fraction": res.gas_wt_fraction,
             "melt_h2o_wt": res.melt_h2o_wt,
@@ -91,6 +101,24 @@ class ForwardModel:
             "closed_above_cap": res.closed_above_cap,
             "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
+
+    def _quench(self, theta, res):
+        """(gas at the vent before scrubbing, status): the degassed gas re-equilibrated
+        at the quench state (ascent/quench.py). The gas cannot be hotter, nor at a
+        higher pressure, than where it left the magma, so the quench state is capped
+        there. A row whose quench fails gets STATUS_FAILED."""
+        if self.quench == "none":
+            return res.gas, res.status
+        rows = np.flatnonzero(res.status == STATUS_OK)
+        col = lambda name: self._column(theta, name)[rows]  # noqa: E731
+        t_q = np.minimum(col("quench_temperature_c"), col("temperature_c"))
+        p_q = np.minimum(col("quench_pressure_bar"), col("pressure_bar"))
+        x, ok = quench(res.gas[rows], self.quench, t_q, p_q, col("dfmq"), eos=self.eos)
+        gas = np.array(res.gas, copy=True)
+        gas[rows] = x
+        status = np.array(res.status, copy=True)
+        status[rows[~ok]] = STATUS_FAILED
+        return gas, status
 
     def _add_exsolved_gas(self, theta, extra_wt, h2o, co2, s):
         """Add gas exsolved at depth to the bulk volatiles.

@@ -18,11 +18,13 @@ from ventsource.inference.priors.fields import (
 from ventsource.inference.priors.parameter_table import check_physical_range, parse_distribution
 from ventsource.inference.priors.schema import (
     DEFAULT_DOF, DEFAULT_EPSILON, DEFAULT_P_MAGMATIC, DEFAULT_RELATIVE_SIGMA, LIKELIHOOD_KINDS,
-    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, MODEL_CITATIONS, OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
+    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, MODEL_CITATIONS, MODEL_DEFAULTS, OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
     OXIDE_TOTAL_RANGE, POWER_LAW_KEYS, REQUIRED_OXIDES, REQUIRED_PARAMETERS, SCHEMA_VERSION,
     SULFIDE_CAPACITY_KEYS, TOP_KEYS, canonical_model_choice,
 )
 from ventsource.inference.priors.hypotheses import parse_hypotheses
+from ventsource.inference.priors.quench_table import check_quench_parameters
+from ventsource.inference.priors.calibration_check import ALLOW_KEY, check_calibration, read_allow
 from ventsource.inference.priors.spec import PriorSpec
 from ventsource.inference.priors.window_table import parse_window
 
@@ -38,6 +40,7 @@ def parse_prior(data: Mapping, file: str = "<prior>") -> PriorSpec:
     models = _parse_models(file, data)
     dists, sources, descriptions = _parse_parameters(file, data, models)
     melt, melt_source = _parse_melt(file, data)
+    check_calibration(file, models, melt)
     likelihood = _parse_likelihood(file, data)
     p_mag, eps, mag_source = _parse_magmatic(file, data)
     release = parse_hypotheses(file, data)
@@ -92,17 +95,19 @@ def _parse_metadata(file: str, data: Mapping) -> dict:
 def _parse_models(file: str, data: Mapping) -> dict:
     """[models]: one choice per model, plus the constants some choices need."""
     models_t = read_table(file, data, "models", "models", True)
-    reject_unknown_keys(file, models_t, tuple(MODEL_CHOICES) + POWER_LAW_KEYS + SULFIDE_CAPACITY_KEYS,
-                        "models")
+    reject_unknown_keys(file, models_t, tuple(MODEL_CHOICES) + POWER_LAW_KEYS + SULFIDE_CAPACITY_KEYS
+                        + (ALLOW_KEY,), "models")
     models = {}
     for key, choices in MODEL_CHOICES.items():
-        text = read_string(file, models_t, key, f"models.{key}", True)
+        text = read_string(file, models_t, key, f"models.{key}", key not in MODEL_DEFAULTS,
+                           MODEL_DEFAULTS.get(key))
         val = canonical_model_choice(key, text)
         if val is None:
             cited = MODEL_CITATIONS.get(key, {})
             allowed = ", ".join(f"{c} ({cited[c]!r})" if c in cited else c for c in choices)
             raise key_error(file, f"models.{key}", f"unknown model {text!r} (allowed: {allowed})")
         models[key] = val
+    models[ALLOW_KEY] = read_allow(file, models_t)
     # power-law H2O solubility, wt% = k * fH2O^n: its constants live beside the choice
     for key in POWER_LAW_KEYS:
         if models["h2o_solubility"] == "power_law":
@@ -145,6 +150,7 @@ def _parse_parameters(file: str, data: Mapping, models: Mapping) -> tuple[dict, 
         if name not in dists:
             raise key_error(file, f"parameters.{name}", "missing required parameter")
     _check_parameters_match_models(file, dists, models)
+    check_quench_parameters(file, dists, models)
     return dists, sources, descriptions
 
 

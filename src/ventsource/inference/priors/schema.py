@@ -7,7 +7,8 @@ SCHEMA_VERSION = 1
 REQUIRED_PARAMETERS = (
     "pressure_bar", "temperature_c", "dfmq", "scrubbed_so2", "h2o_wt", "co2_ppm", "s_ppm",
 )
-OPTIONAL_PARAMETERS = ("s_partition", "scrubbed_h2s", "h2s_return", "exsolved_gas_wt")
+OPTIONAL_PARAMETERS = ("s_partition", "scrubbed_h2s", "h2s_return", "exsolved_gas_wt",
+                       "quench_temperature_c", "quench_pressure_bar", "h2_retained_log10")
 
 # Physical limits: (lower, upper, lower_open, upper_open). A prior's whole
 # support must lie inside. Pressure, temperature and dFMQ limits are the
@@ -25,6 +26,11 @@ PHYSICAL_LIMITS: dict[str, tuple[float, float, bool, bool]] = {
     "scrubbed_h2s": (0.0, 1.0, False, False),
     "h2s_return": (0.0, 1.0, False, False),
     "exsolved_gas_wt": (0.0, 100.0, False, True),
+    # the quench state: where the NASA-7 data and the gas-only model hold (no condensed
+    # water or sulfur above ~400 C at 1 bar; common practice, no source)
+    "quench_temperature_c": (400.0, 1300.0, False, False),
+    "quench_pressure_bar": (1.0, 5000.0, False, False),
+    "h2_retained_log10": (-8.0, 0.0, False, False),
 }
 
 REQUIRED_OXIDES = ("SiO2", "TiO2", "Al2O3", "FeOt", "MgO", "CaO", "Na2O", "K2O")
@@ -41,7 +47,11 @@ MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
+    "quench": ("gas_buffered", "rock_buffered", "none"),
 }
+# Model choices a prior file may leave out, with the value then used ("none": the
+# gas reaches the vent as it left the magma, the behaviour before the quench stage).
+MODEL_DEFAULTS: dict[str, str] = {"quench": "none"}
 
 # Model choices may also be written as the literature cites the law ("Moore et al. 1998",
 # "Shishkina et al., 2014"): case, spaces, punctuation and "et al." are ignored, so a

@@ -96,12 +96,19 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"{scrub!r} (the smc engine integrates it out); use engine='emcee' "
                                  f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.row.smc_inference import infer_smc
-        return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
+        return _with_calibration_flag(infer_smc(measurement, prior, forward, lik, pi0, seed, opt), prior)
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
             f"pass model_choice=False to sample without the M0/M1 comparison")
-    return _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt)
+    return _with_calibration_flag(_infer_emcee(measurement, prior, forward, lik, pi0, seed, opt), prior)
+
+
+def _with_calibration_flag(result, prior):
+    """Adds `outside_calibration` (inference/calibration_flag.py) to the result's flags."""
+    from ventsource.inference.calibration_flag import calibration_flags
+    result.flags = list(result.flags) + calibration_flags(prior, result.idata)
+    return result
 
 
 def _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt) -> InferenceResult:
