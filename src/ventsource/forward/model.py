@@ -6,7 +6,7 @@ the magma releases no gas at P or the solver failed (see `status`).
 """
 import numpy as np
 
-from ventsource.magma import degassing
+from ventsource.magma import degassing, sulfur_laws
 from ventsource.ascent import observables
 from ventsource.common.errors import InputError
 from ventsource.ascent.scrubbing import scrub
@@ -41,7 +41,13 @@ class ForwardModel:
             self.h2o_law = prepare_h2o(models["h2o_solubility"], melt)
         self.co2_law = prepare_co2(models["co2_solubility"], melt)
         self.sulfide_capacity = None
-        if models["sulfur"] == "sulfide_capacity":
+        self.sulfur_caps = None
+        if models["sulfur"] == "capacity":
+            # sulfur by chemistry: composition sulfide capacity, Jugo et al. (2010)
+            # sulfate split, capped by SCSS and SCAS (magma/sulfur_laws.py)
+            self.sulfide_capacity = sulfur_laws.sulfide_capacity_oneill2021(melt)
+            self.sulfur_caps = sulfur_laws.prepare_sulfur_caps(melt)
+        elif models["sulfur"] == "sulfide_capacity":
             self.sulfide_capacity = (models["sulfide_capacity_ln_a"], models["sulfide_capacity_b_k"])
         elif models["sulfur"] != "partition":
             raise InputError(f"unknown sulfur model '{models['sulfur']}'")
@@ -75,7 +81,8 @@ class ForwardModel:
                               co2, s, col("s_partition"), self.h2o_law,
                               self.co2_law, style=self.style, eos=self.eos,
                               saturation=saturation, open_steps=self.open_steps,
-                              sulfide_capacity=self.sulfide_capacity)
+                              sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps)
         gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
                     col("h2s_return"))
         return {
@@ -89,6 +96,8 @@ class ForwardModel:
             "saturation_pressure_bar": res.saturation_pressure_bar,
             # open style only: gas-saturated at the search cap, the path started there
             "closed_above_cap": res.closed_above_cap,
+            # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
+            "sulfur_phase": res.sulfur_phase,
             "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
 
@@ -107,7 +116,8 @@ class ForwardModel:
         first = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o[rows],
                                 co2[rows], s[rows], col("s_partition"), self.h2o_law, self.co2_law,
                                 style="closed", eos=self.eos, saturation=True,
-                                sulfide_capacity=self.sulfide_capacity)
+                                sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps)
         p_sat = first.saturation_pressure_bar
         ok = np.isfinite(p_sat)
         if not np.any(ok):
@@ -116,7 +126,8 @@ class ForwardModel:
         deep = degassing.degas(col("temperature_c")[ok], p_sat[ok] * (1.0 - 1e-6),
                                col("dfmq")[ok], h2o[r], co2[r], s[r], col("s_partition")[ok],
                                self.h2o_law, self.co2_law, style="closed", eos=self.eos,
-                               saturation=False, sulfide_capacity=self.sulfide_capacity)
+                               saturation=False, sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps)
         gas = deep.gas
         good = deep.status == degassing.STATUS_GAS
         from ventsource.chemistry.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL

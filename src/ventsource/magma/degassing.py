@@ -22,8 +22,9 @@ from numba import njit
 
 from ventsource.magma.closed_solve import solve_closed
 from ventsource.magma.degassing_context import (  # noqa: F401  (re-exported for callers)
-    _C_CSA, _C_CSB, CTX_SIZE, M_CO2, M_H2O, M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS,
-    STATUS_NO_GAS, WORK_SIZE, _fill_context, _kernel,
+    _C_CAPKIND, _C_CSA, _C_CSB, _C_LNRMAX, _C_SCSS_A, _C_SK, CTX_SIZE, M_CO2, M_H2O,
+    M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_NONE,
+    WORK_SIZE, _fill_context, _kernel,
 )
 from ventsource.magma.open_path import VANISHING_MOL_PER_G, _open_path  # noqa: F401
 from ventsource.magma.saturation import saturation_pressure
@@ -59,13 +60,18 @@ def _degas_state(ctx, psat, pressure_bar, open_system, n_open_steps, h_law, h_pa
 
 
 @_kernel
-def _store_state(j, st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out):
+def _store_state(j, st, z, mg, ctx, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out, phase_out):
     """Gas fraction of state j; writes its melt H2O wt%, CO2 ppm, S ppm (the bulk
-    where no gas) and NaN gas mole fractions where there is no gas. Takes the
+    where no gas, at most the sulfur cap) and NaN gas mole fractions where there is
+    no gas, and which sulfur phase (none, sulfide, anhydrite) holds excess S. Takes the
     whole output arrays: a row view made by the caller would cost reference counts."""
     melt_out[j, 0] = mg[3] * M_H2O * 100.0 / 2.0
     melt_out[j, 1] = mg[4] * M_CO2 * 1e6
     melt_out[j, 2] = mg[5] * M_S * 1e6
+    phase_out[j] = SULFUR_PHASE_NONE
+    capped = ctx[_C_SK] > 0.0 and math.isfinite(ctx[_C_LNRMAX])
+    if st == STATUS_GAS and capped and z[2] >= 2.0 * ctx[_C_LNRMAX] - 1e-9:
+        phase_out[j] = int(ctx[_C_CAPKIND])
     if st != STATUS_GAS:
         for i in range(10):
             x_out[j, i] = math.nan
@@ -73,13 +79,18 @@ def _store_state(j, st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out):
             melt_out[j, 0] = h2o_wt
             melt_out[j, 1] = co2_ppm_bulk
             melt_out[j, 2] = s_ppm
+            if capped:
+                cap_ppm = ctx[_C_SK] * math.exp(ctx[_C_LNRMAX]) * M_S * 1e6
+                if s_ppm > cap_ppm:
+                    melt_out[j, 2] = cap_ppm
+                    phase_out[j] = int(ctx[_C_CAPKIND])
     return z[3] if st == STATUS_GAS else 0.0
 
 
 @njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
                  n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par, ln_cs_a, ln_cs_b_k,
-                 x_out, g_out, melt_out, psat_out, status_out, cap_out):
+                 s_caps, x_out, g_out, melt_out, psat_out, status_out, cap_out, phase_out):
     ctx = np.empty(CTX_SIZE)
     ln_k = np.empty(6)
     ln_phi = np.empty(10)
@@ -88,6 +99,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     work = np.empty(WORK_SIZE)
     ctx[_C_CSA] = ln_cs_a
     ctx[_C_CSB] = ln_cs_b_k
+    for i in range(5):  # SCSS (A, B, per bar) and SCAS (A, B) terms, see sulfur_laws
+        ctx[_C_SCSS_A + i] = s_caps[i]
     for j in range(temperature_k.shape[0]):
         _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
                            co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi)
@@ -100,7 +113,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
                           c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
         status_out[j] = st
-        g_out[j] = _store_state(j, st, z, mg, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out, melt_out)
+        g_out[j] = _store_state(j, st, z, mg, ctx, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out,
+                                melt_out, phase_out)
 
 
 class DegassingResult:
@@ -114,7 +128,7 @@ class DegassingResult:
     """
 
     def __init__(self, gas, gas_wt_fraction, melt, saturation_pressure_bar, status,
-                 closed_above_cap):
+                 closed_above_cap, sulfur_phase=None):
         self.gas = gas
         self.gas_wt_fraction = gas_wt_fraction
         self.melt_h2o_wt = melt[:, 0]
@@ -123,17 +137,23 @@ class DegassingResult:
         self.saturation_pressure_bar = saturation_pressure_bar
         self.status = status
         self.closed_above_cap = closed_above_cap
+        # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
+        self.sulfur_phase = (np.zeros(status.shape, dtype=np.int64) if sulfur_phase is None
+                             else sulfur_phase)
 
 
 def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition, h2o_law, co2_law,
-          style="closed", eos="real", saturation=True, open_steps=20, sulfide_capacity=None):
+          style="closed", eos="real", saturation=True, open_steps=20, sulfide_capacity=None,
+          sulfur_caps=None):
     """Melt-gas equilibrium for arrays of states.
 
     h2o_law, co2_law: (law_id, params) from solubility_registry. s_partition:
     fluid/melt S partition coefficient D_S (mass fraction in gas / in melt).
     sulfide_capacity: None, or (A, B) with ln C_S = A + B/T(K): melt S from the
     sulfide capacity and the Jugo et al. (2010) sulfate fraction instead of D_S
-    (s_partition is then ignored).
+    (s_partition is then ignored). sulfur_caps: None, or the five terms
+    (SCSS A, B, C per bar; SCAS A, B) of sulfur_laws.prepare_sulfur_caps (NaN: no
+    cap of that kind); used with sulfide_capacity only.
     style: "closed" or "open". saturation: also compute the saturation pressure
     (always computed in the open style, where it starts the path; a magma still
     gas-saturated at P_SAT_CAP_BAR starts it at the cap, see closed_above_cap).
@@ -155,11 +175,13 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     psat = np.empty(n)
     status = np.empty(n, dtype=np.int64)
     cap = np.empty(n, dtype=np.bool_)
+    phase = np.empty(n, dtype=np.int64)
+    caps = np.full(5, math.nan) if sulfur_caps is None else np.ascontiguousarray(sulfur_caps, dtype=float)
     _degas_batch(t_c + 273.15, p, d, h2o, co2, s, ds, style == "open", int(open_steps),
                  bool(saturation), eos == "ideal", int(h2o_law[0]),
                  np.ascontiguousarray(h2o_law[1], dtype=float), int(co2_law[0]),
                  np.ascontiguousarray(co2_law[1], dtype=float),
                  float(sulfide_capacity[0]) if sulfide_capacity is not None else math.nan,
                  float(sulfide_capacity[1]) if sulfide_capacity is not None else 0.0,
-                 gas, g, melt, psat, status, cap)
-    return DegassingResult(gas, g, melt, psat, status, cap)
+                 caps, gas, g, melt, psat, status, cap, phase)
+    return DegassingResult(gas, g, melt, psat, status, cap, phase)

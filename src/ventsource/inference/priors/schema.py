@@ -37,7 +37,7 @@ OXIDE_TOTAL_RANGE = (95.0, 102.0)
 MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "h2o_solubility": ("power_law", "liu2005", "moore1998"),
     "co2_solubility": ("shishkina2014", "liu2005"),
-    "sulfur": ("partition", "sulfide_capacity"),
+    "sulfur": ("capacity", "partition", "sulfide_capacity"),
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
