@@ -333,7 +333,7 @@ def _finite_or_none(value):
 
 
 def cmd_prior_predictive(args):
-    from ventsource.workflow.prior_predictive import run_prior_predictive
+    from ventsource.workflow.prior_predictive import excluded_note, run_prior_predictive
     if args.out is not None:
         raise InputError("prior-predictive: --out names a folder in the other commands; "
                          "give the CSV file with --table FILE (and the figure with --plot FILE)")
@@ -343,8 +343,10 @@ def cmd_prior_predictive(args):
         raise InputError("-n must be at least 1")
     spec = _load_prior(args.prior)
     announce_compilation()
-    run_prior_predictive(spec, args.n, args.table, plot_path=args.plot, data_path=args.data,
-                         x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
+    table = run_prior_predictive(spec, args.n, args.table, plot_path=args.plot,
+                                 data_path=args.data, x_ratio=args.x_ratio, y_ratio=args.y_ratio,
+                                 seed=args.seed)
+    print(excluded_note(table))
     print(f"wrote {args.table}, {args.table}.README.txt" + (f" and {args.plot}" if args.plot else ""))
     return 0
 

@@ -6,10 +6,11 @@ the magma releases no gas at P or the solver failed (see `status`).
 """
 import numpy as np
 
-from ventsource.magma import degassing, sulfur_laws
+from ventsource.magma import degassing, iron_redox, sulfur_laws
 from ventsource.ascent import observables
 from ventsource.common.errors import InputError
 from ventsource.ascent.scrubbing import scrub
+from ventsource.magma.melt import validate_melt
 from ventsource.magma.solubility_registry import prepare_co2, prepare_h2o
 from ventsource.magma.solubility_h2o import LAW_POWER, prepare_power
 from ventsource.chemistry.species import SPECIES
@@ -17,6 +18,9 @@ from ventsource.chemistry.species import SPECIES
 STATUS_OK = degassing.STATUS_GAS
 STATUS_NO_GAS = degassing.STATUS_NO_GAS
 STATUS_FAILED = degassing.STATUS_FAILED
+# sulfur = "partition": D_S x S >= 1 would make the first gas more than all sulfur;
+# such draws get zero prior mass (no gas, NaN ratios) and are counted by prior-predictive
+STATUS_EXCLUDED = 3
 
 DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0,
             "s_partition": float("nan")}
@@ -51,6 +55,11 @@ class ForwardModel:
             self.sulfide_capacity = (models["sulfide_capacity_ln_a"], models["sulfide_capacity_b_k"])
         elif models["sulfur"] != "partition":
             raise InputError(f"unknown sulfur model '{models['sulfur']}'")
+        # evolving redox: dfmq is the magma's before degassing, fO2 then follows the
+        # electron balance of melt Fe, melt S and gas (magma/redox_balance.py)
+        self.redox = None
+        if models.get("redox", "buffered") == "evolving":
+            self.redox = (iron_redox.kc91_composition_term(melt), validate_melt(melt)["FeOt"])
         self.style = models["degassing"]
         self.product = models["scrubbing_product"]
         self.eos = models["eos"]
@@ -82,11 +91,12 @@ class ForwardModel:
                               self.co2_law, style=self.style, eos=self.eos,
                               saturation=saturation, open_steps=self.open_steps,
                               sulfide_capacity=self.sulfide_capacity,
-                              sulfur_caps=self.sulfur_caps)
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
+        status = self._exclude_impossible_partition(res, col("s_partition"), s)
         gas = scrub(res.gas, col("scrubbed_so2"), self.product, col("scrubbed_h2s"),
                     col("h2s_return"))
         return {
-            "status": res.status,
+            "status": status,
             "magmatic_gas": res.gas,
             "gas": gas,
             "gas_wt_fraction": res.gas_wt_fraction,
@@ -98,8 +108,21 @@ class ForwardModel:
             "closed_above_cap": res.closed_above_cap,
             # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
             "sulfur_phase": res.sulfur_phase,
+            "dfmq_at_pressure": res.dfmq_at_pressure,
             "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
+
+    def _exclude_impossible_partition(self, res, d_s, s_ppm):
+        """Status with STATUS_EXCLUDED (and NaN gas) where D_S x S >= 1 (partition only)."""
+        if self.sulfide_capacity is not None:
+            return res.status
+        bad = d_s * s_ppm * 1e-6 >= 1.0
+        if not np.any(bad):
+            return res.status
+        res.gas[bad] = np.nan
+        status = res.status.copy()
+        status[bad] = STATUS_EXCLUDED
+        return status
 
     def _add_exsolved_gas(self, theta, extra_wt, h2o, co2, s):
         """Add gas exsolved at depth to the bulk volatiles.
@@ -117,7 +140,7 @@ class ForwardModel:
                                 co2[rows], s[rows], col("s_partition"), self.h2o_law, self.co2_law,
                                 style="closed", eos=self.eos, saturation=True,
                                 sulfide_capacity=self.sulfide_capacity,
-                              sulfur_caps=self.sulfur_caps)
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
         p_sat = first.saturation_pressure_bar
         ok = np.isfinite(p_sat)
         if not np.any(ok):
@@ -127,7 +150,7 @@ class ForwardModel:
                                col("dfmq")[ok], h2o[r], co2[r], s[r], col("s_partition")[ok],
                                self.h2o_law, self.co2_law, style="closed", eos=self.eos,
                                saturation=False, sulfide_capacity=self.sulfide_capacity,
-                              sulfur_caps=self.sulfur_caps)
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
         gas = deep.gas
         good = deep.status == degassing.STATUS_GAS
         from ventsource.chemistry.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL

@@ -63,7 +63,15 @@ _C_SCAS_A = 46
 _C_SCAS_B = 47
 _C_LNRMAX = 48    # ln of the largest fS2^0.5 the melt holds before a sulfur phase forms (inf: none)
 _C_CAPKIND = 49   # which phase caps it: SULFUR_PHASE_SULFIDE or SULFUR_PHASE_ANHYDRITE (0: none)
-CTX_SIZE = 50
+# Evolving redox (redox_balance.py): flag (0 buffered, 1 evolving), melt Fe (mol per g
+# of magma), the Kress-Carmichael composition term, the conserved redox budget (mol of
+# electrons per g of magma relative to Fe2+, S2-, H2O, CO2) and the prior's dFMQ.
+_C_REDOX = 50
+_C_NFE = 51
+_C_KCC = 52
+_C_E0 = 53
+_C_DFMQ0 = 54
+CTX_SIZE = 55
 SULFUR_PHASE_NONE = 0
 SULFUR_PHASE_SULFIDE = 1
 SULFUR_PHASE_ANHYDRITE = 2
@@ -167,6 +175,23 @@ def _update_sulfur_caps(ctx, sulfide_k, sulfate):
         if ln_r < ctx[_C_LNRMAX]:
             ctx[_C_LNRMAX] = ln_r
             ctx[_C_CAPKIND] = SULFUR_PHASE_ANHYDRITE
+
+
+@_kernel
+def _set_dfmq(ctx, dfmq, ln_k):
+    """Same state at another fO2 (dFMQ): only the fO2-dependent terms change."""
+    a, b, c = FMQ_COEFFICIENTS
+    t = ctx[_C_T]
+    p = ctx[_C_P]
+    ln_fo2 = (a / t + b + c * (p - 1.0) / t + dfmq) * LN10
+    log_fugacity_offsets(ln_k, ln_fo2, ctx[_C_OFF:_C_OFF + 10])
+    lnp = math.log(p)
+    for i in range(10):
+        ctx[_C_OFF + i] -= ctx[_C_LNPHI + i] + lnp
+        ctx[_C_MONO + i] = math.exp(ctx[_C_OFF + i])
+    ctx[_C_DFMQ] = dfmq
+    ctx[_C_LNFO2] = ln_fo2
+    _update_sulfide_factor(ctx)
 
 
 @_kernel

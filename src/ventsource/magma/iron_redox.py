@@ -21,6 +21,9 @@ KC91 = {"a": 0.196, "b": 1.1492e4, "c": -6.675, "e": -3.36, "f": -7.01e-7, "g": 
         "h": 3.85e-17, "t0_k": 1673.0}
 KC91_D = {"Al2O3": -2.243, "FeOt": -1.828, "CaO": 3.201, "Na2O": 5.854, "K2O": 6.215}
 PA_PER_BAR = 1.0e5
+# the same numbers as plain floats, for the compiled redox balance (redox_balance.py)
+KC_A, KC_B, KC_C, KC_E = KC91["a"], KC91["b"], KC91["c"], KC91["e"]
+KC_F, KC_G, KC_H, KC_T0 = KC91["f"], KC91["g"], KC91["h"], KC91["t0_k"]
 
 
 def kc91_composition_term(melt_oxides_wt):

@@ -18,7 +18,8 @@ from ventsource.inference.priors.fields import (
 from ventsource.inference.priors.parameter_table import check_physical_range, parse_distribution
 from ventsource.inference.priors.schema import (
     DEFAULT_DOF, DEFAULT_EPSILON, DEFAULT_P_MAGMATIC, DEFAULT_RELATIVE_SIGMA, LIKELIHOOD_KINDS,
-    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, MODEL_CITATIONS, OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
+    MAX_RELATIVE_SIGMA, METADATA_KEYS, MODEL_CHOICES, MODEL_CITATIONS, OPTIONAL_MODEL_DEFAULTS,
+    OPTIONAL_OXIDES, OPTIONAL_PARAMETERS,
     OXIDE_TOTAL_RANGE, POWER_LAW_KEYS, REQUIRED_OXIDES, REQUIRED_PARAMETERS, SCHEMA_VERSION,
     SULFIDE_CAPACITY_KEYS, TOP_KEYS, canonical_model_choice,
 )
@@ -96,7 +97,8 @@ def _parse_models(file: str, data: Mapping) -> dict:
                         "models")
     models = {}
     for key, choices in MODEL_CHOICES.items():
-        text = read_string(file, models_t, key, f"models.{key}", True)
+        text = read_string(file, models_t, key, f"models.{key}", key not in OPTIONAL_MODEL_DEFAULTS,
+                           OPTIONAL_MODEL_DEFAULTS.get(key))
         val = canonical_model_choice(key, text)
         if val is None:
             cited = MODEL_CITATIONS.get(key, {})

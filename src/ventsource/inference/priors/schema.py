@@ -41,7 +41,11 @@ MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
+    "redox": ("evolving", "buffered"),
 }
+# Model keys a file may leave out, and what they then mean: a file written before
+# redox evolved keeps its numbers (the shipped files say redox = "evolving").
+OPTIONAL_MODEL_DEFAULTS = {"redox": "buffered"}
 
 # Model choices may also be written as the literature cites the law ("Moore et al. 1998",
 # "Shishkina et al., 2014"): case, spaces, punctuation and "et al." are ignored, so a
