@@ -131,3 +131,25 @@ def test_open_path_passes_the_budget_on():
     c_left = first.melt_co2_ppm[0] * 1e-6 / 44.009
     assert g * per_gram[0] + (1 - g) * 2 * res.melt_h2o_wt[0] / 100 / 18.015 == pytest.approx(h_left, rel=1e-9)
     assert g * per_gram[1] + (1 - g) * res.melt_co2_ppm[0] * 1e-6 / 44.009 == pytest.approx(c_left, rel=1e-9)
+
+
+def test_gas_free_magma_holds_the_budget_in_its_melt():
+    # above the saturation pressure there is no gas: iron and melt sulfate alone hold the
+    # undegassed magma's budget (Kress and Carmichael 1991 at that pressure; Jugo 2010)
+    p = np.array([4900.0])
+    h = prepare_h2o("moore1998", ARC_BASALT)
+    c = prepare_co2("shishkina2014", ARC_BASALT)
+    redox = (iron_redox.kc91_composition_term(ARC_BASALT), validate_melt(ARC_BASALT)["FeOt"])
+    res = degassing.degas(T_C, p, 1.0, 2.0, 600.0, 800.0, np.nan, h, c,
+                          sulfide_capacity=laws.sulfide_capacity_oneill2021(ARC_BASALT),
+                          sulfur_caps=laws.prepare_sulfur_caps(ARC_BASALT), redox=redox)
+    assert res.status[0] == 1 and res.sulfur_phase[0] == 0
+    t_k = T_C + 273.15
+    d = res.dfmq_at_pressure[0]
+    n_fe = validate_melt(ARC_BASALT)["FeOt"] / 100.0 / 71.844 * (1 - 0.02 - 1400e-6)
+    fe3 = iron_redox.fe3_fraction(ARC_BASALT, t_k, p[0], log10_fo2_fmq(t_k, p[0]) + d)
+    e_at_p = n_fe * fe3 + 8 * sulfate_fraction_jugo2010(d) * 800e-6 / 32.06
+    fe3_ref = iron_redox.fe3_fraction(ARC_BASALT, t_k, 1.0, log10_fo2_fmq(t_k, 1.0) + 1.0)
+    e_ref = n_fe * fe3_ref + 8 * sulfate_fraction_jugo2010(1.0) * 800e-6 / 32.06
+    assert e_at_p == pytest.approx(e_ref, rel=1e-9)
+    assert 0.0 < d - 1.0 < 0.3  # the 1 bar reference sits below the deep melt's dFMQ

@@ -20,9 +20,9 @@ import math
 import numpy as np
 from numba import njit
 
-from ventsource.magma.redox_balance import set_redox_reference, solve_with_redox
+from ventsource.magma.redox_balance import gas_free_dfmq, set_redox_reference, solve_with_redox
 from ventsource.magma.degassing_context import (  # noqa: F401  (re-exported for callers)
-    _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_DFMQ0, _C_LNRMAX, _C_SCSS_A, _C_SK, CTX_SIZE, M_CO2, M_H2O,
+    _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_LNRMAX, _C_SCSS_A, _C_SK, CTX_SIZE, M_CO2, M_H2O,
     M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_NONE,
     WORK_SIZE, _fill_context, _kernel,
 )
@@ -122,7 +122,12 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         status_out[j] = st
         g_out[j] = _store_state(j, st, z, mg, ctx, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out,
                                 melt_out, phase_out)
-        dfmq_out[j] = ctx[_C_DFMQ] if st == STATUS_GAS else ctx[_C_DFMQ0]
+        if st == STATUS_GAS:
+            dfmq_out[j] = ctx[_C_DFMQ]
+        elif st == STATUS_NO_GAS:
+            dfmq_out[j] = gas_free_dfmq(ctx, ln_k)
+        else:
+            dfmq_out[j] = math.nan
 
 
 class DegassingResult:
@@ -148,7 +153,8 @@ class DegassingResult:
         # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
         self.sulfur_phase = (np.zeros(status.shape, dtype=np.int64) if sulfur_phase is None
                              else sulfur_phase)
-        # the melt's dFMQ at P (evolving redox; the prior's dFMQ where buffered or no gas)
+        # the melt's dFMQ at P: evolving redox (without gas: melt and sulfur phase alone
+        # hold the budget), the prior's dFMQ where buffered; NaN where the solve failed
         self.dfmq_at_pressure = dfmq_at_pressure
 
 

@@ -222,6 +222,49 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
 
 
 @_kernel
+def _melt_electrons(ctx, d, ln_k):
+    """E of the gas-free magma at ctx's T, P and dFMQ d (its S in melt, sulfide or
+    anhydrite as the caps at d say); leaves ctx at d."""
+    _set_dfmq(ctx, d, ln_k)
+    x6 = sulfate_fraction(d)
+    n_s = ctx[_C_NS]
+    dissolved = n_s
+    anhydrite = 0.0
+    if ctx[_C_SK] > 0.0 and math.isfinite(ctx[_C_LNRMAX]):
+        cap = ctx[_C_SK] * math.exp(ctx[_C_LNRMAX])
+        dissolved = min(n_s, cap)
+        if ctx[_C_CAPKIND] == SULFUR_PHASE_ANHYDRITE:
+            anhydrite = n_s - dissolved
+    return (ctx[_C_NFE] * fe3_fraction_kc91(ctx[_C_T], ctx[_C_P], ctx[_C_LNFO2], ctx[_C_KCC])
+            + 8.0 * x6 * dissolved + 8.0 * anhydrite)
+
+
+@_kernel
+def gas_free_dfmq(ctx, ln_k):
+    """dFMQ of a magma holding no gas at ctx's pressure (above its saturation pressure):
+    the one at which melt (and sulfur phase) hold the redox budget. Secant steps from
+    the prior's dFMQ; NaN if they do not settle. Leaves ctx at that dFMQ."""
+    if ctx[_C_REDOX] == 0.0:
+        return ctx[_C_DFMQ0]
+    tol = REDOX_TOL * ctx[_C_NFE]
+    d0 = ctx[_C_DFMQ0]
+    r0 = _melt_electrons(ctx, d0, ln_k) - ctx[_C_E0]
+    d1 = d0 + 0.01
+    r1 = _melt_electrons(ctx, d1, ln_k) - ctx[_C_E0]
+    for _ in range(MAX_REDOX_STEPS):
+        if abs(r1) <= tol:
+            return d1
+        if r1 == r0:
+            break
+        d2 = d1 - r1 * (d1 - d0) / (r1 - r0)
+        d2 = max(d1 - MAX_DFMQ_STEP, min(d1 + MAX_DFMQ_STEP, d2))
+        d0, r0 = d1, r1
+        d1 = d2
+        r1 = _melt_electrons(ctx, d1, ln_k) - ctx[_C_E0]
+    return math.nan
+
+
+@_kernel
 def remove_gas_redox(ctx, z, x):
     """Open path: the removed gas takes its redox budget; Fe stays with the melt."""
     if ctx[_C_REDOX] == 0.0:
