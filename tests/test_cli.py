@@ -1,5 +1,6 @@
 """Command-line behaviour: public option names, JSON shape, one-line errors with exit 2."""
 import json
+import re
 
 import numpy as np
 from pathlib import Path
@@ -56,7 +57,7 @@ def test_speciate_bad_input_is_one_line_exit_2(args, needle, capsys):
 def test_forward_json(capsys):
     code, out, _ = run(["forward", "--prior", "priors/arc_basalt.toml", "--set", "pressure_bar=200",
                         "temperature_c=1100", "dfmq=1", "scrubbed_so2=0.3", "h2o_wt=4",
-                        "co2_ppm=2000", "s_ppm=2000", "s_partition=100", "quench_temperature_c=900",
+                        "co2_ppm=2000", "s_ppm=2000", "quench_temperature_c=900",
                         "h2_retained_log10=0",
                         "--json"], capsys)
     assert code == 0
@@ -195,6 +196,10 @@ def test_forward_reports_open_path_started_at_cap(tmp_path, capsys):
     # search cap: the path starts at the cap and the output says so; an ordinary state
     # does not carry the flag (behaviour documented in the README)
     text = Path("priors/arc_basalt.toml").read_text().replace('degassing = "closed"', 'degassing = "open"')
+    # the partition sulfur option (the case needs D_S; arc_basalt ships sulfur = "capacity")
+    text = re.sub(r'^sulfur = .*$', 'sulfur = "partition"', text, flags=re.M)
+    text += ('\n[parameters.s_partition]\ndistribution = "loguniform"\nmin = 10.0\nmax = 500.0\n'
+             'source = "from memory: D_S of tens to hundreds in basalt"\n')
     prior = tmp_path / "open.toml"
     prior.write_text(text)
     base = ["forward", "--prior", str(prior), "--json", "--set", "pressure_bar=1000", "temperature_c=1199",

@@ -33,10 +33,12 @@ def _prior_states(path, n, seed):
 
 
 def _degas_cols(model, cols, style, saturation=False):
+    d_s = cols.get("s_partition", np.full(cols["s_ppm"].shape, np.nan))
     return degassing.degas(cols["temperature_c"], cols["pressure_bar"], cols["dfmq"],
-                           cols["h2o_wt"], cols["co2_ppm"], cols["s_ppm"], cols["s_partition"],
+                           cols["h2o_wt"], cols["co2_ppm"], cols["s_ppm"], d_s,
                            model.h2o_law, model.co2_law, style=style, eos=model.eos,
-                           saturation=saturation)
+                           saturation=saturation, sulfide_capacity=model.sulfide_capacity,
+                           sulfur_caps=model.sulfur_caps)
 
 
 def _bulk_hcs(h2o_wt, co2_ppm, s_ppm):
@@ -54,7 +56,12 @@ def _closure(res, h2o_wt, co2_ppm, s_ppm):
     g = res.gas_wt_fraction[ok][:, None]
     rebuilt = g * n_gas + (1.0 - g) * n_melt
     bulk = _bulk_hcs(h2o_wt[ok], co2_ppm[ok], s_ppm[ok])
-    return np.abs(rebuilt / bulk - 1.0)
+    rel = rebuilt / bulk - 1.0
+    # where a sulfide or anhydrite phase holds S, gas + melt carry less than the bulk
+    phase = res.sulfur_phase[ok] > 0
+    assert np.all(rel[phase, 2] < 0.0)
+    rel[phase, 2] = 0.0
+    return np.abs(rel)
 
 
 def _basalt_laws(k=0.095, n=0.5):

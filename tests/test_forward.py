@@ -115,7 +115,7 @@ def _capacity_spec(ln_a, b_k=0.0):
     data["models"]["sulfur"] = "sulfide_capacity"
     data["models"]["sulfide_capacity_ln_a"] = ln_a
     data["models"]["sulfide_capacity_b_k"] = b_k
-    del data["parameters"]["s_partition"]
+    data["parameters"].pop("s_partition", None)
     return parse_prior(data, file="capacity-test.toml")
 
 
@@ -151,6 +151,29 @@ def test_sulfide_capacity_keys_are_checked():
     with pytest.raises(PriorFileError, match="only allowed with sulfur"):
         parse_prior(data, file="x.toml")
     data["models"]["sulfur"] = "sulfide_capacity"
-    del data["parameters"]["s_partition"]
+    data["parameters"].pop("s_partition", None)
     with pytest.raises(PriorFileError, match="sulfide_capacity_b_k"):
         parse_prior(data, file="x.toml")
+
+
+def test_partition_draws_whose_first_gas_would_exceed_all_sulfur_get_zero_prior_mass():
+    # D_S = w_S,gas / w_S,melt: with D_S x S >= 1 the first gas would be more than 100 %
+    # sulfur by mass (definition of D_S); such draws are excluded (status 3, NaN ratios)
+    # and counted by prior-predictive
+    import tomllib
+    from ventsource.inference.priors import parse_prior
+    from ventsource.forward.model import STATUS_EXCLUDED
+    from ventsource.workflow.prior_predictive import excluded_note, prior_predictive_table
+    with open("priors/arc_basalt.toml", "rb") as fh:
+        data = tomllib.load(fh)
+    data["models"]["sulfur"] = "partition"
+    data["parameters"]["s_partition"] = {"distribution": "loguniform", "min": 10.0, "max": 500.0,
+                                         "source": "from memory"}
+    spec = parse_prior(data, file="partition.toml")
+    table = prior_predictive_table(spec, 400, seed=2)
+    m1 = table[table["model"] == "M1 with scrubbing"]
+    impossible = (m1["s_partition"] * m1["s_ppm"] * 1e-6 >= 1.0).to_numpy()
+    assert impossible.sum() > 5
+    np.testing.assert_array_equal(m1["status"].to_numpy() == STATUS_EXCLUDED, impossible)
+    assert m1.loc[impossible, "SO2/CO2"].isna().all()
+    assert excluded_note(table).startswith(f"{impossible.sum()} of 400 draws")

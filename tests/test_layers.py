@@ -38,7 +38,8 @@ VERSION_IMPORT = "ventsource.__version__"
 # is named by its own name).
 SUBLAYERS = {
     "inference": {"priors": 0, "likelihood": 1, "option_rules": 1, "evidence": 2, "engines": 3,
-                  "hypotheses": 4, "calibration_flag": 4, "row": 5, "window": 6},
+                  "hypotheses": 4, "calibration_flag": 4, "sulfur_flags": 4, "row": 5,
+                  "window": 6},
 }
 
 MAX_MODULE_LINES = 400

@@ -273,7 +273,7 @@ def test_single_vector_calls_and_shape_errors():
     assert isinstance(spec.log_prob(theta[0]), float)
     assert spec.log_prob(theta[0]) == pytest.approx(spec.log_prob(theta)[0])
     assert spec.full(theta[0]).shape == (len(spec.parameter_names),)
-    with pytest.raises(ValueError, match=r"expected shape \(n, 10\)"):
+    with pytest.raises(ValueError, match=r"expected shape \(n, 9\)"):
         spec.log_prob(np.zeros((3, 5)))
 
 

@@ -45,7 +45,8 @@ KINDS = {"magmatic": 0, "scrubbed": 1, "ambiguous": 2}
 def reduced():
     spec = load_prior_file(PRIOR)
     for name, value in FIXED.items():
-        spec = spec.with_fixed(name, value)
+        if name in spec.parameter_names:  # s_partition: only with sulfur = "partition"
+            spec = spec.with_fixed(name, value)
     return spec, ForwardModel(spec, ratio_names=NAMES)
 
 
@@ -116,7 +117,8 @@ def test_recovery_direction_fast(reduced):
 
 @pytest.mark.xfail(strict=True, reason=(
     "measured: under the shipped arc_basalt prior (pi0 = 0.5, scrubbed_so2 ~ U(0, 1)) with "
-    "15 % errors, mean P(M0) for magmatic gas is 0.63 (0.46, 0.80; scrubbed: 0.22, 0.00), not "
+    "15 % errors, mean P(M0) for magmatic gas is 0.63 (0.46, 0.80; scrubbed: 0.22, 0.00; "
+    "0.2.0 models; 0.3.0, six each in the slow test: 0.56 and 0.03), not "
     "> 0.8 and < 0.05: M0 is nested in M1 and s_ppm/dfmq absorb the scrubbing signal, so the "
     "Occam factor caps P(M0)"))
 def test_recovery_issue_acceptance_fast(reduced):
@@ -209,7 +211,8 @@ def test_sbc_fast_subset(reduced):
 def test_sbc_full():
     spec = load_prior_file(PRIOR)
     for name, value in FIXED.items():
-        spec = spec.with_fixed(name, value)
+        if name in spec.parameter_names:  # s_partition: only with sulfur = "partition"
+            spec = spec.with_fixed(name, value)
     ranks, cover = _sbc((spec, ForwardModel(spec, ratio_names=NAMES)), 200, seed=7, target_ess=300.0)
     for j in range(ranks.shape[1]):
         assert _chi2_uniform_p(ranks[:, j], 49, 10) > 0.01, (j, np.histogram(ranks[:, j], 10, (0, 50))[0])

@@ -96,17 +96,19 @@ def bench_forward(cantera_per_state, quick=False):
         return
     spec = load_prior_file(prior)
     model = ForwardModel(spec)
-    rng = np.random.default_rng(7)
     big = 2_000 if quick else 10_000
-    theta = spec.full(spec.sample(rng, big))
+    theta = spec.full(spec.sample(np.random.default_rng(7), big))
+    ref_spec = partition_buffered_spec(prior)
+    ref_model = ForwardModel(ref_spec)
+    ref_theta = ref_spec.full(ref_spec.sample(np.random.default_rng(7), big))
     model.ratios(theta[:8])
+    ref_model.ratios(ref_theta[:8])
     for batch in (big, 32):
-        chunks = [theta[i:i + batch] for i in range(0, min(big, 200 * batch), batch)]
-        n_states = sum(c.shape[0] for c in chunks)
-        seconds = _best_of(lambda: [model.ratios(c) for c in chunks])
-        per_state = seconds / n_states
+        per_state = _per_state(model, theta, big, batch)
+        ref = _per_state(ref_model, ref_theta, big, batch)
         line = (f"[forward] batch {batch}: {1 / per_state:,.0f} evaluations/s "
-                f"({per_state * 1e6:.2f} us/evaluation, closed-system degassing + speciation + scrubbing)")
+                f"({per_state * 1e6:.2f} us/evaluation, closed-system degassing + speciation + scrubbing; "
+                f"{per_state / ref:.2f}x the partition + buffered-redox model, target <= 2x)")
         if cantera_per_state:
             target = 10 if batch >= 1000 else 2
             line += (f" -> {cantera_per_state / per_state:.1f}x Cantera's per-state time "
@@ -117,6 +119,25 @@ def bench_forward(cantera_per_state, quick=False):
     bench_open_style(model, spec, theta[:300 if quick else 2000])
 
 
+def _per_state(model, theta, big, batch):
+    chunks = [theta[i:i + batch] for i in range(0, min(big, 200 * batch), batch)]
+    n_states = sum(c.shape[0] for c in chunks)
+    return _best_of(lambda: [model.ratios(c) for c in chunks]) / n_states
+
+
+def partition_buffered_spec(prior_path):
+    """The prior with the models shipped before sulfur = "capacity" and evolving redox
+    (partition, D_S log-uniform 10-500, fO2 buffered): the in-process cost reference."""
+    import tomllib
+    from ventsource.inference.priors import parse_prior
+    with open(prior_path, "rb") as fh:
+        data = tomllib.load(fh)
+    data["models"].update(sulfur="partition", redox="buffered")
+    data["parameters"]["s_partition"] = {"distribution": "loguniform", "min": 10.0, "max": 500.0,
+                                         "source": "the earlier shipped range"}
+    return parse_prior(data, file=str(prior_path))
+
+
 def bench_open_style(model, spec, theta):
     """Open-style degassing of the same prior draws: the saturation-pressure search
     plus the stepped path (or the start at the search cap), its costliest mode."""
@@ -125,9 +146,11 @@ def bench_open_style(model, spec, theta):
 
     def run():
         return degassing.degas(col["temperature_c"], col["pressure_bar"], col["dfmq"], col["h2o_wt"],
-                               col["co2_ppm"], col["s_ppm"], col["s_partition"], model.h2o_law,
+                               col["co2_ppm"], col["s_ppm"],
+                               col.get("s_partition", np.full(theta.shape[0], np.nan)), model.h2o_law,
                                model.co2_law, style="open", eos=model.eos, open_steps=model.open_steps,
-                               sulfide_capacity=model.sulfide_capacity)
+                               sulfide_capacity=model.sulfide_capacity,
+                               sulfur_caps=model.sulfur_caps, redox=model.redox)
 
     res = run()
     seconds = _best_of(run)

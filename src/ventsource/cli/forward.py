@@ -31,7 +31,8 @@ def cmd_forward(args):
     state = model.state(np.array([theta]))
     status = int(state["status"][0])
     label = {0: "gas", 1: "no gas: the magma is undersaturated at this pressure",
-             2: "solver failure"}[status]
+             2: "solver failure", 3: "zero prior mass: D_S x S >= 1 (the first gas would be more "
+             "than all the sulfur)"}[status]
     out = _forward_summary(args, spec, theta, state, ratio_names, label)
     if args.json:
         print(json.dumps(out, indent=2))
@@ -100,7 +101,18 @@ def _forward_summary(args, spec, theta, state, ratio_names, label):
                  "s_ppm": float(state["melt_s_ppm"][0])},
         "ratios": {r: _finite_or_none(state["ratios"][0][k]) for k, r in enumerate(ratio_names)},
         "models": dict(spec.models),
+        **_redox_summary(spec, theta, state),
     }
+
+
+def _redox_summary(spec, theta, state):
+    """dFMQ at P, the sulfur phase, and the melt's redox path (workflow/redox_path.py)."""
+    from ventsource.forward.model import ForwardModel
+    from ventsource.workflow.redox_path import PHASE_NAMES, redox_path
+    d = state["dfmq_at_pressure"][0]
+    return {"dfmq_at_pressure": _finite_or_none(d),
+            "sulfur_phase": PHASE_NAMES.get(int(state["sulfur_phase"][0]), "none"),
+            "redox_path": redox_path(ForwardModel(spec), theta, float(state["saturation_pressure_bar"][0]))}
 
 
 def _print_forward(args, out, label, status, gas):
@@ -120,3 +132,7 @@ def _print_forward(args, out, label, status, gas):
         print("  gas after scrubbing (mol %): " + ", ".join(
             f"{n} {100 * gas[i]:.4g}" for i, n in enumerate(SPECIES) if gas[i] > 1e-6))
         print("  ratios: " + ", ".join(f"{r} {v:.4g}" for r, v in out["ratios"].items()))
+        print(f"  melt dFMQ at this pressure: {out['dfmq_at_pressure']:+.3f} "
+              f"(redox {out['models'].get('redox', 'buffered')}); sulfur phase: {out['sulfur_phase']}")
+    print("  redox path (P bar: dFMQ, Fe3+/Fe): " + "; ".join(
+        f"{q['pressure_bar']:.4g}: {q['dfmq']:+.2f}, {q['fe3_fraction']:.3f}" for q in out["redox_path"]))

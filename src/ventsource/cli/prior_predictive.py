@@ -23,7 +23,7 @@ def add_parser(sub):
 
 
 def cmd_prior_predictive(args):
-    from ventsource.workflow.prior_predictive import run_prior_predictive
+    from ventsource.workflow.prior_predictive import excluded_note, run_prior_predictive
     if args.out is not None:
         raise InputError("prior-predictive: --out names a folder in the other commands; "
                          "give the CSV file with --table FILE (and the figure with --plot FILE)")
@@ -35,6 +35,7 @@ def cmd_prior_predictive(args):
     announce_compilation()
     table = run_prior_predictive(spec, args.n, args.table, plot_path=args.plot, data_path=args.data,
                                  x_ratio=args.x_ratio, y_ratio=args.y_ratio, seed=args.seed)
+    print(excluded_note(table))
     print(f"wrote {args.table}, {args.table}.README.txt" + (f" and {args.plot}" if args.plot else ""))
     from ventsource.workflow.calibration_report import calibration_lines
     print("\n".join(calibration_lines(spec, table)))

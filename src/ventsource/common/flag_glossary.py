@@ -19,6 +19,12 @@ FLAG_GLOSSARY = {
                               "with more particles.",
     "many_failed_states": "More than half of the model evaluations released no gas or failed; "
                           "the prior may be too wide.",
+    "sulfide_saturated": "Most posterior states hold a sulfide liquid: the melt's sulfur sits at "
+                         "its sulfide saturation limit, so the bulk sulfur content is poorly "
+                         "constrained by this gas.",
+    "anhydrite_saturated": "Most posterior states hold anhydrite: the melt's sulfur sits at its "
+                           "anhydrite saturation limit (a provisional law), so the bulk sulfur "
+                           "content is poorly constrained by this gas.",
     "mixed_sources": "The rows of this window are better explained each by its own source, or "
                      "by one source before and another after a change inside the window, than "
                      "by one shared source: the window may span a change of magma.",

@@ -6,12 +6,13 @@ the magma releases no gas at P or the solver failed (see `status`).
 """
 import numpy as np
 
-from ventsource.magma import degassing
+from ventsource.magma import degassing, iron_redox, sulfur_laws
 from ventsource.ascent import observables
 from ventsource.common.errors import InputError
 from ventsource.ascent.scrubbing import scrub
 from ventsource.ascent.quench import quench
 from ventsource.ascent.plume_oxidation import oxidise_h2
+from ventsource.magma.melt import validate_melt
 from ventsource.magma.solubility_registry import prepare_co2, prepare_h2o
 from ventsource.magma.solubility_h2o import LAW_POWER, prepare_power
 from ventsource.chemistry.species import SPECIES
@@ -19,6 +20,9 @@ from ventsource.chemistry.species import SPECIES
 STATUS_OK = degassing.STATUS_GAS
 STATUS_NO_GAS = degassing.STATUS_NO_GAS
 STATUS_FAILED = degassing.STATUS_FAILED
+# sulfur = "partition": D_S x S >= 1 would make the first gas more than all sulfur;
+# such draws get zero prior mass (no gas, NaN ratios) and are counted by prior-predictive
+STATUS_EXCLUDED = 3
 
 DEFAULTS = {"scrubbed_h2s": 0.0, "h2s_return": 1.0, "exsolved_gas_wt": 0.0,
             "s_partition": float("nan"), "quench_temperature_c": float("nan"),
@@ -46,10 +50,21 @@ class ForwardModel:
             self.h2o_law = prepare_h2o(models["h2o_solubility"], melt)
         self.co2_law = prepare_co2(models["co2_solubility"], melt)
         self.sulfide_capacity = None
-        if models["sulfur"] == "sulfide_capacity":
+        self.sulfur_caps = None
+        if models["sulfur"] == "capacity":
+            # sulfur by chemistry: composition sulfide capacity, Jugo et al. (2010)
+            # sulfate split, capped by SCSS and SCAS (magma/sulfur_laws.py)
+            self.sulfide_capacity = sulfur_laws.sulfide_capacity_oneill2021(melt)
+            self.sulfur_caps = sulfur_laws.prepare_sulfur_caps(melt)
+        elif models["sulfur"] == "sulfide_capacity":
             self.sulfide_capacity = (models["sulfide_capacity_ln_a"], models["sulfide_capacity_b_k"])
         elif models["sulfur"] != "partition":
             raise InputError(f"unknown sulfur model '{models['sulfur']}'")
+        # evolving redox: dfmq is the magma's before degassing, fO2 then follows the
+        # electron balance of melt Fe, melt S and gas (magma/redox_balance.py)
+        self.redox = None
+        if models.get("redox", "buffered") == "evolving":
+            self.redox = (iron_redox.kc91_composition_term(melt), validate_melt(melt)["FeOt"])
         self.style = models["degassing"]
         self.product = models["scrubbing_product"]
         self.eos = models["eos"]
@@ -81,7 +96,9 @@ class ForwardModel:
                               co2, s, col("s_partition"), self.h2o_law,
                               self.co2_law, style=self.style, eos=self.eos,
                               saturation=saturation, open_steps=self.open_steps,
-                              sulfide_capacity=self.sulfide_capacity)
+                              sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
+        res.status = self._exclude_impossible_partition(res, col("s_partition"), s)
         vent_gas, status = self._quench(theta, res)
         if "h2_retained_log10" in self._index:  # H2 burnt by air in the plume
             vent_gas = oxidise_h2(vent_gas, col("h2_retained_log10"))
@@ -99,6 +116,9 @@ class ForwardModel:
             "saturation_pressure_bar": res.saturation_pressure_bar,
             # open style only: gas-saturated at the search cap, the path started there
             "closed_above_cap": res.closed_above_cap,
+            # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
+            "sulfur_phase": res.sulfur_phase,
+            "dfmq_at_pressure": res.dfmq_at_pressure,
             "ratios": observables.ratios(gas, self.ratio_names, self._weights),
         }
 
@@ -120,6 +140,18 @@ class ForwardModel:
         status[rows[~ok]] = STATUS_FAILED
         return gas, status
 
+    def _exclude_impossible_partition(self, res, d_s, s_ppm):
+        """Status with STATUS_EXCLUDED (and NaN gas) where D_S x S >= 1 (partition only)."""
+        if self.sulfide_capacity is not None:
+            return res.status
+        bad = d_s * s_ppm * 1e-6 >= 1.0
+        if not np.any(bad):
+            return res.status
+        res.gas[bad] = np.nan
+        status = res.status.copy()
+        status[bad] = STATUS_EXCLUDED
+        return status
+
     def _add_exsolved_gas(self, theta, extra_wt, h2o, co2, s):
         """Add gas exsolved at depth to the bulk volatiles.
 
@@ -135,7 +167,8 @@ class ForwardModel:
         first = degassing.degas(col("temperature_c"), col("pressure_bar"), col("dfmq"), h2o[rows],
                                 co2[rows], s[rows], col("s_partition"), self.h2o_law, self.co2_law,
                                 style="closed", eos=self.eos, saturation=True,
-                                sulfide_capacity=self.sulfide_capacity)
+                                sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
         p_sat = first.saturation_pressure_bar
         ok = np.isfinite(p_sat)
         if not np.any(ok):
@@ -144,7 +177,8 @@ class ForwardModel:
         deep = degassing.degas(col("temperature_c")[ok], p_sat[ok] * (1.0 - 1e-6),
                                col("dfmq")[ok], h2o[r], co2[r], s[r], col("s_partition")[ok],
                                self.h2o_law, self.co2_law, style="closed", eos=self.eos,
-                               saturation=False, sulfide_capacity=self.sulfide_capacity)
+                               saturation=False, sulfide_capacity=self.sulfide_capacity,
+                              sulfur_caps=self.sulfur_caps, redox=self.redox)
         gas = deep.gas
         good = deep.status == degassing.STATUS_GAS
         from ventsource.chemistry.species import ELEMENT_MATRIX, MOLAR_MASS_G_MOL

@@ -7,7 +7,8 @@ import math
 
 from ventsource.chemistry.species import MOLAR_MASS_G_MOL
 from ventsource.magma.degassing_context import (
-    _C_DS, _C_MONO, _C_NC, _C_NH, _C_NS, _C_P, _C_PHIC, _C_PHIH, _C_SK, _C_T, _CO2_MOL_PER_PPM,
+    _C_DS, _C_LNRMAX, _C_MONO, _C_NC, _C_NH, _C_NS, _C_P, _C_PHIC, _C_PHIH, _C_SK, _C_T,
+    _CO2_MOL_PER_PPM,
     _H2O_MOL_PER_WT_PERCENT, _kernel,
 )
 from ventsource.magma.solubility_co2 import co2_ppm
@@ -200,6 +201,18 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
     jac[13] = dq * w * gs1
     jac[14] = dq * (w * gs2 + (g1 * 0.5 * ms if sk > 0.0 else 0.0))
     jac[15] = dq * (gs - ms)
+    if sk > 0.0:
+        # A sulfide liquid or anhydrite may take the S the melt and gas cannot hold:
+        # either no phase (q = 1) below the cap on fS2, or a phase (q < 1) with fS2
+        # buffered at the cap. max(ln q, u2 - u2_cap) = 0 says both at once
+        # (complementarity; Newton follows the active branch).
+        cap = z[2] - 2.0 * ctx[_C_LNRMAX]
+        if cap > res:
+            r[3] = cap
+            jac[12] = 0.0
+            jac[13] = 0.0
+            jac[14] = 1.0
+            jac[15] = 0.0
     s = 0.0
     for k in range(4):
         s += r[k] * r[k]

@@ -6,7 +6,7 @@ import math
 
 from ventsource.chemistry.species import MOLAR_MASS_G_MOL
 from ventsource.magma.degassing_context import (
-    _C_DS, _C_MONO, _C_NC, _C_NH, _C_NS, _C_OFF, _C_P, _C_PHIC, _C_PHIH, _C_SK, _C_T,
+    _C_DS, _C_LNRMAX, _C_MONO, _C_NC, _C_NH, _C_NS, _C_OFF, _C_P, _C_PHIC, _C_PHIH, _C_SK, _C_T,
     _CO2_MOL_PER_PPM, _H2O_MOL_PER_WT_PERCENT, D_S_START, M_CO2, M_H2O, _kernel,
 )
 from ventsource.magma.solubility_co2 import co2_ppm
@@ -226,6 +226,6 @@ def _initial_guess(ctx, h_law, h_par, c_law, c_par, z, s_first):
     lin = ctx[_C_MONO + 6] + ctx[_C_MONO + 7] * math.exp(z[0])
     quad = 2.0 * ctx[_C_MONO + 8]
     r_s = 2.0 * zs / (lin + math.sqrt(lin * lin + 4.0 * quad * zs))
-    z[2] = 2.0 * math.log(max(r_s, 1e-300))
+    z[2] = min(2.0 * math.log(max(r_s, 1e-300)), 2.0 * ctx[_C_LNRMAX])  # a sulfur phase caps fS2
     z[3] = g
     return g_hc

@@ -20,23 +20,30 @@ import math
 import numpy as np
 from numba import njit
 
-from ventsource.magma.closed_solve import solve_closed
+from ventsource.magma.redox_balance import gas_free_dfmq, set_redox_reference, solve_with_redox
 from ventsource.magma.degassing_context import (  # noqa: F401  (re-exported for callers)
-    _C_CSA, _C_CSB, CTX_SIZE, M_CO2, M_H2O, M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS,
-    STATUS_NO_GAS, WORK_SIZE, _fill_context, _kernel,
+    _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_LNRMAX, _C_SCSS_A, _C_SK, CTX_SIZE, M_CO2, M_H2O,
+    M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_NONE,
+    WORK_SIZE, _fill_context, _kernel,
 )
 from ventsource.magma.open_path import VANISHING_MOL_PER_G, _open_path  # noqa: F401
 from ventsource.magma.saturation import saturation_pressure
 
+M_FEO = 71.844  # g/mol, IUPAC 2013 atomic weights (as melt.py)
+
 
 @_kernel
 def _fill_bulk_context(ctx, temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s,
-                       ideal, ln_k, ln_phi):
-    """Context of one state from its bulk H2O (wt%), CO2 and S (ppm)."""
+                       ideal, ln_k, ln_phi, redox_par):
+    """Context of one state from its bulk H2O (wt%), CO2 and S (ppm); redox_par =
+    (evolving 0/1, Kress-Carmichael composition term, FeOt wt% of the dry melt)."""
     n_h = 2.0 * h2o_wt / 100.0 / M_H2O
     n_c = co2_ppm_bulk * 1e-6 / M_CO2
     n_s = s_ppm * 1e-6 / M_S
     _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi)
+    dry = 1.0 - h2o_wt / 100.0 - (co2_ppm_bulk + s_ppm) * 1e-6
+    n_fe = redox_par[2] / 100.0 / M_FEO * dry
+    set_redox_reference(ctx, n_fe, redox_par[1], redox_par[0] > 0.5)
 
 
 @_kernel
@@ -52,20 +59,25 @@ def _degas_state(ctx, psat, pressure_bar, open_system, n_open_steps, h_law, h_pa
         if pressure_bar < P_SAT_CAP_BAR:
             return _open_path(ctx, P_SAT_CAP_BAR, pressure_bar, n_open_steps, h_law, h_par,
                               c_law, c_par, ideal, ln_k, ln_phi, z, x, mg, work, True)
-        return solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
+        return solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work, ln_k)
     if open_system and math.isnan(psat):
         return STATUS_FAILED  # the saturation search itself failed: no start for the path
-    return solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
+    return solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work, ln_k)
 
 
 @_kernel
-def _store_state(j, st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out):
+def _store_state(j, st, z, mg, ctx, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out, phase_out):
     """Gas fraction of state j; writes its melt H2O wt%, CO2 ppm, S ppm (the bulk
-    where no gas) and NaN gas mole fractions where there is no gas. Takes the
+    where no gas, at most the sulfur cap) and NaN gas mole fractions where there is
+    no gas, and which sulfur phase (none, sulfide, anhydrite) holds excess S. Takes the
     whole output arrays: a row view made by the caller would cost reference counts."""
     melt_out[j, 0] = mg[3] * M_H2O * 100.0 / 2.0
     melt_out[j, 1] = mg[4] * M_CO2 * 1e6
     melt_out[j, 2] = mg[5] * M_S * 1e6
+    phase_out[j] = SULFUR_PHASE_NONE
+    capped = ctx[_C_SK] > 0.0 and math.isfinite(ctx[_C_LNRMAX])
+    if st == STATUS_GAS and capped and z[2] >= 2.0 * ctx[_C_LNRMAX] - 1e-9:
+        phase_out[j] = int(ctx[_C_CAPKIND])
     if st != STATUS_GAS:
         for i in range(10):
             x_out[j, i] = math.nan
@@ -73,13 +85,19 @@ def _store_state(j, st, z, mg, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out):
             melt_out[j, 0] = h2o_wt
             melt_out[j, 1] = co2_ppm_bulk
             melt_out[j, 2] = s_ppm
+            if capped:
+                cap_ppm = ctx[_C_SK] * math.exp(ctx[_C_LNRMAX]) * M_S * 1e6
+                if s_ppm > cap_ppm:
+                    melt_out[j, 2] = cap_ppm
+                    phase_out[j] = int(ctx[_C_CAPKIND])
     return z[3] if st == STATUS_GAS else 0.0
 
 
 @njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
                  n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par, ln_cs_a, ln_cs_b_k,
-                 x_out, g_out, melt_out, psat_out, status_out, cap_out):
+                 s_caps, redox_par, x_out, g_out, melt_out, psat_out, status_out, cap_out,
+                 phase_out, dfmq_out):
     ctx = np.empty(CTX_SIZE)
     ln_k = np.empty(6)
     ln_phi = np.empty(10)
@@ -88,9 +106,11 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     work = np.empty(WORK_SIZE)
     ctx[_C_CSA] = ln_cs_a
     ctx[_C_CSB] = ln_cs_b_k
+    for i in range(5):  # SCSS (A, B, per bar) and SCAS (A, B) terms, see sulfur_laws
+        ctx[_C_SCSS_A + i] = s_caps[i]
     for j in range(temperature_k.shape[0]):
         _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
-                           co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi)
+                           co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par)
         psat = math.nan
         if want_psat or open_system:
             # works on a copy: ctx still describes the state at P afterwards
@@ -100,7 +120,14 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
                           c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
         status_out[j] = st
-        g_out[j] = _store_state(j, st, z, mg, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out, melt_out)
+        g_out[j] = _store_state(j, st, z, mg, ctx, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out,
+                                melt_out, phase_out)
+        if st == STATUS_GAS:
+            dfmq_out[j] = ctx[_C_DFMQ]
+        elif st == STATUS_NO_GAS:
+            dfmq_out[j] = gas_free_dfmq(ctx, ln_k)
+        else:
+            dfmq_out[j] = math.nan
 
 
 class DegassingResult:
@@ -114,7 +141,7 @@ class DegassingResult:
     """
 
     def __init__(self, gas, gas_wt_fraction, melt, saturation_pressure_bar, status,
-                 closed_above_cap):
+                 closed_above_cap, sulfur_phase=None, dfmq_at_pressure=None):
         self.gas = gas
         self.gas_wt_fraction = gas_wt_fraction
         self.melt_h2o_wt = melt[:, 0]
@@ -123,17 +150,29 @@ class DegassingResult:
         self.saturation_pressure_bar = saturation_pressure_bar
         self.status = status
         self.closed_above_cap = closed_above_cap
+        # 0 none, 1 sulfide liquid, 2 anhydrite holds the S above the melt's cap
+        self.sulfur_phase = (np.zeros(status.shape, dtype=np.int64) if sulfur_phase is None
+                             else sulfur_phase)
+        # the melt's dFMQ at P: evolving redox (without gas: melt and sulfur phase alone
+        # hold the budget), the prior's dFMQ where buffered; NaN where the solve failed
+        self.dfmq_at_pressure = dfmq_at_pressure
 
 
 def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition, h2o_law, co2_law,
-          style="closed", eos="real", saturation=True, open_steps=20, sulfide_capacity=None):
+          style="closed", eos="real", saturation=True, open_steps=20, sulfide_capacity=None,
+          sulfur_caps=None, redox=None):
     """Melt-gas equilibrium for arrays of states.
 
     h2o_law, co2_law: (law_id, params) from solubility_registry. s_partition:
     fluid/melt S partition coefficient D_S (mass fraction in gas / in melt).
     sulfide_capacity: None, or (A, B) with ln C_S = A + B/T(K): melt S from the
     sulfide capacity and the Jugo et al. (2010) sulfate fraction instead of D_S
-    (s_partition is then ignored).
+    (s_partition is then ignored). sulfur_caps: None, or the five terms
+    (SCSS A, B, C per bar; SCAS A, B) of sulfur_laws.prepare_sulfur_caps (NaN: no
+    cap of that kind); used with sulfide_capacity only. redox: None (buffered: fO2 at
+    dfmq at every pressure) or (Kress-Carmichael composition term, FeOt wt%) of the melt
+    (iron_redox.kc91_composition_term): evolving redox, dfmq is the magma's before
+    degassing and fO2 follows the electron balance of redox_balance.py.
     style: "closed" or "open". saturation: also compute the saturation pressure
     (always computed in the open style, where it starts the path; a magma still
     gas-saturated at P_SAT_CAP_BAR starts it at the cap, see closed_above_cap).
@@ -155,11 +194,15 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     psat = np.empty(n)
     status = np.empty(n, dtype=np.int64)
     cap = np.empty(n, dtype=np.bool_)
+    phase = np.empty(n, dtype=np.int64)
+    d_at_p = np.empty(n)
+    redox_par = np.zeros(3) if redox is None else np.array([1.0, float(redox[0]), float(redox[1])])
+    caps = np.full(5, math.nan) if sulfur_caps is None else np.ascontiguousarray(sulfur_caps, dtype=float)
     _degas_batch(t_c + 273.15, p, d, h2o, co2, s, ds, style == "open", int(open_steps),
                  bool(saturation), eos == "ideal", int(h2o_law[0]),
                  np.ascontiguousarray(h2o_law[1], dtype=float), int(co2_law[0]),
                  np.ascontiguousarray(co2_law[1], dtype=float),
                  float(sulfide_capacity[0]) if sulfide_capacity is not None else math.nan,
                  float(sulfide_capacity[1]) if sulfide_capacity is not None else 0.0,
-                 gas, g, melt, psat, status, cap)
-    return DegassingResult(gas, g, melt, psat, status, cap)
+                 caps, redox_par, gas, g, melt, psat, status, cap, phase, d_at_p)
+    return DegassingResult(gas, g, melt, psat, status, cap, phase, d_at_p)

@@ -54,7 +54,27 @@ _C_LNFO2 = 39     # ln fO2 (bar)
 _C_CSA = 40       # sulfide capacity: ln C_S = A + B/T (NaN: partition coefficient instead)
 _C_CSB = 41
 _C_SK = 42        # melt S (mol/g) = SK * fS2^0.5 in sulfide-capacity mode, 0 otherwise
-CTX_SIZE = 43
+# Saturation caps of the dissolved sulfur (sulfur_laws.py): ln SCSS (ppm) =
+# A + B/T + C P and ln SCAS (ppm) = A + B/T; NaN A: no cap of that kind.
+_C_SCSS_A = 43
+_C_SCSS_B = 44
+_C_SCSS_P = 45
+_C_SCAS_A = 46
+_C_SCAS_B = 47
+_C_LNRMAX = 48    # ln of the largest fS2^0.5 the melt holds before a sulfur phase forms (inf: none)
+_C_CAPKIND = 49   # which phase caps it: SULFUR_PHASE_SULFIDE or SULFUR_PHASE_ANHYDRITE (0: none)
+# Evolving redox (redox_balance.py): flag (0 buffered, 1 evolving), melt Fe (mol per g
+# of magma), the Kress-Carmichael composition term, the conserved redox budget (mol of
+# electrons per g of magma relative to Fe2+, S2-, H2O, CO2) and the prior's dFMQ.
+_C_REDOX = 50
+_C_NFE = 51
+_C_KCC = 52
+_C_E0 = 53
+_C_DFMQ0 = 54
+CTX_SIZE = 55
+SULFUR_PHASE_NONE = 0
+SULFUR_PHASE_SULFIDE = 1
+SULFUR_PHASE_ANHYDRITE = 2
 # Jugo et al. (2010) sulfate fraction is capped so the total stays finite.
 MAX_SULFATE_FRACTION = 0.999
 D_S_START = 100.0  # effective gas/melt S partition used only for the start in capacity mode
@@ -122,6 +142,8 @@ def _update_sulfide_factor(ctx):
     S6+/ST = 1/(1 + 10^(2.1 - 2 dFMQ)) of Jugo et al. (2010), Geochim. Cosmochim.
     Acta 74:5926. NaN A means the partition coefficient is used instead."""
     a = ctx[_C_CSA]
+    ctx[_C_LNRMAX] = math.inf
+    ctx[_C_CAPKIND] = SULFUR_PHASE_NONE
     if not math.isfinite(a):
         ctx[_C_SK] = 0.0
         return
@@ -129,7 +151,47 @@ def _update_sulfide_factor(ctx):
     sulfate = 1.0 / (1.0 + 10.0 ** (2.1 - 2.0 * ctx[_C_DFMQ]))
     sulfate = min(sulfate, MAX_SULFATE_FRACTION)
     c_s = math.exp(a + ctx[_C_CSB] / t)
-    ctx[_C_SK] = c_s * 0.01 / M_S * math.exp(-0.5 * ctx[_C_LNFO2]) / (1.0 - sulfate)
+    sulfide_k = c_s * 0.01 / M_S * math.exp(-0.5 * ctx[_C_LNFO2])  # S2- mol/g per fS2^0.5
+    ctx[_C_SK] = sulfide_k / (1.0 - sulfate)
+    _update_sulfur_caps(ctx, sulfide_k, sulfate)
+
+
+@_kernel
+def _update_sulfur_caps(ctx, sulfide_k, sulfate):
+    """ln of the fS2^0.5 at which the melt saturates in a sulfide liquid (its S2- reaches
+    SCSS) or in anhydrite (its S6+ reaches SCAS), whichever comes first. A sulfur
+    phase present buffers fS2 there: melt S stays at the cap, the excess stays in
+    the phase and does not degas."""
+    t = ctx[_C_T]
+    if math.isfinite(ctx[_C_SCSS_A]):
+        ln_scss = ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P] * ctx[_C_P]
+        ln_r = ln_scss + math.log(1e-6 / M_S) - math.log(sulfide_k)
+        if ln_r < ctx[_C_LNRMAX]:
+            ctx[_C_LNRMAX] = ln_r
+            ctx[_C_CAPKIND] = SULFUR_PHASE_SULFIDE
+    if math.isfinite(ctx[_C_SCAS_A]) and sulfate > 0.0:
+        ln_scas = ctx[_C_SCAS_A] + ctx[_C_SCAS_B] / t
+        ln_r = ln_scas + math.log(1e-6 / M_S) - math.log(sulfide_k * sulfate / (1.0 - sulfate))
+        if ln_r < ctx[_C_LNRMAX]:
+            ctx[_C_LNRMAX] = ln_r
+            ctx[_C_CAPKIND] = SULFUR_PHASE_ANHYDRITE
+
+
+@_kernel
+def _set_dfmq(ctx, dfmq, ln_k):
+    """Same state at another fO2 (dFMQ): only the fO2-dependent terms change."""
+    a, b, c = FMQ_COEFFICIENTS
+    t = ctx[_C_T]
+    p = ctx[_C_P]
+    ln_fo2 = (a / t + b + c * (p - 1.0) / t + dfmq) * LN10
+    log_fugacity_offsets(ln_k, ln_fo2, ctx[_C_OFF:_C_OFF + 10])
+    lnp = math.log(p)
+    for i in range(10):
+        ctx[_C_OFF + i] -= ctx[_C_LNPHI + i] + lnp
+        ctx[_C_MONO + i] = math.exp(ctx[_C_OFF + i])
+    ctx[_C_DFMQ] = dfmq
+    ctx[_C_LNFO2] = ln_fo2
+    _update_sulfide_factor(ctx)
 
 
 @_kernel

@@ -27,6 +27,15 @@ def prior_predictive_table(spec, n, seed=0, ratio_names=None):
     return pd.concat(frames, ignore_index=True)
 
 
+def excluded_note(table):
+    """One line: prior draws given zero prior mass (status 3: sulfur = "partition" with
+    D_S x S >= 1, a first gas holding more than all the sulfur)."""
+    m1 = table[table["model"] == "M1 with scrubbing"]
+    n_ex = int((m1["status"] == 3).sum())
+    return (f"{n_ex} of {len(m1)} draws ({100.0 * n_ex / max(len(m1), 1):.1f} %) given zero prior "
+            "mass: D_S x S >= 1 (status 3)")
+
+
 def _no_scrub(spec, theta):
     th = theta.copy()
     th[:, list(spec.parameter_names).index("scrubbed_so2")] = 0.0
@@ -43,8 +52,9 @@ def run_prior_predictive(spec, n, out_csv, plot_path=None, data_path=None, x_rat
     os.replace(f"{out_csv}.part", out_csv)
     from ventsource.workflow.table_notes import write_table_sidecar
     write_table_sidecar(out_csv, f"prior-predictive draws of prior '{spec.name}': one row per draw and "
-                        "model (M0 purely magmatic, M1 with scrubbing), parameters, status (0 = gas) and "
-                        "gas ratios in mol/mol", synthetic=bool(getattr(spec, "fictional", False)))
+                        "model (M0 purely magmatic, M1 with scrubbing), parameters, status (0 = gas, 1 = no "
+                        "gas, 2 = failed, 3 = zero prior mass: D_S x S >= 1) and gas ratios in mol/mol; "
+                        + excluded_note(table), synthetic=bool(getattr(spec, "fictional", False)))
     if plot_path:
         plot_ratio_plane(table, x_ratio, y_ratio, plot_path, data=data, title=spec.name)
     return table

@@ -43,15 +43,18 @@ OXIDE_TOTAL_RANGE = (95.0, 102.0)
 MODEL_CHOICES: dict[str, tuple[str, ...]] = {
     "h2o_solubility": ("power_law", "liu2005", "moore1998"),
     "co2_solubility": ("shishkina2014", "liu2005"),
-    "sulfur": ("partition", "sulfide_capacity"),
+    "sulfur": ("capacity", "partition", "sulfide_capacity"),
     "degassing": ("closed", "open"),
     "scrubbing_product": ("loss", "h2s_sulfate", "sulfur_sulfate"),
     "eos": ("real", "ideal"),
     "quench": ("gas_buffered", "rock_buffered", "none"),
+    "redox": ("evolving", "buffered"),
 }
-# Model choices a prior file may leave out, with the value then used ("none": the
-# gas reaches the vent as it left the magma, the behaviour before the quench stage).
-MODEL_DEFAULTS: dict[str, str] = {"quench": "none"}
+# Model choices a prior file may leave out, with the value then used: "none" (the gas
+# reaches the vent as it left the magma, the behaviour before the quench stage) and
+# "buffered" (a file written before redox evolved keeps its numbers; the shipped files
+# say redox = "evolving").
+MODEL_DEFAULTS: dict[str, str] = {"quench": "none", "redox": "buffered"}
 
 # Model choices may also be written as the literature cites the law ("Moore et al. 1998",
 # "Shishkina et al., 2014"): case, spaces, punctuation and "et al." are ignored, so a

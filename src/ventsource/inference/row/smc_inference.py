@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ventsource.inference.sulfur_flags import melt_at_pressure
+
 from ventsource.inference.engines.emcee_engine import SampleResult
 from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.inference.engines.smc_engine import SMCError
@@ -66,6 +68,10 @@ def infer_smc(measurement, prior, forward, lik, pi0, seed, opt):
     check1 = predictive_check(lik, d1.predictions, np.random.default_rng(seeds[2]), opt["alpha"])
     check0 = predictive_check(lik, d0.predictions, np.random.default_rng(seeds[3]), opt["alpha"])
     flags += model_flags(check0, check1)
+    melt_flags, melt = melt_at_pressure(forward, prior, d1.theta, seed)  # capacity / evolving only
+    flags += melt_flags
+    if melt is not None:
+        diag["melt_at_pressure"] = melt
     if three is not None:
         flags = _release_check(three, lik, flags, seed, opt["alpha"])
     names1, names0 = tuple(prior.free_names), tuple(target.prior0.free_names)
