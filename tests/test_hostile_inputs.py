@@ -206,3 +206,21 @@ def test_a_windows_rows_are_taken_in_time_order():
         windows = ["a", "a", "a", "b", "a"]
     assert assign_windows(Series, None) == [("a", [4, 1, 2, 0]), ("b", [3])]
     assert [rows for _, rows in assign_windows(Series, 30 * 86400)] == [[4, 1, 2, 0], [3]]
+
+
+def test_resume_takes_a_prior_changed_only_in_its_comments(tmp_path, capsys):
+    tiny = ["--target-ess", "20", "--max-steps", "200", "--infer-option", "n_proposal=2000",
+            "--infer-option", "n_prior_draws=100", "--infer-option", "n_walkers=16", "--no-figures"]
+    prior = tmp_path / "p.toml"
+    prior.write_text((ROOT / "priors" / "demo_mount_kerrow_fast.toml").read_text())
+    data, out = tmp_path / "data.csv", tmp_path / "out"
+    data.write_text(GOOD)
+    base = ["run", str(data), "--prior", str(prior), "--out", str(out), *tiny]
+    assert main(base) == 0
+    summary = (out / "summary.csv").read_bytes()
+    prior.write_text("# a note added after the run\n" + prior.read_text().replace("\n\n", "\n\n\n"))
+    capsys.readouterr()
+    assert main(base + ["--resume"]) == 0, capsys.readouterr().err
+    assert (out / "summary.csv").read_bytes() == summary
+    prior.write_text(prior.read_text().replace("value = 80.0", "value = 81.0"))
+    refused(base + ["--resume"], capsys, "different prior file", [out])

@@ -79,6 +79,16 @@ def _verified_rows(out_dir, ids, prior_sha, cols):
     return done, failed
 
 
+def prior_content_sha256(path):
+    """sha256 of the prior's content (its TOML tables, keys sorted): a comment or the
+    layout of the file does not change it, a value does. --resume compares this."""
+    import tomllib
+    with open(path, "rb") as fh:
+        data = tomllib.load(fh)
+    text = json.dumps(data, sort_keys=True, default=str, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
 def _run_settings(series, prior_path, prior_sha, seed, options):
     from ventsource import __version__
     return {"data": os.path.abspath(series.path), "data_sha256": file_sha256(series.path),

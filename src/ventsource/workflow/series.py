@@ -36,7 +36,7 @@ from ventsource.workflow.run_folder import (HAZARD_NAME, LOCK_NAME, RECORDED_SET
                                             SUMMARY_NAME, _FolderLock, _atomic, _check_output_folder,
                                             _earlier_run, _mark_stopped, _refuse_if_in_use, _rewrite,
                                             _run_settings, _verified_rows, _write_json, file_sha256,
-                                            row_key)
+                                            prior_content_sha256, row_key)
 from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
                                          window_summary_columns)
 
@@ -77,7 +77,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     from ventsource.common.threads import limit_blas_threads
     limit_blas_threads()  # before worker processes start: they inherit the setting
     prior_path, spec, options = _checked_inputs(series, prior_path, seed, workers, options)
-    prior_sha = file_sha256(prior_path)
+    prior_sha = prior_content_sha256(prior_path)  # a comment changed is the same prior
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
@@ -158,7 +158,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     os.makedirs(os.path.join(out_dir, "rows"), exist_ok=True)
     prior_ref = {"name": spec.name, "sha256": prior_sha, "file": f"prior-{prior_sha[:12]}.toml"}
     stored_prior = os.path.join(out_dir, prior_ref["file"])
-    if not os.path.exists(stored_prior) or file_sha256(stored_prior) != prior_sha:
+    if not os.path.exists(stored_prior) or file_sha256(stored_prior) != file_sha256(prior_path):
         _atomic(stored_prior, lambda part: shutil.copyfile(prior_path, part))
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
