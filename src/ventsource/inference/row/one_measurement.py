@@ -15,6 +15,7 @@ import numpy as np
 from ventsource.inference.evidence.bridge import prior_monte_carlo_evidence, _likelihood_options
 from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError
 from ventsource.inference.option_rules import OptionError, check_options
+from ventsource.inference.row.data_information import attach_information
 from ventsource.inference.hypotheses.model_choice import (model_flags, posterior_model_probability,
                                                           probability_below, release_flags)
 from ventsource.inference.engines.emcee_engine import SamplerError
@@ -96,12 +97,12 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"{scrub!r} (the smc engine integrates it out); use engine='emcee' "
                                  f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.row.smc_inference import infer_smc
-        return infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
+        return attach_information(infer_smc(measurement, prior, forward, lik, pi0, seed, opt), scrub)
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
             f"pass model_choice=False to sample without the M0/M1 comparison")
-    return _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt)
+    return attach_information(_infer_emcee(measurement, prior, forward, lik, pi0, seed, opt), scrub)
 
 
 def _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt) -> InferenceResult:
