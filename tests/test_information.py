@@ -153,3 +153,16 @@ def test_readme_notes_name_rows_and_flag():
     assert "- K2: P(M0) moved -0.300" in text
     assert not any(line.startswith("* ") for line in text.splitlines())  # not read back as files
     assert information_notes([{"id": "W1", "flags": ""}]) == []
+
+
+def test_window_result_carries_shared_information_and_row_flags():
+    """Window model, tiny settings: the shared parameters' contraction, and near_prior on
+    exactly the rows whose P(M0) stayed within 0.05 of the prior's."""
+    import ventsource
+    rows = ventsource.read_measurements("examples/mount_kerrow_synthetic.csv").measurements[:3]
+    w = ventsource.infer_window(rows, "demo_mount_kerrow_fast", seed=2, n_particles=40, n_runs=2,
+                                split_check=False, n_source_check=200)
+    assert set(w.information["contraction"]) <= set(w.shared_names)
+    assert w.pi0 == pytest.approx(ventsource.load_prior("demo_mount_kerrow_fast").p_magmatic)
+    for r in w.rows:
+        assert ("near_prior" in r.flags) == (abs(r.p_magmatic - w.pi0) < 0.05)

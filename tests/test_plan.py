@@ -79,17 +79,40 @@ def test_candidates_skip_ratios_already_measured():
     assert c["errors 15 % -> 5 %"][1] == {"SO2/CO2": 0.05, "H2/H2O": 0.05}
 
 
+def _paired(long, a, b, metric):
+    """(mean, Monte Carlo error) of metric(a) - metric(b) over the shared data sets."""
+    x = long[long["candidate"] == a].set_index("sim")[metric]
+    y = long[long["candidate"] == b].set_index("sim")[metric]
+    d = (x - y).to_numpy(float)
+    d = d[np.isfinite(d)]
+    return d.mean(), stats.sem(d)
+
+
 @pytest.mark.slow
 def test_planning_estimate_is_honest_on_arc_basalt():
+    """Estimate (20 data sets, seed 1) against realised inversions (50 fresh data sets,
+    seed 777). Ranking of "add H2/H2O and CO/CO2" against "errors 15 % -> 5 %": on every
+    metric where the estimate resolves their paired difference (beyond 2 errors), the
+    realised difference has the same sign; at least one metric must be resolved."""
     import ventsource
     spec = ventsource.load_prior("arc_basalt")
     cands = default_candidates(("SO2/CO2", "H2S/SO2", "H2O/CO2"), 0.15)
-    pick = {k: cands[k] for k in ("baseline", "add H2/H2O and CO/CO2", "errors 15 % -> 5 %")}
-    est = summarise_plan(run_plan(spec, pick, n_sim=20, seed=1)).set_index("candidate")
-    real = summarise_plan(run_plan(spec, pick, n_sim=50, seed=777)).set_index("candidate")
-    for name in ("baseline", "add H2/H2O and CO/CO2"):
+    both, tight = "add H2/H2O and CO/CO2", "errors 15 % -> 5 %"
+    pick = {k: cands[k] for k in ("baseline", both, tight)}
+    est_long, real_long = run_plan(spec, pick, n_sim=20, seed=1), run_plan(spec, pick, n_sim=50, seed=777)
+    est, real = summarise_plan(est_long).set_index("candidate"), summarise_plan(real_long).set_index("candidate")
+    for name in ("baseline", both):
         for k in ("brier", "width90_scrubbed", "width90_pressure"):
             err = np.hypot(est.loc[name, f"{k}_mc_error"], real.loc[name, f"{k}_mc_error"])
+            print(f"{name:24s} {k:18s} estimate {est.loc[name, f'{k}_mean']:.4g} realised "
+                  f"{real.loc[name, f'{k}_mean']:.4g} (2 errors {2 * err:.3g})")
             assert abs(est.loc[name, f"{k}_mean"] - real.loc[name, f"{k}_mean"]) < 2 * err, (name, k)
-    order = lambda t: t.loc["add H2/H2O and CO/CO2", "brier_mean"] < t.loc["errors 15 % -> 5 %", "brier_mean"]  # noqa: E731
-    assert order(est) == order(real)
+    resolved = 0
+    for k in METRICS:
+        (d_est, e_est), (d_real, e_real) = _paired(est_long, both, tight, k), _paired(real_long, both, tight, k)
+        print(f"{both} minus {tight}, {k}: estimate {d_est:+.4g} +- {e_est:.2g}, "
+              f"realised {d_real:+.4g} +- {e_real:.2g}")
+        if abs(d_est) > 2 * e_est:
+            resolved += 1
+            assert np.sign(d_est) == np.sign(d_real), k
+    assert resolved >= 1

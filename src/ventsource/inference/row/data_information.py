@@ -20,7 +20,14 @@ def attach_information(result, scrub_name="scrubbed_so2"):
     prior = np.column_stack([idata.prior[n].values.reshape(-1) for n in names])
     post = np.column_stack([idata.posterior[n].values.reshape(-1) for n in names])
     p = result.p_magmatic if result.p_magmatic is not None and np.isfinite(result.p_magmatic) else None
-    result.information = information_summary(names, prior, post, p, result.pi0, scrub_name)
+    result.information = information_summary(names, prior, post, p, prior_p_magmatic(result),
+                                             scrub_name)
     if result.information["near_prior"] and "near_prior" not in result.flags:
         result.flags.append("near_prior")
     return result
+
+
+def prior_p_magmatic(result):
+    """Prior P(M0): pi0, or with a release prior ([hypotheses]) the three-way prior's M0 share."""
+    prior3 = (getattr(result, "hypotheses", None) or {}).get("prior")
+    return float(prior3[0]) if prior3 else result.pi0
