@@ -77,6 +77,28 @@ def test_candidates_skip_ratios_already_measured():
     c = default_candidates(("SO2/CO2", "H2/H2O"), 0.1)
     assert "add H2/H2O" not in c and "add CO/CO2" in c
     assert c["errors 15 % -> 5 %"][1] == {"SO2/CO2": 0.05, "H2/H2O": 0.05}
+    assert not any(k.startswith("melt inclusions") for k in c)   # S, dFMQ not named free
+    assert any(k.startswith("melt inclusions") for k in default_candidates(("SO2/CO2",), 0.1,
+                                                                            ("s_ppm", "dfmq")))
+
+
+def test_melt_inclusion_prior_is_the_truncated_normal_posterior():
+    """A uniform prior times a normal measurement is a normal truncated to the prior's
+    bounds (conjugacy, common practice, no source): its mean and sd against
+    scipy.stats.truncnorm."""
+    import ventsource
+    from ventsource.workflow.plan import narrowed_prior
+    spec = ventsource.load_prior("demo_mount_kerrow_fast")   # s_ppm uniform(400, 2500)
+    truth = spec.full(spec.sample(np.random.default_rng(0), 1))[0]
+    names = list(spec.parameter_names)
+    new = narrowed_prior(spec, {"s_ppm": 150.0}, truth, np.array([2.0]))
+    centre = truth[names.index("s_ppm")] + 300.0
+    ref = stats.truncnorm((400 - centre) / 150, (2500 - centre) / 150, loc=centre, scale=150)
+    x = new.sample(np.random.default_rng(1), 40000)[:, list(new.free_names).index("s_ppm")]
+    assert x.mean() == pytest.approx(ref.mean(), abs=4 * ref.std() / np.sqrt(x.size))
+    assert x.std() == pytest.approx(ref.std(), rel=0.03)
+    assert spec.distributions["s_ppm"].kind == "uniform"   # the original is untouched
+    assert new.free_names == spec.free_names
 
 
 def _paired(long, a, b, metric):

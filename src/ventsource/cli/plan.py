@@ -54,7 +54,7 @@ def cmd_plan(args):
     spec = _load_prior(args.prior)
     names, sigma = _scenario(args)
     announce_compilation()
-    candidates = default_candidates(names, sigma)
+    candidates = default_candidates(names, sigma, spec.free_names)
     total = len(candidates) * args.n
     done = [0]
 

@@ -34,18 +34,45 @@ METRICS = ("brier", "width90_scrubbed", "width90_pressure", "shift_p_magmatic",
            "contraction_scrubbed")
 
 
-def default_candidates(base_ratios, base_sigma):
-    """{name: (ratio names, relative sigma per ratio, repeats)}: the baseline first."""
+MELT_INCLUSION_SD = {"s_ppm": 150.0, "dfmq": 0.15}  # as tests/data/arc_basalt_constrained.toml
+
+
+def default_candidates(base_ratios, base_sigma, free_names=()):
+    """{name: (ratio names, relative sigma per ratio, repeats, {parameter: constraint sd})}:
+    the baseline first; the melt-inclusion candidate when S and dFMQ are free."""
     base = tuple(base_ratios)
     sig = dict(zip(base, np.broadcast_to(np.asarray(base_sigma, float), (len(base),))))
     out = {"baseline": (base, sig, 1)}
     for add in (("H2/H2O",), ("CO/CO2",), ("H2/H2O", "CO/CO2")):
         new = tuple(r for r in add if r not in base)
         if new:
-            out["add " + " and ".join(new)] = (base + new, dict(sig, **{r: 0.15 for r in new}), 1)
-    out["errors 15 % -> 5 %"] = (base, {r: min(s, 0.05) for r, s in sig.items()}, 1)
-    out["3 rows of the same gas"] = (base, sig, 3)
+            out["add " + " and ".join(new)] = (base + new, dict(sig, **{r: 0.15 for r in new}), 1, {})
+    out["errors 15 % -> 5 %"] = (base, {r: min(s, 0.05) for r, s in sig.items()}, 1, {})
+    out["3 rows of the same gas"] = (base, sig, 3, {})
+    out["baseline"] = out["baseline"] + ({},)
+    if all(n in free_names for n in MELT_INCLUSION_SD):
+        out["melt inclusions: S +-150 ppm, dFMQ +-0.15"] = (base, sig, 1, dict(MELT_INCLUSION_SD))
     return out
+
+
+def narrowed_prior(spec, constraints, truth_full, z):
+    """The prior after a melt-inclusion measurement of each constrained parameter: its
+    value (truth + sd z) with a normal error sd, times the prior; written as a normal
+    truncated to the prior's bounds (exact for a uniform prior, an approximation for
+    others). Returns a new PriorSpec; spec is unchanged."""
+    from ventsource.inference.priors.distributions import TruncNormal
+    from ventsource.inference.priors.spec import PriorSpec
+    names = list(spec.parameter_names)
+    dists = dict(spec.distributions)
+    for k, (name, sd) in enumerate(sorted(constraints.items())):
+        d = dists[name]
+        centre = float(truth_full[names.index(name)] + sd * z[k])
+        dists[name] = TruncNormal(centre, sd, d.lower, d.upper)
+    return PriorSpec(path=spec.path, metadata=spec.metadata, distributions=dists, sources=spec.sources,
+                     descriptions=spec.descriptions, melt_oxides_wt=spec.melt_oxides_wt,
+                     melt_source=spec.melt_source, models=spec.models, likelihood=spec.likelihood,
+                     p_magmatic=spec.p_magmatic, epsilon=spec.epsilon,
+                     magmatic_source=spec.magmatic_source, release=spec.release, window=spec.window)
 
 
 def simulate_truths(spec, ratio_names, n, pi0, seed):
@@ -109,19 +136,22 @@ def run_plan(spec, candidates, n_sim=20, seed=0, n_particles=300, n_runs=2, prog
     import pandas as pd
     from ventsource.inference.likelihood import sigma_ln
     pi0 = float(getattr(spec, "p_magmatic", 0.5))
-    all_ratios = tuple(dict.fromkeys(r for names, _, _ in candidates.values() for r in names))
-    _, is_m0, true = simulate_truths(spec, all_ratios, n_sim, pi0, seed)
+    all_ratios = tuple(dict.fromkeys(r for c in candidates.values() for r in c[0]))
+    truth, is_m0, true = simulate_truths(spec, all_ratios, n_sim, pi0, seed)
     z = np.random.default_rng([int(seed), 0x2015E]).standard_normal(true.shape)
+    z_mi = np.random.default_rng([int(seed), 0x3E1]).standard_normal((n_sim, len(MELT_INCLUSION_SD) + 4))
     inv_seeds = np.random.SeedSequence([int(seed), 0x1A7]).generate_state(n_sim)
     opts = {"n_particles": int(n_particles), "n_runs": int(n_runs)}
     rows = []
-    for name, (ratio_names, sig, repeats) in candidates.items():
+    for name, (ratio_names, sig, repeats, *rest) in candidates.items():
+        constraints = rest[0] if rest else {}
         cols = [all_ratios.index(r) for r in ratio_names]
         rel = np.array([sig[r] for r in ratio_names], dtype=float)
         for i in range(n_sim):
             values = _observed(np.log(true[i, cols]), z[i, cols], sigma_ln(rel), repeats)
             eff_rel = np.expm1(sigma_ln(rel) / np.sqrt(repeats))  # one measurement, same spread
-            res = _invert_one(spec, ratio_names, values, eff_rel, int(inv_seeds[i]), opts)
+            prior_i = narrowed_prior(spec, constraints, truth[i], z_mi[i]) if constraints else spec
+            res = _invert_one(prior_i, ratio_names, values, eff_rel, int(inv_seeds[i]), opts)
             rows.append({"candidate": name, "sim": i, "is_m0": bool(is_m0[i]),
                          **_metrics(res, is_m0[i], pi0)})
             if progress is not None:
