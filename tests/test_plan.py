@@ -44,7 +44,8 @@ def test_plan_command_writes_ranked_table_with_caution(tmp_path, capsys):
 
 @pytest.mark.parametrize("extra, words", [(["--scenario", "SO2/XX"], "XX"),
                                           (["-n", "1"], "-n"),
-                                          (["--data", "/nonexistent/data.csv"], "data.csv")])
+                                          (["--data", "/nonexistent/data.csv"], "data.csv"),
+                                          (["--plot", "/nonexistent/plan.png"], "plan.png")])
 def test_plan_bad_input_one_line_exit_2(tmp_path, capsys, extra, words):
     table = tmp_path / "plan.csv"
     assert main(["plan", "demo_mount_kerrow_fast", "--table", str(table), *extra]) == 2
@@ -138,3 +139,14 @@ def test_planning_estimate_is_honest_on_arc_basalt():
             resolved += 1
             assert np.sign(d_est) == np.sign(d_real), k
     assert resolved >= 1
+
+
+def test_plan_takes_todays_ratios_from_a_data_file(tmp_path):
+    """--data: the file's ratios and errors are the baseline (the synthetic demo series,
+    SO2/CO2, H2S/SO2, H2O/CO2): the add-a-ratio candidates add only what it lacks."""
+    table = tmp_path / "plan.csv"
+    assert main(["plan", "demo_mount_kerrow_fast", "--data", "examples/mount_kerrow_synthetic.csv",
+                 "--table", str(table), *TINY]) == 0
+    names = set(pd.read_csv(table)["candidate"])
+    assert {"baseline", "add H2/H2O", "add CO/CO2", "add H2/H2O and CO/CO2"} <= names
+    assert "melt inclusions: S +-150 ppm, dFMQ +-0.15" in names   # S and dFMQ free in this prior

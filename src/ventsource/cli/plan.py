@@ -51,6 +51,11 @@ def cmd_plan(args):
         raise InputError("plan: --particles must be at least 50")
     if not 0 < args.sigma < 10:
         raise InputError(f"plan: --sigma {args.sigma} must be a relative error between 0 and 10")
+    import os
+    for path in filter(None, (args.table, args.plot)):  # refused before minutes of inversions
+        folder = os.path.dirname(os.path.abspath(path))
+        if not os.path.isdir(folder) or not os.access(folder, os.W_OK):
+            raise InputError(f"plan: {path}: folder {folder} does not exist or is not writable")
     spec = _load_prior(args.prior)
     names, sigma = _scenario(args)
     announce_compilation()

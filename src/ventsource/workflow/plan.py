@@ -207,10 +207,10 @@ def write_plan(table, out_csv, synthetic=False, plot_path=None):
 
 def plan_text(table):
     """Plain-text table of the ranking for the terminal, with the caution."""
-    lines = [f"{'rank':>4}  {'candidate':<24} {'Brier':>15} {'Brier - baseline':>17} "
+    lines = [f"{'rank':>4}  {'candidate':<42} {'Brier':>15} {'Brier - baseline':>17} "
              f"{'90% scrubbed':>13} {'90% pressure bar':>17}"]
     for _, r in table.iterrows():
-        lines.append(f"{int(r['rank']):>4}  {r['candidate']:<24} "
+        lines.append(f"{int(r['rank']):>4}  {r['candidate']:<42} "
                      f"{r['brier_mean']:7.3f} +- {r['brier_mc_error']:.3f} "
                      f"{r.get('brier_minus_baseline', np.nan):+8.3f} +- "
                      f"{r.get('brier_minus_baseline_error', np.nan):.3f} "
