@@ -367,7 +367,7 @@ def _prior_band(ax, band, conditional):
     """The prior's 5-95 % band, hatched, behind the posterior band: where the two coincide
     the data said little about this parameter."""
     tag = " (if scrubbed)" if conditional else ""
-    ax.axhspan(band[0], band[1], facecolor="none", edgecolor="#999999", hatch="//", lw=0,
+    ax.axhspan(band[0], band[1], facecolor="none", edgecolor="#c8c8c8", hatch="//", lw=0,
                zorder=0, label=f"prior 5-95 %{tag}")
     ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
 
