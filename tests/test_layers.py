@@ -37,8 +37,8 @@ VERSION_IMPORT = "ventsource.__version__"
 # below (the first name under the layer's package; a module directly in the package
 # is named by its own name).
 SUBLAYERS = {
-    "inference": {"priors": 0, "likelihood": 1, "option_rules": 1, "evidence": 2, "engines": 3,
-                  "hypotheses": 4, "calibration_flag": 4, "sulfur_flags": 4, "row": 5,
+    "inference": {"priors": 0, "likelihood": 1, "option_rules": 1, "information": 1, "evidence": 2,
+                  "engines": 3, "hypotheses": 4, "calibration_flag": 4, "sulfur_flags": 4, "row": 5,
                   "window": 6},
 }
 

@@ -7,7 +7,8 @@ The public Python interface (``__all__``); everything else is internal:
 * ``read_measurements``: a measurement CSV, checked;
 * ``infer``: one measurement; ``infer_window``: rows that share one magma source;
 * ``run``: a series into a run folder; ``compare``: the same data under several priors;
-* ``ForwardModel``: parameters in, gas ratios out.
+* ``ForwardModel``: parameters in, gas ratios out;
+* ``plan``: which added measurement would sharpen the answer most.
 
 Results are model- and prior-dependent; they support, and never replace, the
 responsible observatory's assessment. The names load on first use, so that
@@ -22,12 +23,12 @@ NumPy loads).
 __version__ = "0.3.0"
 
 __all__ = ["Measurement", "load_prior", "read_measurements", "infer", "infer_window", "run",
-           "compare", "ForwardModel"]
+           "compare", "ForwardModel", "plan"]
 
 # public name -> module of ventsource.api that holds it
 _HOMES = {"Measurement": "inputs", "load_prior": "inputs", "read_measurements": "inputs",
           "infer": "inversion", "infer_window": "inversion", "run": "runs", "compare": "runs",
-          "ForwardModel": "model"}
+          "ForwardModel": "model", "plan": "planning"}
 
 
 def __getattr__(name):

@@ -9,7 +9,8 @@ def infer(measurement, prior, seed=0, **options):
     ``options``: any option of the inversion (engine="smc" by default, n_particles,
     n_runs, epsilon, ...; the table is ventsource.inference.option_rules). Returns an
     InferenceResult: ``p_magmatic`` (P(M0 | data)) and its error, ``flags``,
-    ``summary()`` (a pandas DataFrame of the model-averaged posterior; ``summary("M1")``
+    ``information`` (how much the data said: contraction per parameter, shift of P(M0)
+    from pi0, the least resolved direction in words, ``near_prior``), ``summary()`` (a pandas DataFrame of the model-averaged posterior; ``summary("M1")``
     if scrubbed, ``summary("M0")`` purely magmatic), ``posterior("M1")`` (ArviZ
     InferenceData; ``idata`` is M1's), ``corner_plot()``. Results are model- and
     prior-dependent and support, never replace, the observatory's assessment.
@@ -26,6 +27,13 @@ def infer(measurement, prior, seed=0, **options):
     >>> bool(table.loc["scrubbed_so2", "5%"] >= 0.0)
     True
     >>> "scrubbed_so2" in result.posterior("M1").posterior
+    True
+    >>> info = result.information         # how much the data said
+    >>> 0.0 < info["contraction"]["dfmq"] <= 1.0   # 1 - var_post / var_prior
+    True
+    >>> info["p_magmatic_shift"] == result.p_magmatic - result.pi0
+    True
+    >>> "along one direction" in info["unresolved_words"]
     True
     """
     from ventsource.inference.row.one_measurement import infer as _infer

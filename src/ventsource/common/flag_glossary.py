@@ -28,6 +28,8 @@ FLAG_GLOSSARY = {
     "mixed_sources": "The rows of this window are better explained each by its own source, or "
                      "by one source before and another after a change inside the window, than "
                      "by one shared source: the window may span a change of magma.",
+    "near_prior": "The data barely moved P(M0) from its prior, or the scrubbed fraction from its "
+                  "prior spread: the row's numbers are mostly the prior's.",
     "source_check_failed": "The change-of-source check of this window could not be computed "
                            "(its SMC runs failed); the window's own results stand unchecked.",
     "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",

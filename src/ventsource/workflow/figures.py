@@ -38,21 +38,25 @@ def _read_summary(summary_csv):
 
 
 def plot_time_series(summary_csv, path, series=None, truth_csv=None, title="", prior_name="",
-                     p_magmatic_prior=None):
+                     p_magmatic_prior=None, prior_bands=None):
     """Measured ratios with posterior-predictive 5-95 % bands, P(M0), scrubbed fraction.
 
     Returns the saved path; the Figure stays inspectable via series_figure()."""
     plt = _plt()
     fig = series_figure(summary_csv, series=series, truth_csv=truth_csv, title=title,
-                        prior_name=prior_name, p_magmatic_prior=p_magmatic_prior)
+                        prior_name=prior_name, p_magmatic_prior=p_magmatic_prior,
+                        prior_bands=prior_bands)
     fig.savefig(path, dpi=120)
     plt.close(fig)
     return path
 
 
 def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name="",
-                  p_magmatic_prior=None):
-    """The series figure as a matplotlib Figure (not saved, not closed)."""
+                  p_magmatic_prior=None, prior_bands=None):
+    """The series figure as a matplotlib Figure (not saved, not closed).
+
+    prior_bands: {parameter: (prior 5 %, prior 95 %)} drawn as a hatched band beside the
+    posterior band of the pressure and scrubbed-fraction panels (see prior_bands())."""
     plt = _plt()
     s, times = _read_summary(summary_csv)
     truth = pd.read_csv(truth_csv) if truth_csv else None
@@ -82,6 +86,9 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
         _pressure_panel(axes[-3], s, times, truth)
     _p_magmatic_panel(axes[-2], s, times, p_magmatic_prior)
     _scrubbed_panel(axes[-1], s, times, truth)
+    for ax, name in ((axes[-3] if has_p else None, "pressure_bar"), (axes[-1], "scrubbed_so2")):
+        if ax is not None and (prior_bands or {}).get(name) is not None:
+            _prior_band(ax, prior_bands[name], name == "scrubbed_so2")
     _window_marks(fig.axes, s, times)
     bottom.set_xlabel("time (UTC)")
     import matplotlib.dates as mdates
@@ -348,6 +355,23 @@ def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None,
                             title=spec.name)
 
 
+def prior_bands(spec, n=4000, seed=0):
+    """{free parameter: (5 %, 95 %) of its prior} from n seeded prior draws."""
+    import numpy as np
+    draws = np.asarray(spec.sample(np.random.default_rng(seed), n), dtype=float)
+    return {name: tuple(float(v) for v in np.quantile(draws[:, j], [0.05, 0.95]))
+            for j, name in enumerate(spec.free_names)}
+
+
+def _prior_band(ax, band, conditional):
+    """The prior's 5-95 % band, hatched, behind the posterior band: where the two coincide
+    the data said little about this parameter."""
+    tag = " (if scrubbed)" if conditional else ""
+    ax.axhspan(band[0], band[1], facecolor="none", edgecolor="#c8c8c8", hatch="//", lw=0,
+               zorder=0, label=f"prior 5-95 %{tag}")
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
+
+
 def prior_p_magmatic(spec):
     """Prior P(M0) of the prior file: p_magmatic, less the release share with [hypotheses]."""
     from ventsource.inference.priors.hypotheses import prior_model_probabilities
@@ -360,7 +384,8 @@ def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", 
     os.makedirs(fig_dir, exist_ok=True)
     paths = [plot_time_series(os.path.join(out_dir, "summary.csv"), os.path.join(fig_dir, "series.png"),
                               series=series, truth_csv=truth_csv, title=title, prior_name=spec.name,
-                              p_magmatic_prior=prior_p_magmatic(spec))]
+                              p_magmatic_prior=prior_p_magmatic(spec),
+                              prior_bands=prior_bands(spec))]
     if len(series.ratio_names) >= 2 and n_prior > 0:
         paths.append(plot_ratio_plane_with_data(spec, series, os.path.join(fig_dir, "ratio_plane.png"),
                                                 n=n_prior))

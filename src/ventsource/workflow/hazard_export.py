@@ -55,4 +55,10 @@ def _hazard_row(r, flags):
                                             for q in ("q05", "median", "q95")},
             "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
             "log10_bf_one_vs_split": r.get("log10_bf_one_vs_split"),
-            "flags": flags, "seed": r.get("seed")}
+            "flags": flags, "seed": r.get("seed"),
+            "p_magmatic_shift": _rounded(r.get("p_magmatic_shift")),
+            "unresolved_direction": r.get("unresolved_direction")}
+
+
+def _rounded(v):
+    return None if v is None else round(float(v), 3)

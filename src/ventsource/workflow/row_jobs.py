@@ -87,6 +87,7 @@ def _summary_row(result, spec, row_id, time_text, seed):
         row[f"{name}_q95"] = float(s["95%"])
         row[f"{name}_rhat"] = float(s["r_hat"])
         row[f"{name}_ess_bulk"] = float(s["ess_bulk"])
+    row.update(information_fields(result.information))
     pp = result.idata.posterior_predictive
     for var in pp.data_vars:
         name = pp[var].attrs.get("long_name", var)
@@ -100,6 +101,16 @@ def _summary_row(result, spec, row_id, time_text, seed):
 
 def _num(v):
     return None if v is None or not np.isfinite(v) else float(v)
+
+
+def information_fields(info):
+    """Summary fields of how much the data said (empty without an information summary)."""
+    if not info:
+        return {}
+    out = {"p_magmatic_shift": _num(info["p_magmatic_shift"]),
+           "unresolved_direction": info["unresolved_words"]}
+    out.update({f"{n}_contraction": _num(v) for n, v in info["contraction"].items()})
+    return out
 
 
 def _time_text(t):

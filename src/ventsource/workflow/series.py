@@ -52,6 +52,8 @@ def summary_columns(free_names, ratio_names):
             "scrubbed_so2_avg_q05", "scrubbed_so2_avg_median", "scrubbed_so2_avg_q95"]
     for name in free_names:
         cols += [f"{name}_median", f"{name}_q05", f"{name}_q95", f"{name}_rhat", f"{name}_ess_bulk"]
+    cols += ["p_magmatic_shift"] + [f"{name}_contraction" for name in free_names]
+    cols += ["unresolved_direction"]  # how much the data said (inference/information.py)
     for r in ratio_names:  # posterior predictive of each measured ratio (for the figures)
         cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
     return cols
@@ -201,8 +203,8 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                              synthetic_data=extras.get("synthetic_data", False))
     hazard = extend_hazard(hazard, rows, series, gap_days)
     _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
-    from ventsource.workflow.table_notes import write_table_readme
+    from ventsource.workflow.table_notes import information_notes, write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
                                  HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
-                       synthetic=hazard["synthetic"])
+                       synthetic=hazard["synthetic"], notes=information_notes(rows))
     return rows

@@ -10,10 +10,11 @@ from ventsource.common.caution import CAUTION
 README_NAME = "README.txt"
 
 
-def write_table_readme(folder, files, synthetic=False):
+def write_table_readme(folder, files, synthetic=False, notes=None):
     """Write (or extend) folder/README.txt naming each file with its description.
 
-    files: {file name relative to folder: one-line description}."""
+    files: {file name relative to folder: one-line description}; notes: further lines
+    (how much the data said, information_notes) written after the flag note."""
     path = os.path.join(folder, README_NAME)
     known = {}
     if os.path.exists(path):
@@ -31,7 +32,35 @@ def write_table_readme(folder, files, synthetic=False):
     lines += ["Files:"] + [f"* {name}: {text}" for name, text in sorted(known.items())]
     lines += ["", "Flag meanings: docs/flags.md of the ventsource package, and 'flag_glossary' "
               "in hazard.json."]
+    if notes:
+        lines += [""] + list(notes)
     return _write_lines(path, lines)
+
+
+MAX_NOTED_ROWS = 20
+
+
+def information_notes(rows):
+    """README lines on how much the data said: rows flagged near_prior and, per row (the
+    first MAX_NOTED_ROWS), the shift of P(M0) from its prior and the direction the data
+    resolved least (summary.csv columns p_magmatic_shift, *_contraction, unresolved_direction)."""
+    told = [r for r in rows if r.get("unresolved_direction")]
+    if not told:
+        return []
+    near = [r["id"] for r in told if "near_prior" in (r.get("flags") or "").split(";")]
+    lines = ["How much the data said (contraction 1 - var_post/var_prior per parameter in "
+             "summary.csv; a value near 0 means the prior, not the data, sets that parameter):",
+             f"- rows flagged near_prior (P(M0) or the scrubbed fraction barely moved from the "
+             f"prior): {len(near)} of {len(told)}" + (f" ({', '.join(near[:10])}"
+                                                    f"{' ...' if len(near) > 10 else ''})" if near else "")]
+    for r in told[:MAX_NOTED_ROWS]:
+        shift = r.get("p_magmatic_shift")
+        moved = "" if shift is None else f"P(M0) moved {shift:+.3f} from its prior; "
+        lines.append(f"- {r['id']}: {moved}least resolved: {r['unresolved_direction']}")
+    if len(told) > MAX_NOTED_ROWS:
+        lines.append(f"- ... {len(told) - MAX_NOTED_ROWS} more rows in summary.csv")
+    lines.append("To see which added measurement would sharpen the answer: ventsource plan.")
+    return lines
 
 
 def write_table_sidecar(table_path, description, synthetic=False):

@@ -107,6 +107,10 @@ def window_row_summary(rid, time_text, label, r, res, seed):
            "seed": int(seed), "log10_bf_one_source": res.log10_bf_shared,
            "log10_bf_one_vs_split": _finite_or_none(res.log10_bf_split),
            "log10_bf_one_vs_split_error": _finite_or_none(res.log10_bf_split_error)}
+    if res.pi0 is not None and np.isfinite(r.p_magmatic):
+        row["p_magmatic_shift"] = float(r.p_magmatic - res.pi0)
+    if res.information is not None:
+        row["unresolved_direction"] = "shared: " + res.information["unresolved_words"]
     for tag, q in (("scrubbed_so2_avg", r.scrubbed_model_averaged),
                    ("scrubbed_so2_if_scrubbed", r.scrubbed_if_scrubbed),
                    ("pressure_bar", r.pressure_bar)):
@@ -127,6 +131,7 @@ def window_summary_columns(ratio_names):
             "log10_bf_one_source", "log10_bf_one_vs_split", "log10_bf_one_vs_split_error"]
     for tag in ("scrubbed_so2_avg", "scrubbed_so2_if_scrubbed", "pressure_bar"):
         cols += [f"{tag}_q05", f"{tag}_median", f"{tag}_q95"]
+    cols += ["p_magmatic_shift", "unresolved_direction"]  # how much the data said
     for r in ratio_names:
         cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
     return cols

@@ -15,6 +15,7 @@ import numpy as np
 from ventsource.inference.evidence.bridge import prior_monte_carlo_evidence, _likelihood_options
 from ventsource.inference.likelihood import Likelihood, Measurement, MeasurementError
 from ventsource.inference.option_rules import OptionError, check_options
+from ventsource.inference.row.data_information import attach_information
 from ventsource.inference.hypotheses.model_choice import (model_flags, posterior_model_probability,
                                                           probability_below, release_flags)
 from ventsource.inference.engines.emcee_engine import SamplerError
@@ -96,12 +97,14 @@ def infer(measurement: Measurement, prior, forward=None, seed: int = 0, **option
                                  f"{scrub!r} (the smc engine integrates it out); use engine='emcee' "
                                  f"with model_choice=False to sample without the M0/M1 comparison")
         from ventsource.inference.row.smc_inference import infer_smc
-        return _with_calibration_flag(infer_smc(measurement, prior, forward, lik, pi0, seed, opt), prior)
+        result = infer_smc(measurement, prior, forward, lik, pi0, seed, opt)
+        return attach_information(_with_calibration_flag(result, prior), scrub)
     if do_choice and scrub not in tuple(prior.free_names):
         raise InferenceError(
             f"infer: prior {getattr(prior, 'name', '')!r} has no free parameter {scrub!r}; "
             f"pass model_choice=False to sample without the M0/M1 comparison")
-    return _with_calibration_flag(_infer_emcee(measurement, prior, forward, lik, pi0, seed, opt), prior)
+    result = _infer_emcee(measurement, prior, forward, lik, pi0, seed, opt)
+    return attach_information(_with_calibration_flag(result, prior), scrub)
 
 
 def _with_calibration_flag(result, prior):

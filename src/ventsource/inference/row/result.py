@@ -76,6 +76,7 @@ class InferenceResult:
     diagnostics: dict = field(default_factory=dict)
     hypotheses: dict | None = None     # with a release prior: P(M0), P(M1), P(M2), errors
     budget_draws: dict | None = None   # per-draw hypothesis, magmatic SO2/CO2, SO2 factor
+    information: dict | None = None    # how much the data said (inference/information.py)
 
     @property
     def log_evidence(self) -> dict:
@@ -142,7 +143,7 @@ class InferenceResult:
                 "scrubbed_so2_model_averaged": (None if self.scrubbed_model_averaged is None else
                                                 dict(zip(("q05", "median", "q95"),
                                                          self.scrubbed_model_averaged))),
-                "diagnostics": self.diagnostics,
+                "diagnostics": self.diagnostics, "information": self.information,
                 "log_evidence": {k: [float(a), float(b)] for k, (a, b) in self.log_evidence.items()},
                 "caution": CAUTION}
 

@@ -82,6 +82,8 @@ class WindowResult:
     diagnostics: dict = field(default_factory=dict)
     log10_bf_split: float = float("nan")        # one source vs a change of source mid-window
     log10_bf_split_error: float = float("nan")
+    pi0: float | None = None            # prior P(M0) (with [hypotheses]: M0's three-way share)
+    information: dict | None = None     # how much the data said about the shared parameters
 
     def summary(self, model: str = "averaged"):
         """pandas DataFrame, one row per measurement: P(M0) and its error, the scrubbed
@@ -145,6 +147,7 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
         split_bf, split_err = _split_source_log10_bf(prior, forward, target_liks, seeds[3], opt)
         check_cpu = time.process_time() - start
     rhat_max = between_run_rhat(res.theta)
+    prior_p0 = float(np.exp(target.log_pis[0]))  # pi0, less the release share with [hypotheses]
     split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
     flags = _window_flags(res, rhat_max, bf, split_bf, opt, split_ran)
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
@@ -153,7 +156,24 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
             "per_row": list(target.per_row), "source_check_cpu_s": check_cpu}
     return WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
-                        flags, diag, split_bf, split_err)
+                        flags, diag, split_bf, split_err, prior_p0,
+                        _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed))
+
+
+def _shared_information(shared_prior, theta, rows, pi0, seed):
+    """Information summary of the shared parameters (prior draws on their own stream, so
+    the window's other numbers keep theirs); near_prior on each row whose P(M0) stayed
+    within NEAR_PRIOR_SHIFT of pi0 (the scrubbed-fraction part of the rule is per row
+    and not available from the shared draws)."""
+    from ventsource.inference.information import NEAR_PRIOR_SHIFT, information_summary
+    for r in rows:
+        if np.isfinite(r.p_magmatic) and abs(r.p_magmatic - pi0) < NEAR_PRIOR_SHIFT:
+            r.flags.append("near_prior")
+    names = tuple(shared_prior.free_names)
+    if not names:
+        return None
+    prior = np.asarray(shared_prior.sample(np.random.default_rng([int(seed), 0x1F0]), 4000), float)
+    return information_summary(names, prior, np.asarray(theta, float).reshape(-1, len(names)))
 
 
 def _run_smc(target, seed, n_particles, n_runs, opt):
