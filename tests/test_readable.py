@@ -189,6 +189,27 @@ def test_hazard_json_validates_against_schema(small_run):
         d = decimals_for_error(err)
         assert p == round(p, d)
         assert r["scrubbed_so2_model_averaged"]["median"] is not None
+        assert "p_scrubbed_below_epsilon_if_scrubbed" in r  # the name says it is conditional on M1
+    from hazard_checks import assert_rounding_rule
+    assert_rounding_rule(doc)
+
+
+def test_hazard_json_reads_top_down(small_run):
+    """Hypotheses defined and prior probabilities labelled before the rows; pi0 never null and
+    equal to the labelled P(M0) prior; every field in the rows explained."""
+    _, out = small_run
+    doc = json.loads((out / "hazard.json").read_text(encoding="utf-8"))
+    keys = list(doc)
+    assert keys.index("hypotheses") < keys.index("prior_model_probabilities") < keys.index("rows")
+    assert set(doc["hypotheses"]) == set(doc["prior_model_probabilities"]) == {"M0", "M1"}
+    assert doc["pi0"]["value"] == doc["prior_model_probabilities"]["M0"]
+    assert doc["inference_options_in_effect"]["pi0"] == doc["pi0"]["value"]
+    assert doc["priors"][0]["p_magmatic_prior"] == doc["pi0"]["value"]
+    glossary = doc["field_glossary"]
+    for name in doc["rows"][0]:
+        explained = name in glossary or any(k.startswith("*") and name.endswith(k[1:]) for k in glossary)
+        assert explained or name in ("id", "time"), name
+    assert "conditional on M1" in glossary["p_scrubbed_below_epsilon_if_scrubbed"]
 
 
 def test_schema_refuses_absolute_paths(small_run):
@@ -208,6 +229,17 @@ def test_rounding_rule():
     assert round_probability(0.123456, 0.0042) == (0.123, 0.004)
     assert round_probability(0.5, None) == (0.5, None)
     assert round_probability(0.98765, 0.00001)[0] == 0.9877  # at most 4 decimals
+    # the error is rounded to one significant digit first: 0.00099 -> 0.001, so 3 decimals
+    assert round_probability(0.82621, 0.00099) == (0.826, 0.001)
+    # never exactly 0 or 1: the bound, and the text says so
+    assert round_probability(0.9999, 0.01) == (0.99, 0.01)
+    assert round_probability(0.00001, 0.0002) == (0.0001, 0.0002)
+    from ventsource.workflow.hazard_format import probability_text, round_log10_bf
+    assert probability_text(0.9999, 0.01) == "> 0.99"
+    assert probability_text(0.00002, 0.0004) == "< 0.0001"
+    assert probability_text(0.00002, 0.0004) != "0.0000"
+    assert probability_text(0.66357, 0.0251) == "0.66 ± 0.03"
+    assert round_log10_bf(29.17612422981421) == 29.2
 
 
 def test_readme_beside_tables(small_run):
@@ -215,6 +247,8 @@ def test_readme_beside_tables(small_run):
     _, out = small_run
     text = (out / "README.txt").read_text()
     assert CAUTION in text and "summary.csv" in text and "SYNTHETIC" in text
+    assert "Glossary:" in text and "conditional on M1" in text and "band widens" in text
+    assert "docs/flags.md" not in text  # a panel has the folder, not the package's docs
     header = (out / "summary.csv").read_text().splitlines()[0]
     assert header.startswith("id,time,")  # the table itself stays plain CSV
 

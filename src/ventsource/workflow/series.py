@@ -172,6 +172,8 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe, work)
     rows = _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note, extras)
     _write_json(run_path, dict(settings, status="complete", caution=CAUTION))
+    from ventsource.workflow.run_summary import flag_summary
+    bar.stream.write("\n".join(flag_summary(rows)) + "\n")
     return rows
 
 
@@ -199,10 +201,16 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
                              window_per_row=settings.get("window_per_row"),
                              synthetic_data=extras.get("synthetic_data", False))
-    hazard = extend_hazard(hazard, rows, series, gap_days)
-    _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
+    from ventsource.workflow.hazard_export import ordered
+    from ventsource.workflow.run_folder import write_text_json
+    hazard = ordered(extend_hazard(hazard, rows, series, gap_days))
+    write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
-                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
-                       synthetic=hazard["synthetic"])
+                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings",
+                                 "report.html": "the run on one page for a panel (figures included; "
+                                                "open in any browser, no network needed)"},
+                       synthetic=hazard["synthetic"], flags=list(hazard["flag_glossary"]))
+    from ventsource.workflow.report_html import write_report
+    write_report(out_dir)  # drawn again with the figures by the commands that draw them
     return rows

@@ -1,0 +1,206 @@
+"""report.html: a run folder on one self-contained page for a hazard panel.
+
+Built from the folder's own hazard.json (so the page and the file never disagree) and
+its figures (embedded as base64 PNG: the page needs no network and no other file).
+Sections: caution, what was asked, the data, the answer per window and per row, the
+flags in words, the prior dependence, the sulfur budget, the figures, settings and
+provenance, and the caution again. Written atomically (temp file, then rename).
+"""
+import base64
+import glob
+import html
+import json
+import os
+
+from ventsource.common.caution import CAUTION
+
+REPORT_NAME = "report.html"
+SECTIONS = ("caution-top", "question", "data", "answer-windows", "answer-rows", "flags",
+            "prior-dependence", "sulfur-budget", "figures", "provenance", "caution-bottom")
+
+_CSS = """
+body{font-family:sans-serif;font-size:18px;line-height:1.45;max-width:70em;margin:1em auto;padding:0 1em;color:#111}
+h1{font-size:1.7em}h2{font-size:1.35em;border-bottom:2px solid #444;margin-top:1.6em}
+.caution{border:3px solid #a00;background:#fff3f3;padding:.6em 1em;font-weight:bold}
+.synthetic{border:3px dashed #555;padding:.4em 1em;margin:.5em 0}
+table{border-collapse:collapse;margin:.5em 0;font-size:.95em}td,th{border:1px solid #888;padding:.25em .5em;text-align:left;vertical-align:top}
+th{background:#eee}img{max-width:100%;border:1px solid #ccc;margin:.5em 0}
+.flag{color:#a00;font-weight:bold}.small{font-size:.85em;color:#333}
+@media print{body{font-size:11pt;max-width:none}h2{page-break-after:avoid}table,img{page-break-inside:avoid}}
+"""
+
+
+def _e(x):
+    return html.escape("" if x is None else str(x))
+
+
+def _table(header, rows):
+    head = "".join(f"<th>{_e(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{c}</td>" for c in r) + "</tr>" for r in rows)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _section(key, title, body):
+    return f'<section id="{key}"><h2>{_e(title)}</h2>{body}</section>'
+
+
+def _band(q):
+    if not q or q.get("median") is None:
+        return "n/a"
+    return f"{q['median']:.2f} (5-95 %: {q['q05']:.2f} to {q['q95']:.2f})"
+
+
+def _headline(row, hyp):
+    """One sentence per row in plain words."""
+    p0 = row.get("p_magmatic_text", "n/a")
+    words = f"Probability that the gas is purely magmatic (M0): {p0}."
+    if "unexplained" in row["flags"]:
+        return "No hypothesis reproduces this measurement: read no probability from it."
+    if "M2" in hyp and row.get("p_released_text"):
+        words += f" Scrubbed (M1): {row.get('p_scrubbed_text')}; stored sulfur released (M2): {row['p_released_text']}."
+    else:
+        words += f" Scrubbed (M1): the rest."
+    return words
+
+
+def _question(doc):
+    hyp = "".join(f"<li><b>{_e(k)}</b>: {_e(v)} (prior probability {doc['prior_model_probabilities'][k]:.2f})</li>"
+                  for k, v in doc["hypotheses"].items())
+    pi0 = doc["pi0"]
+    return (f"<p>{_e(doc['what'])}</p><ul>{hyp}</ul>"
+            f"<p class='small'>pi0 = {pi0['value']:.3g} ({_e(pi0['meaning'])}; from the {_e(pi0['source'])}).</p>"
+            f"<p class='small'>Rounding: {_e(doc['rounding'])}</p>")
+
+
+def _data(doc):
+    rows = doc["rows"]
+    times = sorted(r["time"] for r in rows)
+    span = f"{times[0]} to {times[-1]}" if times else "no rows"
+    return (f"<p>Measurement file <code>{_e(doc['input_file'])}</code>: {len(rows)} rows, {span}.</p>"
+            + ("<p class='synthetic'>SYNTHETIC: the prior or the data are fictional; they describe "
+               "no real volcano.</p>" if doc.get("synthetic") else ""))
+
+
+def _windows(doc):
+    if not doc.get("windows"):
+        return "<p>Rows were inverted one by one (no windows).</p>"
+    rows = [[_e(w["window"]), _e(f"{w['first_time']} to {w['last_time']}"), str(len(w["rows"])),
+             _e(w["log10_bf_one_source"]), _e(w["log10_bf_one_vs_split"]),
+             "<span class='flag'>" + _e(", ".join(w["flags"])) + "</span>" if w["flags"] else "none"]
+            for w in doc["windows"]]
+    return ("<p>The rows of a window share one magmatic source. A log10 Bayes factor below 0 "
+            "(one source against each row its own) or below -2 (one source against a change "
+            "inside the window) flags <b>mixed_sources</b>.</p>"
+            + _table(["window", "span", "rows", "log10 BF one source", "log10 BF one vs change", "flags"], rows))
+
+
+def _rows(doc):
+    hyp = doc["hypotheses"]
+    out = []
+    for r in doc["rows"]:
+        flags = "; ".join(f"<span class='flag'>{_e(f)}</span>: {_e(doc['flag_glossary'].get(f, ''))}"
+                          for f in r["flags"]) or "none"
+        probs = [_e(r.get("p_magmatic_text"))]
+        if "M2" in hyp:
+            probs += [_e(r.get("p_scrubbed_text", "n/a")), _e(r.get("p_released_text", "n/a"))]
+        out.append([_e(r["id"]), _e(r["time"]), _e(r.get("window") or "-"), *probs,
+                    _e(_band(r.get("scrubbed_so2_model_averaged"))), _e(_headline(r, hyp)), flags])
+    header = ["id", "time", "window", "P(M0)"] + (["P(M1)", "P(M2)"] if "M2" in hyp else [])
+    return _table(header + ["scrubbed SO2 fraction (model-averaged)", "in words", "flags"], out)
+
+
+def _flags(doc):
+    if not doc["flag_glossary"]:
+        return "<p>No row carries a flag.</p>"
+    from ventsource.workflow.hazard_text import WHAT_TO_DO
+    from ventsource.workflow.run_summary import flag_counts
+    counts = flag_counts([{"flags": ";".join(r["flags"])} for r in doc["rows"]])
+    rows = [[f"<span class='flag'>{_e(f)}</span>", str(counts.get(f, 0)), _e(text),
+             _e(WHAT_TO_DO.get(f, "see the meaning"))] for f, text in doc["flag_glossary"].items()]
+    return _table(["flag", "rows", "meaning", "what to do"], rows)
+
+
+def _prior_dependence(doc):
+    ps = doc.get("prior_sensitivity") or {}
+    if not ps.get("priors"):
+        return (f"<p>{_e(ps.get('note', 'not run'))}.</p><p>Without it, read every probability "
+                "here as valid for this one prior only.</p>")
+    rows = [[_e(k), _e(v)] for k, v in ps.get("spread", {}).items()]
+    return (f"<p>Priors compared: {_e(', '.join(ps['priors']))}. {_e(ps.get('note', ''))}</p>"
+            + _table(["probability", "largest spread across priors (over rows)"], rows))
+
+
+def _budget(doc):
+    sb = doc.get("sulfur_budget")
+    if not sb:
+        return "<p>No flux columns in the measurement file: no sulfur budget.</p>"
+
+    def q(r, tag):
+        m = r.get(f"{tag}_median")
+        return "n/a" if m is None else f"{m:,.3g} ({r[f'{tag}_q05']:,.3g} to {r[f'{tag}_q95']:,.3g})"
+    rows = [[_e(r["id"]), _e(q(r, "magmatic_s_tpd")), _e(q(r, "magmatic_so2_flux_tpd")),
+             _e(q(r, "retained_s_tpd")), _e(r.get("budget_direction") or "n/a"),
+             _e(q(r, "cumulative_retained_s_t")),
+             _e("restarted" if r.get("budget_restarted") else "gap before" if r.get("budget_gap_before") else "")]
+            for r in doc["rows"]]
+    notes = "".join(f"<li>{_e(sb[k])}</li>" for k in ("units", "sign", "restarts", "band_width", "limits")
+                    if sb.get(k))
+    return (f"<ul>{notes}</ul>" + _table(["id", "magmatic S, t S/d", "as SO2, t SO2/d", "net retained S, t S/d",
+                                          "direction", "running total, t S", "note"], rows))
+
+
+def _figures(folder):
+    parts = []
+    for path in sorted(glob.glob(os.path.join(folder, "figures", "*.png"))):
+        with open(path, "rb") as fh:
+            data = base64.b64encode(fh.read()).decode("ascii")
+        name = os.path.basename(path)
+        parts.append(f"<figure><img alt='{_e(name)}' src='data:image/png;base64,{data}'>"
+                     f"<figcaption>{_e(name)}</figcaption></figure>")
+    return "".join(parts) or "<p>No figures were drawn for this run (--no-figures).</p>"
+
+
+def _provenance(doc):
+    prior = doc["priors"][0]
+    rows = [["package", _e(f"{doc['package']} {doc['package_version']}")],
+            ["input file", _e(f"{doc['input_file']} (sha256 {doc['input_sha256']})")],
+            ["prior", _e(f"{prior['name']} - {prior['file']} (sha256 {prior['sha256']})"
+                         + (", fictional" if prior.get("fictional") else ""))],
+            ["models", _e(", ".join(f"{k}: {v}" for k, v in prior["models"].items()))],
+            ["free parameters", _e(", ".join(prior["free_parameters"]))],
+            ["run seed", _e(doc["run_seed"])], ["row seeds", _e(doc["row_seed_rule"])],
+            ["inference options given", _e(json.dumps(doc.get("inference_options", {})))],
+            ["options in effect", _e(json.dumps(doc.get("inference_options_in_effect", {}), default=str))],
+            ["note", _e(doc.get("note", ""))]]
+    return _table(["item", "value"], rows)
+
+
+def report_page(doc, folder):
+    """The page as one string, from a hazard.json document and the folder's figures."""
+    caution = f"<p class='caution'>CAUTION: {_e(CAUTION)}</p>"
+    body = [_section("caution-top", "Caution", caution),
+            _section("question", "What was asked", _question(doc)),
+            _section("data", "The data", _data(doc)),
+            _section("answer-windows", "The answer per window", _windows(doc)),
+            _section("answer-rows", "The answer per measurement", _rows(doc)),
+            _section("flags", "Flags in words", _flags(doc)),
+            _section("prior-dependence", "How much the answer depends on the prior", _prior_dependence(doc)),
+            _section("sulfur-budget", "Sulfur budget", _budget(doc)),
+            _section("figures", "Figures", _figures(folder)),
+            _section("provenance", "Settings and provenance", _provenance(doc)),
+            _section("caution-bottom", "Caution", caution)]
+    title = "ventsource run report" + (" (SYNTHETIC)" if doc.get("synthetic") else "")
+    return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
+            f"<meta name='viewport' content='width=device-width'><title>{_e(title)}</title>"
+            f"<style>{_CSS}</style></head><body><h1>{_e(title)}</h1>{''.join(body)}</body></html>\n")
+
+
+def write_report(folder):
+    """folder/report.html from folder/hazard.json and folder/figures (atomic); its path."""
+    with open(os.path.join(folder, "hazard.json"), encoding="utf-8") as fh:
+        doc = json.load(fh)
+    path = os.path.join(folder, REPORT_NAME)
+    with open(path + ".part", "w", encoding="utf-8") as fh:
+        fh.write(report_page(doc, folder))
+    os.replace(path + ".part", path)
+    return path
