@@ -59,8 +59,22 @@ def _headline(row, hyp):
     if "M2" in hyp and row.get("p_released_text"):
         words += f" Scrubbed (M1): {row.get('p_scrubbed_text')}; stored sulfur released (M2): {row['p_released_text']}."
     else:
-        words += f" Scrubbed (M1): the rest."
+        words += f" Scrubbed (M1): {_complement_text(row)}."
     return words
+
+
+def _complement_text(row):
+    """P(M1) = 1 - P(M0) with two hypotheses, shown by the same rule (bounds mirrored)."""
+    from ventsource.workflow.hazard_format import decimals_for_error, probability_text
+    text, p, err = row.get("p_magmatic_text", ""), row.get("p_magmatic"), row.get("p_magmatic_error")
+    if p is None:
+        return "n/a"
+    d = decimals_for_error(err)
+    if text.startswith("<"):
+        return f"> {1.0 - 10.0 ** -d:.{d}f}"
+    if text.startswith(">"):
+        return f"< {10.0 ** -d:.{d}f}"
+    return probability_text(1.0 - p, err)
 
 
 def _question(doc):
