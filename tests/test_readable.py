@@ -97,10 +97,27 @@ def test_series_figure_marks_flags_and_units_of_pressure(small_run, tmp_path):
     s.to_csv(tmp_path / "summary.csv", index=False)
     fig = series_figure(tmp_path / "summary.csv", prior_name="p", p_magmatic_prior=0.3)
     text = "\n".join(_texts(fig))
-    assert "row carries a flag (docs/flags.md)" in text
+    assert "row carries a flag (meanings:\nreport.html, README.txt)" in text
+    pressure = [ax for ax in fig.axes if ax.get_ylabel().startswith("degassing")]
+    legend = [t.get_text() for t in pressure[0].get_legend().get_texts()]
+    # rows one by one show the model-averaged pressure, the same quantity as a window run
+    assert legend == ["5-95 %, model-averaged", "median, model-averaged"]
     assert "unexplained" in text
     assert "prior P(M0) = 0.3" in text
+    _assert_legends_beside_data(fig)
     plt.close(fig)
+
+
+def _assert_legends_beside_data(fig):
+    """No legend box overlaps the data area of any panel (matplotlib's own layout geometry)."""
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    legends = [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None]
+    assert legends
+    for leg in legends:
+        box = leg.get_window_extent(renderer)
+        for ax in fig.axes:
+            assert not box.overlaps(ax.get_window_extent(renderer)), leg.get_texts()[0].get_text()
 
 
 def test_plain_number_ticks():
@@ -373,4 +390,5 @@ def test_rows_vs_windows_figure(small_run, tmp_path):
     for needed in ("prior P(M0) = 0.4", "(probability)", "(fraction)", "time (UTC)", "row by row",
                    "by windows", "mixed_sources", "Caution:"):
         assert needed in text, needed
+    _assert_legends_beside_data(fig)
     plt.close(fig)

@@ -80,6 +80,8 @@ def _summary_row(result, spec, row_id, time_text, seed):
     if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
         (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
          row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
+    from ventsource.workflow.averaged_pressure import averaged_pressure_fields
+    row.update(averaged_pressure_fields(result))  # the same quantity as a window run's pressure
     for name in spec.free_names:
         s = summary.loc[name]
         row[f"{name}_median"] = float(s["median"])
