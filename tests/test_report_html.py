@@ -117,7 +117,7 @@ def test_probabilities_never_read_as_zero_or_one():
            "priors": [{"name": "p", "file": "p.toml", "sha256": "1" * 64, "models": {}, "free_parameters": []}],
            "run_seed": 1, "row_seed_rule": "rule"}
     page = _parse(report_page(doc, "/nonexistent"))
-    assert "< 0.0001" in page.text and "(M1): > 0.9999" in page.text
+    assert "< 0.0001" in page.text and "Most probable: M1 SO2 scrubbed (> 0.9999)" in page.text
     assert "0.0000" not in page.text
 
 

@@ -69,9 +69,12 @@ WHAT_TO_DO = {
                      "change as scrubbing",
     "source_check_failed": "look at the window's rows by eye, or shorten the window",
     "many_failed_states": "the prior puts most mass where no gas is released: narrow it",
-    "m0_not_reproducing": "informative: another hypothesis explains the row",
-    "m1_not_reproducing": "informative: another hypothesis explains the row",
-    "m2_not_reproducing": "informative: another hypothesis explains the row",
+    "m0_not_reproducing": "informative when another hypothesis reproduces the row (no "
+                           "unexplained flag)",
+    "m1_not_reproducing": "informative when another hypothesis reproduces the row (no "
+                           "unexplained flag)",
+    "m2_not_reproducing": "informative when another hypothesis reproduces the row (no "
+                           "unexplained flag)",
 }
 
 

@@ -50,17 +50,25 @@ def _band(q):
     return f"{q['median']:.2f} (5-95 %: {q['q05']:.2f} to {q['q95']:.2f})"
 
 
+_SHORT = {"M0": "purely magmatic", "M1": "SO2 scrubbed", "M2": "stored sulfur released"}
+
+
 def _headline(row, hyp):
-    """One sentence per row in plain words."""
-    p0 = row.get("p_magmatic_text", "n/a")
-    words = f"Probability that the gas is purely magmatic (M0): {p0}."
+    """One sentence per row in plain words: the most probable hypothesis and its probability."""
     if "unexplained" in row["flags"]:
         return "No hypothesis reproduces this measurement: read no probability from it."
-    if "M2" in hyp and row.get("p_released_text"):
-        words += f" Scrubbed (M1): {row.get('p_scrubbed_text')}; stored sulfur released (M2): {row['p_released_text']}."
-    else:
-        words += f" Scrubbed (M1): {_complement_text(row)}."
-    return words
+    texts = {"M0": row.get("p_magmatic_text")}
+    texts["M1"] = row.get("p_scrubbed_text") if "M2" in hyp else _complement_text(row)
+    if "M2" in hyp:
+        texts["M2"] = row.get("p_released_text")
+    values = {"M0": row.get("p_magmatic"), "M1": row.get("p_scrubbed"), "M2": row.get("p_released")}
+    if "M2" not in hyp and values["M0"] is not None:
+        values["M1"] = 1.0 - values["M0"]
+    known = {k: v for k, v in values.items() if k in texts and v is not None}
+    if not known:
+        return "No probability was computed for this row."
+    best = max(known, key=known.get)
+    return f"Most probable: {best} {_SHORT[best]} ({texts[best]})."
 
 
 def _complement_text(row):
@@ -115,11 +123,14 @@ def _rows(doc):
         flags = "; ".join(f"<span class='flag'>{_e(f)}</span>: {_e(doc['flag_glossary'].get(f, ''))}"
                           for f in r["flags"]) or "none"
         probs = [_e(r.get("p_magmatic_text"))]
-        if "M2" in hyp:
+        if "M2" not in hyp:
+            probs.append(_e(_complement_text(r)))
+        else:
             probs += [_e(r.get("p_scrubbed_text", "n/a")), _e(r.get("p_released_text", "n/a"))]
-        out.append([_e(r["id"]), _e(r["time"]), _e(r.get("window") or "-"), *probs,
+        out.append([_e(r["id"]), _e(r["time"].replace("T", " ").replace(":00Z", " UTC")),
+                    _e(r.get("window") or "-"), *probs,
                     _e(_band(r.get("scrubbed_so2_model_averaged"))), _e(_headline(r, hyp)), flags])
-    header = ["id", "time", "window", "P(M0)"] + (["P(M1)", "P(M2)"] if "M2" in hyp else [])
+    header = ["id", "time", "window", "P(M0)", "P(M1)"] + (["P(M2)"] if "M2" in hyp else [])
     return _table(header + ["scrubbed SO2 fraction (model-averaged)", "in words", "flags"], out)
 
 
@@ -151,16 +162,29 @@ def _budget(doc):
 
     def q(r, tag):
         m = r.get(f"{tag}_median")
-        return "n/a" if m is None else f"{m:,.3g} ({r[f'{tag}_q05']:,.3g} to {r[f'{tag}_q95']:,.3g})"
+        return "n/a" if m is None else f"{_t(m)} ({_t(r[f'{tag}_q05'])} to {_t(r[f'{tag}_q95'])})"
     rows = [[_e(r["id"]), _e(q(r, "magmatic_s_tpd")), _e(q(r, "magmatic_so2_flux_tpd")),
              _e(q(r, "retained_s_tpd")), _e(r.get("budget_direction") or "n/a"),
              _e(q(r, "cumulative_retained_s_t")),
-             _e("restarted" if r.get("budget_restarted") else "gap before" if r.get("budget_gap_before") else "")]
+             _e(_budget_note(r))]
             for r in doc["rows"]]
     notes = "".join(f"<li>{_e(sb[k])}</li>" for k in ("units", "sign", "restarts", "band_width", "limits")
                     if sb.get(k))
     return (f"<ul>{notes}</ul>" + _table(["id", "magmatic S, t S/d", "as SO2, t SO2/d", "net retained S, t S/d",
                                           "direction", "running total, t S", "note"], rows))
+
+
+def _t(x):
+    """Tonnes as plain numbers (already 3 significant digits): 183,000 not 1.83e+05."""
+    return f"{x:,.0f}" if abs(x) >= 100 else f"{x:.3g}"
+
+
+def _budget_note(r):
+    if "mixed_sources" in r["flags"]:
+        return "not summed: window flagged mixed_sources"
+    if r.get("budget_restarted"):
+        return "total restarts here (after a mixed_sources window)"
+    return "gap before: not bridged" if r.get("budget_gap_before") else ""
 
 
 def _figures(folder):
