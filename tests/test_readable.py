@@ -153,6 +153,30 @@ def test_ratio_plane_figure(small_run):
     plt.close(fig)
 
 
+def test_ratio_plane_shows_the_released_sulfur_hypothesis():
+    """With a [hypotheses] table the plane gets a third panel, M2: the M0 gas with its SO2
+    multiplied by 1 + r (the hypothesis' definition, inference/hypotheses/release_marginal.py),
+    so per draw SO2/CO2 grows by 1 + r, H2S/SO2 shrinks by it and H2O/CO2 stays."""
+    import matplotlib.pyplot as plt
+    from ventsource.inference.priors import load_prior_file
+    from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
+    from ventsource.workflow.prior_predictive import M2_LABEL, prior_predictive_table, ratio_plane_figure
+    spec = load_prior_file(DEMO_RELEASE_PRIOR)
+    table = prior_predictive_table(spec, 40, seed=2, ratio_names=("H2S/SO2", "SO2/CO2", "H2O/CO2"))
+    m0 = table[table["model"] == "M0 purely magmatic"].reset_index(drop=True)
+    m2 = table[table["model"] == M2_LABEL].reset_index(drop=True)
+    ok = (m0["status"] == 0).to_numpy()
+    assert ok.sum() > 10
+    one_r = 1.0 + m2["released_so2"].to_numpy()
+    assert np.allclose(m2["SO2/CO2"][ok], m0["SO2/CO2"][ok] * one_r[ok], rtol=1e-9)
+    assert np.allclose(m2["H2S/SO2"][ok], m0["H2S/SO2"][ok] / one_r[ok], rtol=1e-9)
+    assert np.allclose(m2["H2O/CO2"][ok], m0["H2O/CO2"][ok], rtol=1e-9)
+    fig = ratio_plane_figure(table, "H2S/SO2", "SO2/CO2", title=spec.name)
+    titles = [ax.get_title() for ax in fig.axes]
+    assert sum("stored sulfur released" in t for t in titles) == 1 and len(titles) >= 3
+    plt.close(fig)
+
+
 def test_corner_figure_truth_lines_and_footer(small_run):
     import matplotlib.pyplot as plt
     from ventsource.workflow.demo import truth_table
@@ -171,6 +195,13 @@ def test_corner_figure_truth_lines_and_footer(small_run):
         label = ax.xaxis.label
         if label.get_text():
             assert not footer.overlaps(label.get_window_extent(renderer)), label.get_text()
+    # every kind of line is named in the figure's legend: quantiles, contours, truth
+    legend = [t.get_text() for leg in fig.legends for t in leg.get_texts()]
+    assert any("5 %, 50 %, 95 % quantiles" in t for t in legend)
+    assert any("synthetic truth" in t for t in legend) and any("contours" in t for t in legend)
+    box = fig.legends[0].get_window_extent(renderer)
+    for ax in [a for a in fig.axes if a.has_data()]:  # in the empty upper-right triangle
+        assert not box.overlaps(ax.get_window_extent(renderer))
     plt.close(fig)
 
 

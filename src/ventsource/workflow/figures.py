@@ -337,9 +337,14 @@ def corner_figure(nc_path, rid, truth=None):
                         smooth1d=1.5 if few else 0.8, bins=20 if few else 30, truths=truths, truth_color="#777777",
                         hist_kwargs={"color": INK}, label_kwargs={"fontsize": 8}, labelpad=0.08)
     head = f"Posterior if scrubbed (model M1, scrubbed fraction free), row {rid}"
-    if truths is not None:
-        head += "\ngrey lines: synthetic truth"
     fig.suptitle(head, fontsize=10)
+    from matplotlib.lines import Line2D
+    lines = [Line2D([], [], color=INK, ls="--", lw=1.0,
+                    label="dashed (diagonal panels): 5 %, 50 %, 95 % quantiles"),
+             Line2D([], [], color=INK, lw=1.0, label="contours: 2-D density of the posterior draws")]
+    if truths is not None:
+        lines.append(Line2D([], [], color="#777777", lw=1.2, label="grey lines: synthetic truth"))
+    fig.legend(handles=lines, loc="upper right", fontsize=8, frameon=False, bbox_to_anchor=(0.98, 0.86))
     fig.subplots_adjust(left=0.12, bottom=0.16, top=0.90)
     _footnote(fig)
     return fig
