@@ -66,6 +66,10 @@ def test_readme_commands_in_order(tmp_path):
         jsonschema.validate(hazard, schema)
         assert_rounding_rule(hazard)  # every probability to its Monte Carlo error, never 0 or 1
         assert (doc.parent / "report.html").exists()
+    from report_checks import chromium, render_offline
+    if chromium() is not None:  # the demo's page in a real browser, network cut off
+        render_offline(work / "demo-output" / "report.html", tmp_path,
+                       ROOT / "tests" / "artefacts" / "demo_report_screenshot.png")
     assert (work / "results" / "summary.csv").exists()
     assert (work / "results-30d" / "summary.csv").exists()
     assert (work / "cmp" / "compare.csv").exists()

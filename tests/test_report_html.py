@@ -12,8 +12,6 @@ import base64
 import hashlib
 import json
 import os
-import shutil
-import subprocess
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -121,34 +119,11 @@ def test_probabilities_never_read_as_zero_or_one():
     assert "0.0000" not in page.text
 
 
-def _chromium():
-    for name in ("chromium-headless-shell", "chromium", "chromium-browser"):
-        if shutil.which(name):
-            return shutil.which(name)
-    return None
-
-
 @pytest.mark.slow
 def test_page_renders_in_a_headless_browser_without_network(run_folder, tmp_path):
     """Chromium (system package) loads the page with every proxy pointed at a closed port:
     every section is in the rendered DOM, every image decoded, and a screenshot is kept."""
-    browser = _chromium()
-    if browser is None:
+    from report_checks import chromium, render_offline
+    if chromium() is None:
         pytest.skip("no Chromium on this machine (Debian: apt-get install chromium-headless-shell)")
-    probe = tmp_path / "probe.html"  # the page plus one line that records whether images decoded
-    text = (run_folder / "report.html").read_text(encoding="utf-8")
-    script = ("<script>document.body.setAttribute('data-images-ok', String(Array.from(document.images)"
-              ".every(i => i.complete && i.naturalWidth > 0)));</script></body>")
-    probe.write_text(text.replace("</body>", script), encoding="utf-8")
-    offline = ["--no-sandbox", "--disable-gpu", "--proxy-server=http://127.0.0.1:9",
-               "--proxy-bypass-list=<-loopback>", "--virtual-time-budget=5000"]
-    dom = subprocess.run([browser, *offline, "--dump-dom", probe.as_uri()], capture_output=True,
-                         text=True, timeout=120).stdout
-    page = _parse(dom)
-    assert page.sections == list(SECTIONS)
-    assert 'data-images-ok="true"' in dom
-    ARTEFACTS.mkdir(parents=True, exist_ok=True)
-    shot = ARTEFACTS / "report_screenshot.png"
-    subprocess.run([browser, *offline, f"--screenshot={shot}", "--window-size=1280,3000",
-                    (run_folder / "report.html").as_uri()], capture_output=True, timeout=120)
-    assert shot.exists() and shot.stat().st_size > 10_000
+    render_offline(run_folder / "report.html", tmp_path, ARTEFACTS / "report_screenshot.png")
