@@ -242,6 +242,18 @@ def test_hazard_json_validates_against_schema(small_run):
     assert_rounding_rule(doc)
 
 
+def test_unexplained_row_says_read_no_number():
+    """A row no hypothesis reproduces (the raw-data example with H2/SO2 gave three) keeps its
+    numbers for the machine but says in words that none should be read."""
+    from ventsource.workflow.hazard_export import _hazard_row
+    row = {"id": "W1", "time": "2026-03-14T00:09:59Z", "p_magmatic": 0.0, "p_magmatic_error": 0.0,
+           "scrubbed_so2_avg_q05": 0.86, "scrubbed_so2_avg_median": 0.86, "scrubbed_so2_avg_q95": 0.86}
+    out = _hazard_row(row, ["m0_not_reproducing", "m1_not_reproducing", "unexplained"])
+    assert "mean nothing" in out["read_no_number"]
+    assert out["p_magmatic_text"] == "< 0.01" and out["p_magmatic"] == 0.01
+    assert "read_no_number" not in _hazard_row(row, [])
+
+
 def test_hazard_json_reads_top_down(small_run):
     """Hypotheses defined and prior probabilities labelled before the rows; pi0 never null and
     equal to the labelled P(M0) prior; every field in the rows explained."""

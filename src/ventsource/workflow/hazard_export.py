@@ -96,6 +96,9 @@ def _hazard_row(r, flags):
     out["scrubbed_so2_model_averaged"] = {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
                                           for q in ("q05", "median", "q95")}
     out.update({"flags": flags, "seed": r.get("seed")})
+    if "unexplained" in flags:  # the numbers above come from models that fail this row
+        out["read_no_number"] = ("unexplained: no hypothesis reproduces this measurement; its "
+                                 "probabilities and scrubbed fraction mean nothing")
     return out
 
 

@@ -40,6 +40,7 @@ FIELD_GLOSSARY = {
     "log10_bf_one_vs_split": "log10 Bayes factor of one source against a change of source inside "
                              "the window (below -2: flag mixed_sources, the window may span a change of magma)",
     "flags": "warnings on a row; their meanings are in flag_glossary",
+    "read_no_number": "present on an unexplained row: none of its numbers should be read",
     "seed": "random seed of the row or window (the same seed and inputs give the same numbers)",
     "magmatic_s_tpd": "sulfur leaving the magma, t of S per day (5/50/95 % quantiles)",
     "magmatic_so2_flux_tpd": "the same magmatic flux as t of SO2 per day (the SO2 equivalent, "

@@ -107,13 +107,23 @@ def _windows(doc):
     if not doc.get("windows"):
         return "<p>Rows were inverted one by one (no windows).</p>"
     rows = [[_e(w["window"]), _e(f"{w['first_time']} to {w['last_time']}"), str(len(w["rows"])),
-             _e(w["log10_bf_one_source"]), _e(w["log10_bf_one_vs_split"]),
+             _e(w["log10_bf_one_source"]), _e(w["log10_bf_one_vs_split"]), _e(_window_words(w)),
              "<span class='flag'>" + _e(", ".join(w["flags"])) + "</span>" if w["flags"] else "none"]
             for w in doc["windows"]]
     return ("<p>The rows of a window share one magmatic source. A log10 Bayes factor below 0 "
             "(one source against each row its own) or below -2 (one source against a change "
             "inside the window) flags <b>mixed_sources</b>.</p>"
-            + _table(["window", "span", "rows", "log10 BF one source", "log10 BF one vs change", "flags"], rows))
+            + _table(["window", "span", "rows", "log10 BF one source", "log10 BF one vs change", "in words",
+                      "flags"], rows))
+
+
+def _window_words(w):
+    if "mixed_sources" in w["flags"]:
+        return ("The rows do not share one source: the window may span a change of magma; its "
+                "rows' numbers assume a shared source and should be read with that in mind.")
+    if "source_check_failed" in w["flags"]:
+        return "The change-of-source check could not run: the shared source is unchecked."
+    return "The rows are consistent with one shared magmatic source."
 
 
 def _rows(doc):
@@ -129,7 +139,9 @@ def _rows(doc):
             probs += [_e(r.get("p_scrubbed_text", "n/a")), _e(r.get("p_released_text", "n/a"))]
         out.append([_e(r["id"]), _e(r["time"].replace("T", " ").replace(":00Z", " UTC")),
                     _e(r.get("window") or "-"), *probs,
-                    _e(_band(r.get("scrubbed_so2_model_averaged"))), _e(_headline(r, hyp)), flags])
+                    _e("not to be read" if "unexplained" in r["flags"]
+                       else _band(r.get("scrubbed_so2_model_averaged"))),
+                    _e(_headline(r, hyp)), flags])
     header = ["id", "time", "window", "P(M0)", "P(M1)"] + (["P(M2)"] if "M2" in hyp else [])
     return _table(header + ["scrubbed SO2 fraction (model-averaged)", "in words", "flags"], out)
 
