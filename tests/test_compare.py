@@ -62,6 +62,8 @@ def test_compare_two_priors(tmp_path, capsys):
     assert (t["prior_p_magmatic [demo_mount_kerrow_fast]"] == 0.5).all()
     assert (t["prior_p_magmatic [sceptical]"] == 0.2).all()
     assert "flags [sceptical]" in t.columns
+    moved = np.maximum(np.abs(pa - 0.5), np.abs(pb - 0.2))  # distance from each prior's P(M0)
+    assert np.allclose(t["p_magmatic_moved_by_data"], moved, rtol=1e-12)
     # the runs' hazard.json and report.html carry the spread (prior_sensitivity)
     import json
     hz = json.loads((out / "runs" / "sceptical" / "hazard.json").read_text(encoding="utf-8"))

@@ -128,6 +128,11 @@ def compare_table(ids, names, specs, results, run_dirs):
             _probabilities(rec, results[n][rid], n, spec)
         for name in PROBABILITIES:
             rec[f"{name}_spread"] = _spread([rec[f"{name} [{n}]"] for n in names])
+        # how far the data moved P(M0) from each prior's own value, the largest over priors:
+        # a small spread with a small move means the priors, not the data, agree
+        moves = [abs(rec[f"p_magmatic [{n}]"] - rec[f"prior_p_magmatic [{n}]"]) for n in names
+                 if rec[f"p_magmatic [{n}]"] is not None]
+        rec["p_magmatic_moved_by_data"] = float(max(moves)) if moves else float("nan")
         ps = [rec[f"p_magmatic [{n}]"] for n in names if rec[f"p_magmatic [{n}]"] is not None]
         rec["p_magmatic_sd"] = float(np.std(ps, ddof=1)) if len(ps) > 1 else float("nan")
         posts = {n: _posterior(run_dirs[n], rid) for n in names}
@@ -148,12 +153,16 @@ def record_sensitivity(table, names, run_dirs):
     from ventsource.workflow.run_folder import write_text_json
     spread = {LABELS[k]: round(float(np.nanmax(table[f"{k}_spread"])), 2)
               for k in PROBABILITIES if np.isfinite(table[f"{k}_spread"]).any()}
+    moved = table["p_magmatic_moved_by_data"].astype(float)
     sensitivity = {"priors": list(names), "spread": spread,
+                   "rows_data_barely_moved": [str(i) for i in table.loc[moved < 0.05, "id"]],
                    "per_row": {str(r["id"]): {LABELS[k]: round(float(r[f"{k}_spread"]), 2) for k in PROBABILITIES
                                               if np.isfinite(r[f"{k}_spread"])} for _, r in table.iterrows()},
                    "note": "spread = largest minus smallest probability across the priors (2 decimals); "
                            "compare.csv also gives each prior's own P(M0): a posterior that stays at "
-                           "its prior has learnt little from the data, however small the spread"}
+                           "its prior has learnt little from the data, however small the spread; "
+                           "rows_data_barely_moved lists the rows where P(M0) moved less than 0.05 "
+                           "from its prior value under every prior"}
     for folder in run_dirs.values():
         path = os.path.join(folder, "hazard.json")
         with open(path, encoding="utf-8") as fh:

@@ -163,8 +163,12 @@ def _prior_dependence(doc):
         return (f"<p>{_e(ps.get('note', 'not run'))}.</p><p>Without it, read every probability "
                 "here as valid for this one prior only.</p>")
     rows = [[_e(k), _e(v)] for k, v in ps.get("spread", {}).items()]
+    still = ps.get("rows_data_barely_moved") or []
+    warn = (f"<p class='flag'>In {len(still)} row(s) the data moved P(M0) by less than 0.05 from its "
+            f"prior value under every prior ({_e(', '.join(still[:10]))}{' ...' if len(still) > 10 else ''}): "
+            "there a small spread reflects the priors, not the data.</p>") if still else ""
     return (f"<p>Priors compared: {_e(', '.join(ps['priors']))}. {_e(ps.get('note', ''))}</p>"
-            + _table(["probability", "largest spread across priors (over rows)"], rows))
+            + _table(["probability", "largest spread across priors (over rows)"], rows) + warn)
 
 
 def _budget(doc):
