@@ -52,7 +52,7 @@ def summary_columns(free_names, ratio_names):
             "scrubbed_so2_avg_q05", "scrubbed_so2_avg_median", "scrubbed_so2_avg_q95"]
     for name in free_names:
         cols += [f"{name}_median", f"{name}_q05", f"{name}_q95", f"{name}_rhat", f"{name}_ess_bulk"]
-    if "pressure_bar" in free_names:  # model-averaged, as in window runs (averaged_pressure.py)
+    if "pressure_bar" in free_names:  # model-averaged, as in window runs (inference/row/averaged.py)
         cols += ["pressure_bar_avg_q05", "pressure_bar_avg_median", "pressure_bar_avg_q95"]
     for r in ratio_names:  # posterior predictive of each measured ratio (for the figures)
         cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
