@@ -56,3 +56,18 @@ def test_compare_two_priors(tmp_path, capsys):
     ov = [c for c in t.columns if c.startswith("overlap ")]
     assert len(ov) == 5 and np.allclose(t[ov].to_numpy(), 1.0)  # identical posteriors
     assert (out / "compare.png").stat().st_size > 10_000
+    # every hypothesis, each prior's own P(M0) (pi0) and the flags beside the posteriors
+    assert np.allclose(t["p_scrubbed [sceptical]"], 1.0 - pb, rtol=1e-12)
+    assert np.allclose(t["p_scrubbed_spread"], np.abs(pa - pb))  # two models: P(M1) moves as P(M0)
+    assert (t["prior_p_magmatic [demo_mount_kerrow_fast]"] == 0.5).all()
+    assert (t["prior_p_magmatic [sceptical]"] == 0.2).all()
+    assert "flags [sceptical]" in t.columns
+    moved = np.maximum(np.abs(pa - 0.5), np.abs(pb - 0.2))  # distance from each prior's P(M0)
+    assert np.allclose(t["p_magmatic_moved_by_data"], moved, rtol=1e-12)
+    # the runs' hazard.json and report.html carry the spread (prior_sensitivity)
+    import json
+    hz = json.loads((out / "runs" / "sceptical" / "hazard.json").read_text(encoding="utf-8"))
+    assert hz["prior_sensitivity"]["priors"] == ["demo_mount_kerrow_fast", "sceptical"]
+    assert hz["prior_sensitivity"]["spread"]["P(M0)"] == round(float(np.abs(pa - pb).max()), 2)
+    page = (out / "runs" / "sceptical" / "report.html").read_text(encoding="utf-8")
+    assert "Priors compared: demo_mount_kerrow_fast, sceptical" in page

@@ -97,10 +97,27 @@ def test_series_figure_marks_flags_and_units_of_pressure(small_run, tmp_path):
     s.to_csv(tmp_path / "summary.csv", index=False)
     fig = series_figure(tmp_path / "summary.csv", prior_name="p", p_magmatic_prior=0.3)
     text = "\n".join(_texts(fig))
-    assert "row carries a flag (docs/flags.md)" in text
+    assert "row carries a flag (meanings:\nreport.html, README.txt)" in text
+    pressure = [ax for ax in fig.axes if ax.get_ylabel().startswith("degassing")]
+    legend = [t.get_text() for t in pressure[0].get_legend().get_texts()]
+    # rows one by one show the model-averaged pressure, the same quantity as a window run
+    assert legend == ["5-95 %, model-averaged", "median, model-averaged"]
     assert "unexplained" in text
     assert "prior P(M0) = 0.3" in text
+    _assert_legends_beside_data(fig)
     plt.close(fig)
+
+
+def _assert_legends_beside_data(fig):
+    """No legend box overlaps the data area of any panel (matplotlib's own layout geometry)."""
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    legends = [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None]
+    assert legends
+    for leg in legends:
+        box = leg.get_window_extent(renderer)
+        for ax in fig.axes:
+            assert not box.overlaps(ax.get_window_extent(renderer)), leg.get_texts()[0].get_text()
 
 
 def test_plain_number_ticks():
@@ -136,6 +153,30 @@ def test_ratio_plane_figure(small_run):
     plt.close(fig)
 
 
+def test_ratio_plane_shows_the_released_sulfur_hypothesis():
+    """With a [hypotheses] table the plane gets a third panel, M2: the M0 gas with its SO2
+    multiplied by 1 + r (the hypothesis' definition, inference/hypotheses/release_marginal.py),
+    so per draw SO2/CO2 grows by 1 + r, H2S/SO2 shrinks by it and H2O/CO2 stays."""
+    import matplotlib.pyplot as plt
+    from ventsource.inference.priors import load_prior_file
+    from ventsource.workflow.demo import DEMO_RELEASE_PRIOR
+    from ventsource.workflow.prior_predictive import M2_LABEL, prior_predictive_table, ratio_plane_figure
+    spec = load_prior_file(DEMO_RELEASE_PRIOR)
+    table = prior_predictive_table(spec, 40, seed=2, ratio_names=("H2S/SO2", "SO2/CO2", "H2O/CO2"))
+    m0 = table[table["model"] == "M0 purely magmatic"].reset_index(drop=True)
+    m2 = table[table["model"] == M2_LABEL].reset_index(drop=True)
+    ok = (m0["status"] == 0).to_numpy()
+    assert ok.sum() > 10
+    one_r = 1.0 + m2["released_so2"].to_numpy()
+    assert np.allclose(m2["SO2/CO2"][ok], m0["SO2/CO2"][ok] * one_r[ok], rtol=1e-9)
+    assert np.allclose(m2["H2S/SO2"][ok], m0["H2S/SO2"][ok] / one_r[ok], rtol=1e-9)
+    assert np.allclose(m2["H2O/CO2"][ok], m0["H2O/CO2"][ok], rtol=1e-9)
+    fig = ratio_plane_figure(table, "H2S/SO2", "SO2/CO2", title=spec.name)
+    titles = [ax.get_title() for ax in fig.axes]
+    assert sum("stored sulfur released" in t for t in titles) == 1 and len(titles) >= 3
+    plt.close(fig)
+
+
 def test_corner_figure_truth_lines_and_footer(small_run):
     import matplotlib.pyplot as plt
     from ventsource.workflow.demo import truth_table
@@ -154,6 +195,13 @@ def test_corner_figure_truth_lines_and_footer(small_run):
         label = ax.xaxis.label
         if label.get_text():
             assert not footer.overlaps(label.get_window_extent(renderer)), label.get_text()
+    # every kind of line is named in the figure's legend: quantiles, contours, truth
+    legend = [t.get_text() for leg in fig.legends for t in leg.get_texts()]
+    assert any("5 %, 50 %, 95 % quantiles" in t for t in legend)
+    assert any("synthetic truth" in t for t in legend) and any("contours" in t for t in legend)
+    box = fig.legends[0].get_window_extent(renderer)
+    for ax in [a for a in fig.axes if a.has_data()]:  # in the empty upper-right triangle
+        assert not box.overlaps(ax.get_window_extent(renderer))
     plt.close(fig)
 
 
@@ -189,6 +237,39 @@ def test_hazard_json_validates_against_schema(small_run):
         d = decimals_for_error(err)
         assert p == round(p, d)
         assert r["scrubbed_so2_model_averaged"]["median"] is not None
+        assert "p_scrubbed_below_epsilon_if_scrubbed" in r  # the name says it is conditional on M1
+    from hazard_checks import assert_rounding_rule
+    assert_rounding_rule(doc)
+
+
+def test_unexplained_row_says_read_no_number():
+    """A row no hypothesis reproduces (the raw-data example with H2/SO2 gave three) keeps its
+    numbers for the machine but says in words that none should be read."""
+    from ventsource.workflow.hazard_export import _hazard_row
+    row = {"id": "W1", "time": "2026-03-14T00:09:59Z", "p_magmatic": 0.0, "p_magmatic_error": 0.0,
+           "scrubbed_so2_avg_q05": 0.86, "scrubbed_so2_avg_median": 0.86, "scrubbed_so2_avg_q95": 0.86}
+    out = _hazard_row(row, ["m0_not_reproducing", "m1_not_reproducing", "unexplained"])
+    assert "mean nothing" in out["read_no_number"]
+    assert out["p_magmatic_text"] == "< 0.01" and out["p_magmatic"] == 0.01
+    assert "read_no_number" not in _hazard_row(row, [])
+
+
+def test_hazard_json_reads_top_down(small_run):
+    """Hypotheses defined and prior probabilities labelled before the rows; pi0 never null and
+    equal to the labelled P(M0) prior; every field in the rows explained."""
+    _, out = small_run
+    doc = json.loads((out / "hazard.json").read_text(encoding="utf-8"))
+    keys = list(doc)
+    assert keys.index("hypotheses") < keys.index("prior_model_probabilities") < keys.index("rows")
+    assert set(doc["hypotheses"]) == set(doc["prior_model_probabilities"]) == {"M0", "M1"}
+    assert doc["pi0"]["value"] == doc["prior_model_probabilities"]["M0"]
+    assert doc["inference_options_in_effect"]["pi0"] == doc["pi0"]["value"]
+    assert doc["priors"][0]["p_magmatic_prior"] == doc["pi0"]["value"]
+    glossary = doc["field_glossary"]
+    for name in doc["rows"][0]:
+        explained = name in glossary or any(k.startswith("*") and name.endswith(k[1:]) for k in glossary)
+        assert explained or name in ("id", "time"), name
+    assert "conditional on M1" in glossary["p_scrubbed_below_epsilon_if_scrubbed"]
 
 
 def test_schema_refuses_absolute_paths(small_run):
@@ -208,6 +289,17 @@ def test_rounding_rule():
     assert round_probability(0.123456, 0.0042) == (0.123, 0.004)
     assert round_probability(0.5, None) == (0.5, None)
     assert round_probability(0.98765, 0.00001)[0] == 0.9877  # at most 4 decimals
+    # the error is rounded to one significant digit first: 0.00099 -> 0.001, so 3 decimals
+    assert round_probability(0.82621, 0.00099) == (0.826, 0.001)
+    # never exactly 0 or 1: the bound, and the text says so
+    assert round_probability(0.9999, 0.01) == (0.99, 0.01)
+    assert round_probability(0.00001, 0.0002) == (0.0001, 0.0002)
+    from ventsource.workflow.hazard_format import probability_text, round_log10_bf
+    assert probability_text(0.9999, 0.01) == "> 0.99"
+    assert probability_text(0.00002, 0.0004) == "< 0.0001"
+    assert probability_text(0.00002, 0.0004) != "0.0000"
+    assert probability_text(0.66357, 0.0251) == "0.66 ± 0.03"
+    assert round_log10_bf(29.17612422981421) == 29.2
 
 
 def test_readme_beside_tables(small_run):
@@ -215,6 +307,8 @@ def test_readme_beside_tables(small_run):
     _, out = small_run
     text = (out / "README.txt").read_text()
     assert CAUTION in text and "summary.csv" in text and "SYNTHETIC" in text
+    assert "Glossary:" in text and "conditional on M1" in text and "band widens" in text
+    assert "docs/flags.md" not in text  # a panel has the folder, not the package's docs
     header = (out / "summary.csv").read_text().splitlines()[0]
     assert header.startswith("id,time,")  # the table itself stays plain CSV
 
@@ -339,4 +433,5 @@ def test_rows_vs_windows_figure(small_run, tmp_path):
     for needed in ("prior P(M0) = 0.4", "(probability)", "(fraction)", "time (UTC)", "row by row",
                    "by windows", "mixed_sources", "Caution:"):
         assert needed in text, needed
+    _assert_legends_beside_data(fig)
     plt.close(fig)

@@ -60,8 +60,16 @@ def test_readme_commands_in_order(tmp_path):
     assert (work / "demo-output" / "hazard.json").exists()
     import jsonschema  # the demo's hazard files follow the published schema
     schema = json.loads((ROOT / "docs" / "hazard.schema.json").read_text())
+    from hazard_checks import assert_rounding_rule
     for doc in (work / "demo-output" / "hazard.json", work / "demo-output" / "row_by_row" / "hazard.json"):
-        jsonschema.validate(json.loads(doc.read_text()), schema)
+        hazard = json.loads(doc.read_text(encoding="utf-8"))
+        jsonschema.validate(hazard, schema)
+        assert_rounding_rule(hazard)  # every probability to its Monte Carlo error, never 0 or 1
+        assert (doc.parent / "report.html").exists()
+    from report_checks import chromium, render_offline
+    if chromium() is not None:  # the demo's page in a real browser, network cut off
+        render_offline(work / "demo-output" / "report.html", tmp_path,
+                       ROOT / "tests" / "artefacts" / "demo_report_screenshot.png")
     assert (work / "results" / "summary.csv").exists()
     assert (work / "results-30d" / "summary.csv").exists()
     assert (work / "cmp" / "compare.csv").exists()

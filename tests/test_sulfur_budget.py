@@ -78,12 +78,34 @@ def test_running_total_is_the_trapezoid_rule_and_skips_long_gaps():
     days = np.array([0.0, 1.0, 3.0, 4.5, 40.0, 41.0])
     rate = np.array([10.0, 20.0, 5.0, 0.0, 8.0, 8.0])
     draws = np.repeat(rate[:, None], 3, axis=1)
-    total, bridged = cumulative(days * 86400.0, draws, max_gap_days=30.0)
+    total, bridged, _ = cumulative(days * 86400.0, draws, max_gap_days=30.0)
     ref = np.trapezoid(rate[:4], days[:4])  # numpy's trapezoid rule
     assert total[3, 0] == pytest.approx(ref, rel=1e-12)
     assert total[4, 0] == pytest.approx(ref, rel=1e-12)  # 35.5-day gap: nothing added
     assert total[5, 0] == pytest.approx(ref + 8.0, rel=1e-12)
     assert bridged.tolist() == [False, True, True, True, False, True]
+
+
+def test_running_total_restarts_after_a_mixed_sources_window():
+    """Rows of a window flagged mixed_sources get no total; the total restarts at zero after
+    them and the first row after is marked restarted (numpy's trapezoid rule as reference)."""
+    days = np.array([0.0, 1.0, 2.0, 3.0, 4.0, 6.0])
+    rate = np.array([10.0, 20.0, 99.0, 99.0, 5.0, 7.0])
+    draws = np.repeat(rate[:, None], 2, axis=1)
+    excluded = [False, False, True, True, False, False]
+    total, bridged, restarted = cumulative(days * 86400.0, draws, 30.0, excluded)
+    assert total[1, 0] == pytest.approx(np.trapezoid(rate[:2], days[:2]), rel=1e-12)
+    assert np.isnan(total[2:4]).all()
+    assert total[4, 0] == 0.0  # restarted: nothing of the flagged window is carried
+    assert total[5, 0] == pytest.approx(np.trapezoid(rate[4:], days[4:]), rel=1e-12)
+    assert restarted.tolist() == [False, False, False, False, True, False]
+
+
+def test_budget_direction_names_release():
+    from ventsource.workflow.sulfur_budget import direction
+    assert direction(-50.0, -10.0) == "released"
+    assert direction(10.0, 50.0) == "retained"
+    assert direction(-10.0, 50.0) == "not resolved"
 
 
 def test_mass_balance_no_scrubbing_no_release_retains_nothing():

@@ -59,6 +59,8 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     if figures:
         from ventsource.workflow.figures import run_figures
         run_figures(out, series, load_prior(prior_path))
+        from ventsource.workflow.report_html import write_report
+        write_report(out)  # report.html again, with the figures embedded
     return pd.read_csv(os.path.join(out, SUMMARY_NAME), dtype={"id": str})
 
 

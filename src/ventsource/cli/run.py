@@ -40,7 +40,9 @@ def cmd_run(args):
         from ventsource.workflow.figures import run_figures
         figs = run_figures(args.out, series, spec, corner_ids=args.corner,
                            title="Gas-ratio inversion, " + ("by windows" if window else "row by row"))
-    print(f"results in {args.out}/: summary.csv, hazard.json, rows/*.nc"
+        from ventsource.workflow.report_html import write_report
+        write_report(args.out)  # the page again, now with the figures embedded
+    print(f"results in {args.out}/: report.html, summary.csv, hazard.json, rows/*.nc"
           + (", " + ", ".join(os.path.relpath(f, args.out) for f in figs) if figs else ""))
     print(f"Caution: {CAUTION}")
     return 0

@@ -178,6 +178,9 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
                    options=dict(options), progress_stream=progress_stream, model_note=note,
                    window=window, synthetic_data=True)
     figs = _demo_figures(out_dir, by_row, series)
+    from ventsource.workflow.report_html import write_report
+    for folder in (out_dir, by_row):
+        write_report(folder)  # with the figures embedded
     from ventsource.workflow.table_notes import write_table_readme
     write_table_readme(out_dir, {"measurements.csv": "synthetic measurements at a fictional volcano "
                                  "(forward model plus noise)", "truth.csv": "the true state, noise-free "

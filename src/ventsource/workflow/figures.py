@@ -11,6 +11,7 @@ import pandas as pd
 
 from ventsource.common.caution import CAUTION
 from ventsource.workflow.log_axes import plain_log_axis
+from ventsource.workflow.prior_bands import prior_bands, prior_p_magmatic  # noqa: F401 (re-exported)
 
 INK = "#1d3557"
 BAND = "#b5651d"
@@ -66,7 +67,7 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
     has_budget = "cumulative_retained_s_t_median" in s and s["cumulative_retained_s_t_median"].notna().any()
     extra = int(has_m2) + int(has_budget)
     n = len(ratios) + 2 + int(has_p) + extra
-    fig, axes = plt.subplots(n, 1, figsize=(9, 1.9 * n + 1.4), sharex=True)
+    fig, axes = plt.subplots(n, 1, figsize=(12, 1.9 * n + 1.4), sharex=True)
     bottom = axes[-1]
     if extra:  # the sulfur panels go last; the standard panels keep their places before them
         tail, axes = axes[len(axes) - extra:], axes[:len(axes) - extra]
@@ -80,8 +81,7 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
         for h, lab in zip(*ax.get_legend_handles_labels()):
             legend.setdefault(lab, h)  # one legend for all ratio panels, censored markers included
     if ratios:
-        axes[0].legend(list(legend.values()), list(legend.keys()), fontsize=7, frameon=False, ncol=2,
-                       loc="lower left")
+        _legend_outside(axes[0], list(legend.values()), list(legend.keys()))
     if has_p:
         _pressure_panel(axes[-3], s, times, truth)
     _p_magmatic_panel(axes[-2], s, times, p_magmatic_prior)
@@ -103,8 +103,15 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
     return fig
 
 
-# legends drawn over data: a pale box keeps them legible
-_LEGEND_BOX = dict(frameon=True, framealpha=0.8, facecolor="white", edgecolor="none")
+# legends beside the panels, never over the data (a point under a legend is a point lost)
+_LEGEND_BOX = dict(frameon=False)
+
+
+def _legend_outside(ax, handles=None, labels=None):
+    """The panel's legend to the right of its axes, top-aligned."""
+    args = (handles, labels) if handles is not None else ()
+    ax.legend(*args, fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+              borderaxespad=0.0)
 
 
 def _window_marks(axes, s, times):
@@ -133,7 +140,7 @@ def _hypotheses_panel(ax, s, times):
     ax.plot(times, p2, "^-", ms=3, color=BAND, label="P(M2) stored sulfur released")
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("probability", fontsize=9)
-    ax.legend(fontsize=7, loc="center left", ncol=3, **_LEGEND_BOX)
+    _legend_outside(ax)
 
 
 def _budget_panel(ax, s, times, truth=None):
@@ -148,7 +155,7 @@ def _budget_panel(ax, s, times, truth=None):
                 ms=4, color="#777777", label="synthetic truth")
     ax.axhline(0.0, color="#999999", lw=0.8, ls=":")
     ax.set_ylabel("sulfur retained\nsince first row (t S)", fontsize=9)
-    ax.legend(fontsize=7, loc="upper left", **_LEGEND_BOX)
+    _legend_outside(ax)
 
 
 def _ratio_panel(ax, s, times, r, series, truth):
@@ -182,7 +189,7 @@ def _p_magmatic_panel(ax, s, times, p_prior):
     flagged = s["flags"].astype("string").fillna("").str.len().to_numpy() > 0 if "flags" in s else None
     if flagged is not None and flagged.any():
         ax.plot(times[flagged], p[flagged], "o", ms=9, mfc="none", mec=FLAG_COLOUR, mew=1.2, ls="none",
-                label="row carries a flag (docs/flags.md)")
+                label="row carries a flag (meanings:\nreport.html, README.txt)")
         previous = ""
         for t, pv, text in zip(times, p, s["flags"].astype("string").fillna("")):
             if text and text != previous:  # a window's flag is written once, at its first row
@@ -191,7 +198,7 @@ def _p_magmatic_panel(ax, s, times, p_prior):
             previous = text
     if p_prior is not None:
         ax.axhline(p_prior, color="#999999", lw=0.8, ls=":", label=f"prior P(M0) = {p_prior:g}")
-    ax.legend(fontsize=7, loc="lower left", ncol=3, **_LEGEND_BOX)
+    _legend_outside(ax)
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("P(M0) purely\nmagmatic\n(probability)", fontsize=9)
 
@@ -211,24 +218,27 @@ def _scrubbed_panel(ax, s, times, truth):
     if truth is not None and "scrubbed_so2" in truth:
         ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["scrubbed_so2"], "x",
                 ms=4, color="#777777", label="synthetic truth")
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
+    _legend_outside(ax)
     ax.set_ylim(-0.03, 1.03)
     ax.set_ylabel("scrubbed SO2\n(fraction)", fontsize=9)
 
 
 def _pressure_panel(ax, s, times, truth):
-    # window runs: model-averaged; row-by-row runs: the scrubbing model's posterior only
-    averaged = "scrubbed_so2_if_scrubbed_median" in s
+    # window runs: model-averaged; row-by-row runs: their model-averaged columns (older
+    # folders without them: the scrubbing model's posterior, said so in the legend)
+    row_avg = "pressure_bar_avg_median" in s
+    averaged = row_avg or "scrubbed_so2_if_scrubbed_median" in s
+    col = "pressure_bar_avg" if row_avg else "pressure_bar"
     tag = "model-averaged" if averaged else "if scrubbed (model M1 only, conditional)"
-    ax.fill_between(times, s["pressure_bar_q05"].astype(float), s["pressure_bar_q95"].astype(float),
+    ax.fill_between(times, s[f"{col}_q05"].astype(float), s[f"{col}_q95"].astype(float),
                     color=INK, alpha=0.15, lw=0, label=f"5-95 %, {tag}")
-    ax.plot(times, s["pressure_bar_median"].astype(float), "-o", ms=3, color=INK, label=f"median, {tag}")
+    ax.plot(times, s[f"{col}_median"].astype(float), "-o", ms=3, color=INK, label=f"median, {tag}")
     if truth is not None and "pressure_bar" in truth:
         ax.plot(pd.to_datetime(truth["time"].str.rstrip("Z")), truth["pressure_bar"], "x",
                 ms=4, color="#777777", label="synthetic truth")
     plain_log_axis(ax)
     ax.set_ylabel("degassing\npressure (bar)", fontsize=9)
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
+    _legend_outside(ax)
 
 
 def plot_rows_vs_windows(rows_csv, windows_csv, path, truth_csv=None, title="", p_magmatic_prior=0.5):
@@ -270,7 +280,7 @@ def rows_vs_windows_figure(rows_csv, windows_csv, truth_csv=None, title="", p_ma
     axes[-1].set_xlabel("time (UTC)")
     for ax in axes:
         ax.set_ylim(-0.03, 1.03)
-        ax.legend(fontsize=7, loc="center left", **_LEGEND_BOX)
+        _legend_outside(ax)
     _window_marks(list(axes), b, t)
     axes[0].set_title((title + "\n" if title else "") + "shaded: window flagged mixed_sources "
                       "(a change of magma inside the window)", fontsize=9, pad=14)
@@ -335,9 +345,14 @@ def corner_figure(nc_path, rid, truth=None):
                         smooth1d=1.5 if few else 0.8, bins=20 if few else 30, truths=truths, truth_color="#777777",
                         hist_kwargs={"color": INK}, label_kwargs={"fontsize": 8}, labelpad=0.08)
     head = f"Posterior if scrubbed (model M1, scrubbed fraction free), row {rid}"
-    if truths is not None:
-        head += "\ngrey lines: synthetic truth"
     fig.suptitle(head, fontsize=10)
+    from matplotlib.lines import Line2D
+    lines = [Line2D([], [], color=INK, ls="--", lw=1.0,
+                    label="dashed (diagonal panels): 5 %, 50 %, 95 % quantiles"),
+             Line2D([], [], color=INK, lw=1.0, label="contours: 2-D density of the posterior draws")]
+    if truths is not None:
+        lines.append(Line2D([], [], color="#777777", lw=1.2, label="grey lines: synthetic truth"))
+    fig.legend(handles=lines, loc="upper right", fontsize=8, frameon=False, bbox_to_anchor=(0.98, 0.86))
     fig.subplots_adjust(left=0.12, bottom=0.16, top=0.90)
     _footnote(fig)
     return fig
@@ -355,27 +370,13 @@ def plot_ratio_plane_with_data(spec, series, path, n=2000, seed=0, x_ratio=None,
                             title=spec.name)
 
 
-def prior_bands(spec, n=4000, seed=0):
-    """{free parameter: (5 %, 95 %) of its prior} from n seeded prior draws."""
-    import numpy as np
-    draws = np.asarray(spec.sample(np.random.default_rng(seed), n), dtype=float)
-    return {name: tuple(float(v) for v in np.quantile(draws[:, j], [0.05, 0.95]))
-            for j, name in enumerate(spec.free_names)}
-
-
 def _prior_band(ax, band, conditional):
     """The prior's 5-95 % band, hatched, behind the posterior band: where the two coincide
     the data said little about this parameter."""
     tag = " (if scrubbed)" if conditional else ""
     ax.axhspan(band[0], band[1], facecolor="none", edgecolor="#c8c8c8", hatch="//", lw=0,
                zorder=0, label=f"prior 5-95 %{tag}")
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=2)
-
-
-def prior_p_magmatic(spec):
-    """Prior P(M0) of the prior file: p_magmatic, less the release share with [hypotheses]."""
-    from ventsource.inference.priors.hypotheses import prior_model_probabilities
-    return prior_model_probabilities(spec)[0]
+    _legend_outside(ax)
 
 
 def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", n_prior=2000):

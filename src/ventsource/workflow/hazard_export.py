@@ -1,10 +1,16 @@
-"""hazard.json of a series run: per-row probabilities with their provenance (input and
-prior checksums, seeds, options in effect), rounded by hazard_format's rule, with the
-meaning of every flag that occurs.
+"""hazard.json of a series run, readable top-down: what was asked, the hypotheses and their
+labelled prior probabilities, the caution, the windows, the rows (probabilities rounded by
+hazard_format's rule, each with its text form), then provenance (input and prior checksums,
+seeds, options in effect), the meaning of every flag that occurs and of every field.
 """
 from ventsource.common.caution import CAUTION
 from ventsource.inference.priors.hypotheses import prior_model_probabilities
 from ventsource.workflow.run_folder import file_sha256
+
+# top-down order of hazard.json (keys not named here follow at the end)
+KEY_ORDER = ("what", "caution", "synthetic", "hypotheses", "prior_model_probabilities", "pi0",
+             "rounding", "prior_sensitivity", "windows", "rows", "sulfur_budget", "flag_glossary",
+             "field_glossary", "note")
 
 
 def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, sigma=None,
@@ -18,19 +24,37 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
     from ventsource.common.flag_glossary import glossary_for
     from ventsource.inference.row.one_measurement import _DEFAULTS
     from ventsource.workflow.hazard_format import ROUNDING_RULE, relative_path
+    from ventsource.workflow.hazard_text import hypotheses_for, labelled_prior_probabilities
+    pi0 = (options or {}).get("pi0")
+    pi0 = float(spec.p_magmatic) if pi0 is None else float(pi0)
+    labelled = labelled_prior_probabilities(spec, pi0)
     effective = dict(_DEFAULTS, epsilon=float(getattr(spec, "epsilon", 0.05)), **options)
+    effective["pi0"] = pi0  # the value used (option, else the prior's p_magmatic), never null
     flag_lists = [[f for f in (r.get("flags") or "").split(";") if f] for r in rows]
     return {
-        "what": "P(M0 | data): posterior probability that the gas is purely magmatic "
-                "(no SO2 scrubbed), per measurement, under the model and prior below",
+        "what": "For each measurement (and each window of measurements sharing one source): the "
+                "probability of each hypothesis below given the data, under the model and prior "
+                "below. P(M0) is the probability that the gas is purely magmatic.",
         "caution": CAUTION,
         "synthetic": bool(getattr(spec, "fictional", False) or synthetic_data),
+        "hypotheses": hypotheses_for(spec),
+        "prior_model_probabilities": labelled,
+        "pi0": {"value": pi0, "source": "inference option pi0" if (options or {}).get("pi0") is not None
+                else "prior file ([magmatic] p_magmatic)",
+                "meaning": "prior probability of M0 relative to M1, M0 / (M0 + M1)"},
+        "rounding": ROUNDING_RULE,
+        "prior_sensitivity": {"note": "not run: 'ventsource compare' inverts the same data under "
+                                      "other priors and shows how much each probability moves"},
+        "windows": window_spans(rows, flag_lists),
+        "rows": [_hazard_row(r, flags) for r, flags in zip(rows, flag_lists)],
+        "flag_glossary": glossary_for(flag_lists),
+        "note": model_note or "",
         "package": "ventsource", "package_version": __version__,
         "input_file": relative_path(series.path, out_dir), "input_sha256": file_sha256(series.path),
         "run_seed": int(seed), "row_seed_rule": "sha256('RUNSEED:ID'), first 8 bytes little-endian mod 2^63-1",
         "priors": [{"file": relative_path(prior_path, out_dir), "sha256": file_sha256(prior_path),
                     "name": spec.name, "fictional": bool(getattr(spec, "fictional", False)),
-                    "models": dict(spec.models), "p_magmatic_prior": prior_model_probabilities(spec)[0],
+                    "models": dict(spec.models), "p_magmatic_prior": labelled["M0"],
                     "prior_model_probabilities": list(prior_model_probabilities(spec)),
                     "epsilon": float(getattr(spec, "epsilon", 0.05)),
                     "likelihood": dict(spec.likelihood), "free_parameters": list(spec.free_names)}],
@@ -38,27 +62,55 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
         "inference_options_in_effect": {k: v for k, v in effective.items() if not callable(v)},
         "default_relative_sigma": sigma if sigma is not None else getattr(series, "default_sigma", None),
         "window_per_row": window_per_row,
-        "note": model_note or "",
-        "rounding": ROUNDING_RULE,
-        "flag_glossary": glossary_for(flag_lists),
-        "rows": [_hazard_row(r, flags) for r, flags in zip(rows, flag_lists)],
     }
 
 
+def window_spans(rows, flag_lists):
+    """One entry per window (first row order): span, rows, Bayes factors (1 decimal), flags."""
+    from ventsource.workflow.hazard_format import round_log10_bf
+    spans = {}
+    for r, flags in zip(rows, flag_lists):
+        label = r.get("window")
+        if label is None:
+            continue
+        w = spans.setdefault(label, {"window": label, "first_time": r["time"], "last_time": r["time"],
+                                     "rows": [], "log10_bf_one_source": round_log10_bf(r.get("log10_bf_one_source")),
+                                     "log10_bf_one_vs_split": round_log10_bf(r.get("log10_bf_one_vs_split")),
+                                     "flags": []})
+        w["rows"].append(r["id"])
+        w["first_time"], w["last_time"] = min(w["first_time"], r["time"]), max(w["last_time"], r["time"])
+        w["flags"] = sorted(set(w["flags"]) | ({"mixed_sources", "source_check_failed"} & set(flags)))
+    return list(spans.values())
+
+
 def _hazard_row(r, flags):
-    from ventsource.workflow.hazard_format import round_fraction, round_probability
+    from ventsource.workflow.hazard_format import probability_text, round_fraction, round_probability
     p, p_err = round_probability(r.get("p_magmatic"), r.get("p_magmatic_error"))
     pb, pb_err = round_probability(r.get("p_scrubbed_below_epsilon"), r.get("p_scrubbed_below_epsilon_error"))
-    return {"id": r["id"], "time": r["time"], "p_magmatic": p, "p_magmatic_error": p_err,
-            "p_scrubbed_below_epsilon": pb, "p_scrubbed_below_epsilon_error": pb_err,
-            "scrubbed_so2_model_averaged": {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
-                                            for q in ("q05", "median", "q95")},
-            "window": r.get("window"), "log10_bf_one_source": r.get("log10_bf_one_source"),
-            "log10_bf_one_vs_split": r.get("log10_bf_one_vs_split"),
-            "flags": flags, "seed": r.get("seed"),
-            "p_magmatic_shift": _rounded(r.get("p_magmatic_shift")),
-            "unresolved_direction": r.get("unresolved_direction")}
+    out = {"id": r["id"], "time": r["time"], "window": r.get("window"),
+           "p_magmatic": p, "p_magmatic_error": p_err,
+           "p_magmatic_text": probability_text(r.get("p_magmatic"), r.get("p_magmatic_error"))}
+    if "p_scrubbed_below_epsilon" in r:  # row by row only (the window model does not give it)
+        out.update({"p_scrubbed_below_epsilon_if_scrubbed": pb,
+                    "p_scrubbed_below_epsilon_if_scrubbed_error": pb_err})
+    out["scrubbed_so2_model_averaged"] = {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
+                                          for q in ("q05", "median", "q95")}
+    out.update({"flags": flags, "seed": r.get("seed"),
+                "p_magmatic_shift": _rounded(r.get("p_magmatic_shift")),  # how much the data said
+                "unresolved_direction": r.get("unresolved_direction")})
+    if "unexplained" in flags:  # the numbers above come from models that fail this row
+        out["read_no_number"] = ("unexplained: no hypothesis reproduces this measurement; its "
+                                 "probabilities and scrubbed fraction mean nothing")
+    return out
 
 
 def _rounded(v):
-    return None if v is None else round(float(v), 3)
+    return None if v in (None, "") else round(float(v), 3)
+
+
+def ordered(doc):
+    """doc with its keys in KEY_ORDER (then the rest) and the glossary of the fields it uses."""
+    from ventsource.workflow.hazard_text import fields_used
+    doc = dict(doc, field_glossary=fields_used(doc))
+    head = [k for k in KEY_ORDER if k in doc]
+    return {k: doc[k] for k in head + [k for k in doc if k not in head]}

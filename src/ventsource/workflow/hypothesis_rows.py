@@ -60,8 +60,11 @@ def add_budget(series, rows, seed, max_gap_days=None):
     if getattr(series, "fluxes", None) is None:
         return rows
     gap = DEFAULT_MAX_GAP_DAYS if max_gap_days is None else float(max_gap_days)
+    # a window flagged mixed_sources has no one source to integrate: its rows stay out of
+    # the running total, which restarts after them (sulfur_budget.cumulative)
+    excluded = ["mixed_sources" in (r.get("flags") or "").split(";") for r in rows]
     budget = series_budget(series.times, [_from_json(r.get(DRAWS_KEY)) for r in rows],
-                           series.fluxes, seed, gap)
+                           series.fluxes, seed, gap, excluded)
     for row, b in zip(rows, budget):
         row.update(b)
     return rows
@@ -69,12 +72,18 @@ def add_budget(series, rows, seed, max_gap_days=None):
 
 def extend_hazard(doc, rows, series, max_gap_days=None):
     """hazard.json: the three probabilities and the budget per row, when present."""
-    if rows and "p_released" in rows[0]:
-        doc["hypotheses"] = ("M0 purely magmatic, M1 SO2 scrubbed, M2 stored sulfur released "
-                             "(SO2 x (1 + r)); P(M0) is p_magmatic")
     if getattr(series, "fluxes", None) is not None:
         doc["sulfur_budget"] = {
-            "units": "t/d for rates, t for the cumulative retained sulfur (as S)",
+            "units": "every budget mass as sulfur: t S/d for rates, t S for the running total; "
+                     "magmatic_so2_flux_tpd is the SO2 equivalent of magmatic_s_tpd (t SO2/d, "
+                     "twice the S mass)",
+            "sign": "retained_s_tpd and cumulative_retained_s_t are net: a negative value is "
+                    "sulfur released (budget_direction says which, from the 5-95 % band)",
+            "restarts": "rows of a window flagged mixed_sources get no running total, and the "
+                        "total restarts at zero after them (budget_restarted = 1)",
+            "band_width": "the 5-95 % band of the running total widens with every interval, "
+                          "quiet ones included: each row's rate is uncertain (flux errors, the "
+                          "magmatic SO2/CO2 of its source) and these uncertainties add up",
             "integration": "trapezoid rule between measurement times, per Monte Carlo draw",
             "max_gap_days": DEFAULT_MAX_GAP_DAYS if max_gap_days is None else float(max_gap_days),
             "bands": "5 %, 50 %, 95 % quantiles",
@@ -95,9 +104,11 @@ BUDGET_LIMITS = ("Scrubbing within the ratio errors (up to about 35 % of the SO2
 
 def _round_row(out):
     """The hazard rounding rule (hazard_format.py) for the hypotheses and the budget."""
+    from ventsource.workflow.hazard_format import probability_text
     for name in ("p_scrubbed", "p_released"):
         if name in out:
+            out[f"{name}_text"] = probability_text(out[name], out.get(f"{name}_error"))
             out[name], out[f"{name}_error"] = round_probability(out[name], out.get(f"{name}_error"))
-    for k in BUDGET_COLUMNS[2:]:
+    for k in BUDGET_COLUMNS[4:]:
         if k in out:
             out[k] = round_tonnes(out[k])

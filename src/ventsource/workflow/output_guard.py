@@ -12,7 +12,7 @@ from ventsource.common.errors import InputError
 
 # What a series run writes at the top of its folder (workflow.series and its notes).
 RUN_FOLDER_NAMES = ("summary.csv", "summary.running.csv", "hazard.json", "README.txt",
-                    "compare.csv", "compare.png")
+                    "compare.csv", "compare.png", "report.html")
 
 
 def _same_file(a, b):

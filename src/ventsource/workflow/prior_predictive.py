@@ -10,7 +10,9 @@ from ventsource.forward.model import ForwardModel
 
 
 def prior_predictive_table(spec, n, seed=0, ratio_names=None):
-    """DataFrame of n prior draws under M1 (with scrubbing, fraction from the prior) and n under M0 (no scrubbing)."""
+    """DataFrame of n prior draws under M1 (with scrubbing, fraction from the prior) and n under M0
+    (no scrubbing); with a [hypotheses] table also n under M2 (the M0 gas with its SO2 x (1 + r),
+    r from the release prior, drawn after the others so their draws stay as they were)."""
     rng = np.random.default_rng(seed)
     ratio_names = tuple(ratio_names or ("SO2/CO2", "H2S/SO2", "H2O/CO2", "CO2/ST"))
     model = ForwardModel(spec, ratio_names)
@@ -18,11 +20,18 @@ def prior_predictive_table(spec, n, seed=0, ratio_names=None):
     frames = []
     for label, th in (("M1 with scrubbing", theta), ("M0 purely magmatic", _no_scrub(spec, theta))):
         state = model.state(th, saturation=False)
-        df = pd.DataFrame(th, columns=spec.parameter_names)
-        df.insert(0, "model", label)
-        df["status"] = state["status"]
-        for k, r in enumerate(ratio_names):
-            df[r] = state["ratios"][:, k]
+        frames.append(_frame(spec, label, th, state["status"], state["ratios"], ratio_names))
+    release = getattr(spec, "release", None)
+    if release is not None:
+        from ventsource.ascent import observables
+        from ventsource.inference.hypotheses.release_marginal import released_gas
+        r = release.distribution.sample(rng, n)
+        gas = released_gas(state["gas"], r)  # state: the M0 draws (no scrubbing)
+        gas = gas / gas.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratios = observables.ratios(gas, ratio_names)
+        df = _frame(spec, M2_LABEL, th, state["status"], ratios, ratio_names)
+        df["released_so2"] = r
         frames.append(df)
     return pd.concat(frames, ignore_index=True)
 
@@ -34,6 +43,18 @@ def excluded_note(table):
     n_ex = int((m1["status"] == 3).sum())
     return (f"{n_ex} of {len(m1)} draws ({100.0 * n_ex / max(len(m1), 1):.1f} %) given zero prior "
             "mass: D_S x S >= 1 (status 3)")
+
+
+M2_LABEL = "M2 stored sulfur released"
+
+
+def _frame(spec, label, theta, status, ratios, ratio_names):
+    df = pd.DataFrame(theta, columns=spec.parameter_names)
+    df.insert(0, "model", label)
+    df["status"] = status
+    for k, name in enumerate(ratio_names):
+        df[name] = ratios[:, k]
+    return df
 
 
 def _no_scrub(spec, theta):
@@ -52,9 +73,10 @@ def run_prior_predictive(spec, n, out_csv, plot_path=None, data_path=None, x_rat
     os.replace(f"{out_csv}.part", out_csv)
     from ventsource.workflow.table_notes import write_table_sidecar
     write_table_sidecar(out_csv, f"prior-predictive draws of prior '{spec.name}': one row per draw and "
-                        "model (M0 purely magmatic, M1 with scrubbing), parameters, status (0 = gas, 1 = no "
-                        "gas, 2 = failed, 3 = zero prior mass: D_S x S >= 1) and gas ratios in mol/mol; "
-                        + excluded_note(table), synthetic=bool(getattr(spec, "fictional", False)))
+                        "model (M0 purely magmatic, M1 with scrubbing, and M2 stored sulfur released with a "
+                        "[hypotheses] table), parameters, status (0 = gas, 1 = no gas, 2 = failed, 3 = zero "
+                        "prior mass: D_S x S >= 1) and gas ratios in mol/mol; " + excluded_note(table),
+                        synthetic=bool(getattr(spec, "fictional", False)))
     if plot_path:
         plot_ratio_plane(table, x_ratio, y_ratio, plot_path, data=data, title=spec.name)
     return table
@@ -81,7 +103,9 @@ def overlay_points(series, x_ratio, y_ratio):
 
 LEVELS = (0.5, 0.9, 0.99)  # shares of prior-predictive draws inside each contour
 PANELS = (("M0 purely magmatic", "no scrubbing (purely magmatic gas)"),
-          ("M1 with scrubbing", "with scrubbing (scrubbed fraction drawn from the prior)"))
+          ("M1 with scrubbing", "with scrubbing (scrubbed fraction drawn from the prior)"),
+          ("M2 stored sulfur released", "with stored sulfur released (SO2 x (1 + r), r from the prior)"))
+COLOURS = ("#3b5b92", "#c07a2c", "#6a3d7a")
 
 
 def _log_draws(table, label, x_ratio, y_ratio):
@@ -169,24 +193,25 @@ def ratio_plane_figure(table, x_ratio, y_ratio, data=None, title=""):
     if data is not None and not isinstance(data, pd.DataFrame):  # plain (k, 2) array of exact values
         data = pd.DataFrame({"x": data[:, 0], "y": data[:, 1], "time": pd.Timestamp("2000-01-01"),
                              "cens_x": 0, "cens_y": 0}) if len(data) else None
-    draws = [_log_draws(table, label, x_ratio, y_ratio) for label, _ in PANELS]
+    panels = [p for p in PANELS if (table["model"] == p[0]).any()]  # M2 only with a release prior
+    draws = [_log_draws(table, label, x_ratio, y_ratio) for label, _ in panels]
     xlim, ylim = _limits(draws, data, 0), _limits(draws, data, 1)
-    fig, axes = plt.subplots(1, 2, figsize=(11.0, 6.0), sharex=True, sharey=True)
+    fig, axes = plt.subplots(1, len(panels), figsize=(5.5 * len(panels), 6.0), sharex=True, sharey=True)
     sc = None
-    for ax, (label, words), (lx, ly), colour in zip(axes, PANELS, draws, ("#3b5b92", "#c07a2c")):
+    for ax, (label, words), (lx, ly), colour in zip(axes, panels, draws, COLOURS):
         _density_contours(ax, lx, ly, xlim, ylim, colour)
         sc = _plot_data(ax, data) or sc
         ax.set_xlim(10 ** xlim[0], 10 ** xlim[1])
         ax.set_ylim(10 ** ylim[0], 10 ** ylim[1])
         plain_log_axis(ax, "x")
         plain_log_axis(ax, "y")
-        ax.set_title(f"Model prediction {words}", fontsize=9)
+        ax.set_title(f"Model prediction {words}".replace(" (", "\n("), fontsize=9)
         ax.set_xlabel(f"{x_ratio} (mol/mol)")
     shares = ", ".join(f"{100 * q:g}" for q in LEVELS)
     patches = [Patch(color=c, alpha=0.4, label=f"model draws {w.split(' (')[0]}: contours hold {shares} %")
-               for (_, w), c in zip(PANELS, ("#3b5b92", "#c07a2c"))]
+               for (_, w), c in zip(panels, COLOURS)]
     handles, _ = axes[0].get_legend_handles_labels()
-    fig.legend(handles=patches + handles, fontsize=7, frameon=False, loc="lower center", ncol=3,
+    fig.legend(handles=patches + handles, fontsize=7, frameon=False, loc="lower center", ncol=2,
                bbox_to_anchor=(0.45, 0.035))
     axes[0].set_ylabel(f"{y_ratio} (mol/mol)")
     if sc is not None:

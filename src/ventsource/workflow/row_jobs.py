@@ -68,6 +68,16 @@ def _invert_row(args):
     return row
 
 
+def _averaged_pressure(result, spec):
+    """pressure_bar_avg_q05/median/q95: the row's pressure averaged over M0 and M1
+    (inference/row/averaged.py), as a window run reports it; {} without that parameter."""
+    if "pressure_bar" not in spec.free_names or result.idata_m0 is None:
+        return {}
+    s = result.summary("averaged").loc["pressure_bar"]
+    return {"pressure_bar_avg_q05": float(s["5%"]), "pressure_bar_avg_median": float(s["median"]),
+            "pressure_bar_avg_q95": float(s["95%"])}
+
+
 def _summary_row(result, spec, row_id, time_text, seed):
     summary = result.summary("M1")
     row = {"id": row_id, "time": time_text, "p_magmatic": _num(result.p_magmatic),
@@ -80,6 +90,7 @@ def _summary_row(result, spec, row_id, time_text, seed):
     if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
         (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
          row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
+    row.update(_averaged_pressure(result, spec))  # the same quantity as a window run's pressure
     for name in spec.free_names:
         s = summary.loc[name]
         row[f"{name}_median"] = float(s["median"])

@@ -291,6 +291,14 @@ def _write_json(path, doc):
     _atomic(path, lambda part: _dump_json(part, doc))
 
 
+def write_text_json(path, doc):
+    """A JSON file for people (hazard.json): UTF-8 with '±' as itself, written atomically."""
+    def write(part):
+        with open(part, "w", encoding="utf-8") as fh:
+            json.dump(doc, fh, indent=2, default=str, ensure_ascii=False)
+    _atomic(path, write)
+
+
 def _rewrite(path, cols, rows):
     def write(part):
         with open(part, "w", newline="") as fh:

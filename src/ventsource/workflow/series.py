@@ -54,6 +54,8 @@ def summary_columns(free_names, ratio_names):
         cols += [f"{name}_median", f"{name}_q05", f"{name}_q95", f"{name}_rhat", f"{name}_ess_bulk"]
     cols += ["p_magmatic_shift"] + [f"{name}_contraction" for name in free_names]
     cols += ["unresolved_direction"]  # how much the data said (inference/information.py)
+    if "pressure_bar" in free_names:  # model-averaged, as in window runs (inference/row/averaged.py)
+        cols += ["pressure_bar_avg_q05", "pressure_bar_avg_median", "pressure_bar_avg_q95"]
     for r in ratio_names:  # posterior predictive of each measured ratio (for the figures)
         cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
     return cols
@@ -174,6 +176,8 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe, work)
     rows = _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note, extras)
     _write_json(run_path, dict(settings, status="complete", caution=CAUTION))
+    from ventsource.workflow.run_summary import flag_summary
+    bar.stream.write("\n".join(flag_summary(rows)) + "\n")
     return rows
 
 
@@ -201,10 +205,17 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
                              window_per_row=settings.get("window_per_row"),
                              synthetic_data=extras.get("synthetic_data", False))
-    hazard = extend_hazard(hazard, rows, series, gap_days)
-    _write_json(os.path.join(out_dir, HAZARD_NAME), hazard)
+    from ventsource.workflow.hazard_export import ordered
+    from ventsource.workflow.run_folder import write_text_json
+    hazard = ordered(extend_hazard(hazard, rows, series, gap_days))
+    write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import information_notes, write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
-                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings"},
-                       synthetic=hazard["synthetic"], notes=information_notes(rows))
+                                 HAZARD_NAME: "per-row probabilities with provenance and flag meanings",
+                                 "report.html": "the run on one page for a panel (figures included; "
+                                                "open in any browser, no network needed)"},
+                       synthetic=hazard["synthetic"], flags=list(hazard["flag_glossary"]),
+                       notes=information_notes(rows))
+    from ventsource.workflow.report_html import write_report
+    write_report(out_dir)  # drawn again with the figures by the commands that draw them
     return rows

@@ -16,7 +16,12 @@ Flux errors are log-normal with sigma_ln = ln(1 + relative sigma), as for the ra
 flux below detection `<x` is drawn uniformly on (0, x). The running total integrates
 the rate between measurement times by the trapezoid rule, per Monte Carlo draw (draws
 of different rows are independent); an interval longer than the gap limit, or next to a
-row without a budget, is not bridged: it adds nothing and its later row is marked.
+row without a budget, is not bridged: it adds nothing and its later row is marked. Rows
+of a window flagged mixed_sources (no one source shared by its rows) get their own rates
+but no running total, and the total restarts at zero after them (budget_restarted 1): a
+sum through a change of magma would add up rates of two sources as if they were one.
+Every budget mass is given as S (t S, t S/d); the magmatic flux also as SO2 (t SO2/d),
+twice the S mass. A negative retained rate or total means sulfur released.
 Molar masses (g/mol): S 32.06, SO2 64.07, CO2 44.01 (IUPAC standard atomic weights,
 common practice, no source).
 """
@@ -77,17 +82,26 @@ def row_rates(draws, fluxes, rng, n=N_BUDGET_DRAWS, index=None):
     return magmatic, (magmatic - emitted) * S_PER_SO2, basis
 
 
-def cumulative(times_s, rates, max_gap_days):
-    """Running total (t) per draw, (rows, n), and a bridged flag per row.
+def cumulative(times_s, rates, max_gap_days, excluded=None):
+    """Running total (t) per draw, (rows, n), a bridged flag and a restarted flag per row.
 
     Trapezoid rule between consecutive rows (sorted by time); an interval longer than
-    max_gap_days or touching a row without rates adds nothing (bridged False)."""
+    max_gap_days or touching a row without rates adds nothing (bridged False). An
+    excluded row (a window flagged mixed_sources) gets no total and resets it to zero;
+    the first row after it is marked restarted."""
     order = np.argsort(times_s, kind="stable")
     total = np.zeros(rates.shape[1])
     out = np.full(rates.shape, np.nan)
     bridged = np.zeros(len(order), dtype=bool)
-    prev = None
+    restarted = np.zeros(len(order), dtype=bool)
+    excluded = np.zeros(len(order), dtype=bool) if excluded is None else np.asarray(excluded, bool)
+    prev, reset = None, False
     for i in order:
+        if excluded[i]:
+            total, prev, reset = np.zeros(rates.shape[1]), None, True
+            continue
+        if reset and np.isfinite(rates[i]).all():
+            restarted[i], reset = True, False
         ok = np.isfinite(rates[i]).all()
         if prev is not None and ok:
             dt_days = (times_s[i] - times_s[prev]) / 86400.0
@@ -99,7 +113,14 @@ def cumulative(times_s, rates, max_gap_days):
             prev = i
         else:
             prev = None  # the next row starts a new piece: the gap is not bridged
-    return out, bridged
+    return out, bridged, restarted
+
+
+def direction(q05, q95):
+    """'retained', 'released' or 'not resolved' from the 5-95 % band of a net rate."""
+    if q05 is None or q95 is None:
+        return None
+    return "retained" if q05 > 0 else "released" if q95 < 0 else "not resolved"
 
 
 def quantiles(x):
@@ -109,11 +130,12 @@ def quantiles(x):
     return tuple(float(v) for v in np.quantile(x, QUANTILES))
 
 
-def series_budget(times, row_draws, flux_series, seed, max_gap_days):
+def series_budget(times, row_draws, flux_series, seed, max_gap_days, excluded=None):
     """Per row: dict of budget numbers (quantiles 5/50/95 %), in row order.
 
     times: datetime64 per row; row_draws: budget draws per row (None: no budget);
-    flux_series: workflow.flux_columns.FluxSeries."""
+    flux_series: workflow.flux_columns.FluxSeries; excluded: rows kept out of the running
+    total (a window flagged mixed_sources)."""
     n_rows = len(times)
     rng = np.random.default_rng([int(seed), 0x5B])
     mag = np.full((n_rows, N_BUDGET_DRAWS), np.nan)
@@ -129,19 +151,22 @@ def series_budget(times, row_draws, flux_series, seed, max_gap_days):
         mag[i], ret[i], b = row_rates(row_draws[i], cells, rng, index=common)
         basis.append(b)
     t = np.array(times, dtype="datetime64[s]").astype(np.int64).astype(float)
-    cum, bridged = cumulative(t, ret, max_gap_days)
+    cum, bridged, restarted = cumulative(t, ret, max_gap_days, excluded)
     first = int(np.argmin(t))
     rows = []
     for i in range(n_rows):
         # 1: the interval before this row is not in the running total (gap or no budget)
-        row = {"budget_basis": basis[i], "budget_gap_before": int(i != first and not bridged[i])}
-        for tag, x in (("magmatic_so2_flux_tpd", mag[i]), ("retained_s_tpd", ret[i]),
-                       ("cumulative_retained_s_t", cum[i])):
+        row = {"budget_basis": basis[i], "budget_gap_before": int(i != first and not bridged[i]),
+               "budget_restarted": int(restarted[i])}
+        for tag, x in (("magmatic_s_tpd", mag[i] * S_PER_SO2), ("magmatic_so2_flux_tpd", mag[i]),
+                       ("retained_s_tpd", ret[i]), ("cumulative_retained_s_t", cum[i])):
             row[f"{tag}_q05"], row[f"{tag}_median"], row[f"{tag}_q95"] = quantiles(x)
+        row["budget_direction"] = direction(row["retained_s_tpd_q05"], row["retained_s_tpd_q95"])
         rows.append(row)
     return rows
 
 
-BUDGET_COLUMNS = ["budget_basis", "budget_gap_before"] + [
-    f"{tag}_{q}" for tag in ("magmatic_so2_flux_tpd", "retained_s_tpd", "cumulative_retained_s_t")
+BUDGET_COLUMNS = ["budget_basis", "budget_gap_before", "budget_restarted", "budget_direction"] + [
+    f"{tag}_{q}" for tag in ("magmatic_s_tpd", "magmatic_so2_flux_tpd", "retained_s_tpd",
+                             "cumulative_retained_s_t")
     for q in ("q05", "median", "q95")]

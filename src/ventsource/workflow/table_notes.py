@@ -10,11 +10,36 @@ from ventsource.common.caution import CAUTION
 README_NAME = "README.txt"
 
 
-def write_table_readme(folder, files, synthetic=False, notes=None):
+GLOSSARY = [
+    "M0, M1, M2: the hypotheses - purely magmatic gas; SO2 scrubbed on the way up; stored "
+    "sulfur released (M2 only with a [hypotheses] table in the prior).",
+    "p_magmatic = P(M0 | data); p_scrubbed = P(M1 | data); p_released = P(M2 | data). Each "
+    "*_error column is its Monte Carlo error (1 sigma). summary.csv keeps full precision; "
+    "hazard.json and report.html round to what the error supports and never show 0 or 1 "
+    "('< 0.001' means at most 0.001).",
+    "p_scrubbed_below_epsilon (summary.csv; in hazard.json "
+    "p_scrubbed_below_epsilon_if_scrubbed): IF the SO2 was scrubbed (M1), the probability that "
+    "less than epsilon of it was removed. It is conditional on M1: do not compare it with P(M0).",
+    "scrubbed_so2_avg_*: fraction of the magmatic SO2 removed, averaged over the hypotheses "
+    "(5 %, 50 %, 95 % quantiles).",
+    "log10_bf_one_source, log10_bf_one_vs_split: log10 Bayes factors of one shared source in a "
+    "window against each row with its own source / against a change of source inside it "
+    "(below 0, resp. below -2: flag mixed_sources).",
+    "Sulfur budget (with flux columns): every mass as sulfur, t S/d and t S; "
+    "magmatic_so2_flux_tpd_* is the same magmatic flux as SO2 (twice the mass). "
+    "retained_s_tpd and cumulative_retained_s_t are net: negative means released. The "
+    "running total restarts after a window flagged mixed_sources (budget_restarted = 1) "
+    "and skips gaps (budget_gap_before = 1). Its band widens with time, quiet periods "
+    "included, because every row's rate is uncertain and the uncertainties add up.",
+]
+
+
+def write_table_readme(folder, files, synthetic=False, flags=None, notes=None):
     """Write (or extend) folder/README.txt naming each file with its description.
 
-    files: {file name relative to folder: one-line description}; notes: further lines
-    (how much the data said, information_notes) written after the flag note."""
+    files: {file name relative to folder: one-line description}; flags: the flag codes
+    whose meaning the text carries (None: every known flag); notes: further lines (how
+    much the data said, information_notes) written after the flags."""
     path = os.path.join(folder, README_NAME)
     known = {}
     if os.path.exists(path):
@@ -30,11 +55,18 @@ def write_table_readme(folder, files, synthetic=False, notes=None):
         lines += ["SYNTHETIC: the prior or the data here are fictional (made for a demonstration "
                   "or a test); they describe no real volcano.", ""]
     lines += ["Files:"] + [f"* {name}: {text}" for name, text in sorted(known.items())]
-    lines += ["", "Flag meanings: docs/flags.md of the ventsource package, and 'flag_glossary' "
-              "in hazard.json."]
+    lines += ["", "Glossary:"] + [f"* {text}" for text in GLOSSARY]
+    lines += ["", "Flags (also in hazard.json 'flag_glossary' and report.html):"]
+    lines += [f"* {code}: {text}" for code, text in _flag_meanings(flags)]
     if notes:
         lines += [""] + list(notes)
     return _write_lines(path, lines)
+
+
+def _flag_meanings(flags):
+    from ventsource.common.flag_glossary import FLAG_GLOSSARY
+    codes = sorted(FLAG_GLOSSARY) if flags is None else sorted(set(flags))
+    return [(c, FLAG_GLOSSARY.get(c, "No description recorded for this flag.")) for c in codes]
 
 
 MAX_NOTED_ROWS = 20
