@@ -80,7 +80,7 @@ def test_wheel_in_fresh_venv_runs_priors_and_demo(tmp_path):
     assert "arc_basalt" in listed.stdout and "demo_mount_kerrow_fast" in listed.stdout
     fwd = subprocess.run([exe, "forward", "--prior", "arc_basalt", "--json", "--set", "pressure_bar=200",
                           "temperature_c=1100", "dfmq=1", "scrubbed_so2=0", "h2o_wt=3", "co2_ppm=2000",
-                          "s_ppm=1500", "s_partition=100", "quench_temperature_c=900",
+                          "s_ppm=1500", "quench_temperature_c=900",
                           "h2_retained_log10=0"], cwd=work, env=env, capture_output=True, text=True)
     assert fwd.returncode == 0, fwd.stderr
     assert str(venv) in fwd.stdout   # the prior came from the installed package
