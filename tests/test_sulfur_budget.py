@@ -213,12 +213,14 @@ def test_hazard_json_with_fluxes_and_three_hypotheses_validates(tmp_path):
 @pytest.fixture(scope="module")
 def kerrow_windows(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("sulfur")
-    # the package's default window model (independent per-row pressures): the demo prior's
-    # [window] table (pooled pressures) is left out. Measured on this series, pooled
+    # independent per-row pressures (the package's default window model until 0.4.0): the demo
+    # prior's [window] table (pooled pressures) is replaced. Measured on this series, pooled
     # pressures give a cumulative band of 36,500-66,500 t at the end of scrubbing, which
     # misses the true 70,100 t (docs/prior-files.md explains the low bias of both)
     prior = tmp / "release_independent.toml"
-    prior.write_text(RELEASE_PRIOR.read_text(encoding="utf-8").split("\n[window]")[0], encoding="utf-8")
+    # (pooled became the default window model: independent is now asked for explicitly)
+    prior.write_text(RELEASE_PRIOR.read_text(encoding="utf-8").split("\n[window]")[0]
+                     + '\n[window]\npressure_rows = "independent"\n', encoding="utf-8")
     data = make_sulfur_series(tmp / "d", n_rows=36)
     series = read_measurements(data)
     # one window for the whole series: the quiet rows pin the shared magma source, without

@@ -120,7 +120,9 @@ def test_shared_pressure_equals_the_quadrature_at_its_solved_pressures(one_press
     (one batch solve against one solve; equal to 1e-9 nats, common practice, no source)."""
     per, shared, fwd, meas = one_pressure
     liks = [Likelihood(m, prediction_names=NAMES) for m in meas]
-    quad, one = WindowTarget(per, fwd, liks, 0.5), WindowTarget(shared, fwd, liks, 0.5)
+    # the fixed grid (adaptive=False): with pooled pressures (the default) each draw otherwise
+    # solves on its own pool's range, and the nodes below are the fixed grid's
+    quad, one = WindowTarget(per, fwd, liks, 0.5, adaptive=False), WindowTarget(shared, fwd, liks, 0.5)
     assert one.per_row == ("scrubbed_so2",) and "pressure_bar" in one.shared_prior.free_names
     assert quad.per_row == ("pressure_bar", "scrubbed_so2")
     assert "pressure_bar" not in quad.shared_prior.free_names
@@ -233,7 +235,8 @@ def test_window_run_records_its_per_row_set(tmp_path, one_pressure):
 
 
 def test_pressure_rows_default_choice_and_bad_value():
-    assert parse_prior(fast_data(), "w.toml").window_pressure_rows == "independent"
+    assert parse_prior(fast_data(), "w.toml").window_pressure_rows == "pooled"   # the default since 0.4.0
+    assert with_window({"pressure_rows": "independent"}).window_pressure_rows == "independent"
     spec = with_window({"pressure_rows": "pooled"})
     assert spec.window_pressure_rows == "pooled"
     assert spec.to_dict()["window"]["pressure_rows"] == "pooled"

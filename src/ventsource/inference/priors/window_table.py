@@ -24,7 +24,7 @@ PER_ROW_DEFAULT = ("pressure_bar", "scrubbed_so2")
 PER_ROW_ALLOWED = ("pressure_bar", "scrubbed_so2")
 PER_ROW_REQUIRED = "scrubbed_so2"
 PRESSURE_ROWS = ("pooled", "independent")   # how per-row pressures relate (pooled_pressure.py)
-PRESSURE_ROWS_DEFAULT = "independent"
+PRESSURE_ROWS_DEFAULT = "pooled"
 
 
 @dataclass(frozen=True)

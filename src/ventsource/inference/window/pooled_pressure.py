@@ -17,6 +17,12 @@ the single-row model; s = 1 is the independent model; small s pulls the rows'
 pressures together. The centre c and the spread s are sampled with the magma's
 parameters; each row's pressure is still integrated out on the quadrature grid, with
 weights p(P_k) N(z_k; sqrt(1 - s^2) c, s^2) / phi(z_k) renormalised on the grid.
+
+Each draw's own pressure range (`pooled_range`): given c and s every row's normal score is
+Normal(m, s^2), m = sqrt(1 - s^2) c, so the rows' pressures lie within Z_HALF_WIDTH s of m
+but for a prior tail below e^-32. The window's forward solves and quadrature points are
+spread over that range of ln P (the whole prior range when s is near 1) instead of the
+prior file's whole range: the same solves resolve a narrow pool many times finer.
 """
 from __future__ import annotations
 
@@ -28,6 +34,8 @@ from ventsource.inference.priors.distributions import LogUniform, TruncNormal
 NAMES = ("pressure_pool_centre", "pressure_pool_spread")
 SPREAD_MIN = 0.02   # s: 1 = independent rows; 0.02 = rows within about 2 % of the prior's quantiles
 CENTRE_LIMIT = 6.0  # c is standard normal, cut at +-6 sigma for the sampler's bounded space
+Z_HALF_WIDTH = 8.0  # a draw's pressures span m +- 8 s in normal scores (prior tail e^-32 beyond)
+Z_LIMIT = 7.5       # the score table's ends: Phi(-7.5) = 3e-14 of the prior's mass beyond
 
 
 class PooledPrior:
@@ -73,3 +81,30 @@ def pooled_log_weights(log_w, z, theta):
     """(n, K) log weights of each row's pressure given the copula's c and s (last columns)."""
     out = log_w[None, :] + pooled_tilt(z[None, :], theta)
     return out - special.logsumexp(out, axis=1, keepdims=True)
+
+
+class ScoreTable:
+    """ln P <-> normal score z = Phi^-1(F(P)) of the prior file's pressure distribution,
+    tabulated through its quantile function on 3001 scores in [-Z_LIMIT, Z_LIMIT]."""
+
+    def __init__(self, distribution, n=3001):
+        self.z = np.linspace(-Z_LIMIT, Z_LIMIT, n)
+        ln_p = np.log(np.asarray(distribution.ppf(special.ndtr(self.z)), dtype=float))
+        self.ln_p = np.maximum.accumulate(ln_p)   # rounding at the ends must not break the order
+        self.ln_bounds = (float(np.log(distribution.lower)), float(np.log(distribution.upper)))
+
+    def score(self, ln_p):
+        return np.interp(ln_p, self.ln_p, self.z)
+
+    def ln_pressure(self, z):
+        return np.interp(z, self.z, self.ln_p)
+
+
+def pooled_range(table, theta):
+    """(lo, hi) (n,) ln P of each draw's pressure range: m +- Z_HALF_WIDTH s in scores,
+    inside the prior's bounds."""
+    centre, spread = theta[:, -2], theta[:, -1]
+    m = np.sqrt(1.0 - spread * spread) * centre
+    lo = np.maximum(table.ln_pressure(m - Z_HALF_WIDTH * spread), table.ln_bounds[0])
+    hi = np.minimum(table.ln_pressure(m + Z_HALF_WIDTH * spread), table.ln_bounds[1])
+    return np.minimum(lo, hi - 1e-6), hi

@@ -49,11 +49,11 @@ def edge_positions(ln_quad, refine, j, ln_edge):
     """(m, K) ln P of the quadrature points for draws whose gas ends at ln_edge inside
     solve interval j: that interval's points spread over [node j, edge], the ones above
     collapsed onto the edge."""
-    m, K = j.size, ln_quad.size
-    ln_p = np.broadcast_to(ln_quad, (m, K)).copy()
+    m, K = j.size, ln_quad.shape[-1]
+    ln_p = np.broadcast_to(ln_quad, (m, K)).copy()   # ln_quad (K,) or each draw's own (m, K)
     slot = np.arange(K)[None, :]
     start = (j * refine)[:, None]
-    ln_start = ln_quad[j * refine][:, None]
+    ln_start = ln_p[np.arange(m), j * refine][:, None]
     f = (slot - start) / refine
     inside = (f > 0) & (f <= 1)
     ln_p = np.where(inside, ln_start + f * (ln_edge[:, None] - ln_start), ln_p)

@@ -28,7 +28,8 @@ from scipy import special
 
 from ventsource.ascent import observables
 from ventsource.inference.hypotheses.release_marginal import ReleaseMarginal
-from ventsource.inference.window.pooled_pressure import PooledPrior, normal_scores, pooled_log_weights, pooled_tilt
+from ventsource.inference.window.pooled_pressure import (PooledPrior, ScoreTable, normal_scores, pooled_log_weights,
+                                                         pooled_range, pooled_tilt)
 from ventsource.inference.window.saturation_edge import (bisect_edge, edge_gas, edge_nodes, edge_positions,
                                                   trapezoid_log_weights)
 from ventsource.inference.priors.distributions import LogUniform
@@ -91,7 +92,8 @@ def _log_sum_weighted(log_f, log_w):
 class WindowTarget:
     """log L(psi) of a window and the per-row log Z0_i(psi), log Z1_i(psi)."""
 
-    def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE, per_row=None):
+    def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE, per_row=None,
+                 adaptive=True):
         self.per_row = tuple(prior.window_per_row if per_row is None else per_row)  # [window] per_row
         if "scrubbed_so2" not in self.per_row or not set(self.per_row) <= {"pressure_bar", "scrubbed_so2"}:
             raise ValueError(f"window model: per_row {self.per_row} must hold scrubbed_so2 and "
@@ -118,6 +120,10 @@ class WindowTarget:
         else:  # shared pressure: one solve per draw serves every row, a one-point "grid"
             self.n_solve, self.refine = 1, 1
             self.p_solve, self.p_quad, self.log_w = np.empty(0), np.empty(0), np.zeros(1)
+        # pooled: each draw's solves and points span its own pool's range (pooled_pressure.py);
+        # adaptive=False keeps the prior's whole range for every draw (the reference in tests)
+        self.adaptive = self.pooled and adaptive
+        self._scores = ScoreTable(self._pressure_prior) if self.adaptive else None
         dist_s = prior.distributions["scrubbed_so2"]
         self.marginals = [ScrubbingMarginal(lik, forward.ratio_names, forward.product, dist_s)
                           for lik in likelihoods]
@@ -153,25 +159,39 @@ class WindowTarget:
         n = full.shape[0]
         if not self.pressure_per_row:
             return self._gas_at_shared_pressure(full)
+        ln_solve, ln_quad = self._draw_grids(np.atleast_2d(psi))
         rep = np.repeat(full, self.n_solve, axis=0)
-        rep[:, self._j_p] = np.tile(self.p_solve, n)
+        rep[:, self._j_p] = np.exp(np.broadcast_to(ln_solve, (n, self.n_solve))).ravel()
         gas_solve = self._solve(rep).reshape(n, self.n_solve, -1)
         gas = interpolate_gas(gas_solve, self.n_solve, self.refine)
         h2s = full[:, self._j_h] if self._j_h is not None else 1.0
-        return gas, h2s, self._saturation_edges(full, gas_solve, gas)
+        return gas, h2s, self._saturation_edges(full, gas_solve, gas, ln_solve, ln_quad)
+
+    def _draw_grids(self, psi):
+        """ln P of the solves and of the quadrature points: the fixed grid (n_solve,), (K,),
+        or with adaptive pooling each draw's own, uniform over its pool's range."""
+        if not self.adaptive:
+            return np.log(self.p_solve), self.ln_quad
+        lo, hi = pooled_range(self._scores, psi)
+        span = (hi - lo)[:, None]
+        return (lo[:, None] + span * np.linspace(0.0, 1.0, self.n_solve),
+                lo[:, None] + span * np.linspace(0.0, 1.0, self.ln_quad.size))
 
     def _solve(self, full):
         st = self.forward.state(full, saturation=self.forward.style == "open")
         return np.where((st["status"] == 0)[:, None], st["gas"], np.nan)
 
-    def _saturation_edges(self, full, gas_solve, gas):
+    def _saturation_edges(self, full, gas_solve, gas, ln_solve, ln_quad):
         """Find the end of the gas inside the grid and re-place that interval's points
-        (in place in gas); (draws, ln P (m, K)) or None."""
+        (in place in gas); (draws, ln P (m, K)) or None. With adaptive pooling every
+        draw has its own points: (all draws, (n, K))."""
+        n = len(full)
         j_all = edge_nodes(np.isfinite(gas_solve).all(axis=2))
         e = np.flatnonzero(j_all >= 0)
         if e.size == 0:
-            return None
-        j, ln_solve = j_all[e], np.log(self.p_solve)
+            return (np.arange(n), ln_quad) if self.adaptive else None
+        j = j_all[e]
+        ln_solve = np.broadcast_to(ln_solve, (n, self.n_solve))
         sub = full[e].copy()
 
         def solve(ln_p):
@@ -180,10 +200,14 @@ class WindowTarget:
             return g, np.isfinite(g).all(axis=1)
 
         gas_node = gas_solve[e, j]
-        ln_edge, gas_edge = bisect_edge(solve, ln_solve[j], ln_solve[j + 1], gas_node)
-        ln_p = edge_positions(self.ln_quad, self.refine, j, ln_edge)
+        ln_edge, gas_edge = bisect_edge(solve, ln_solve[e, j], ln_solve[e, j + 1], gas_node)
+        ln_p = edge_positions(ln_quad[e] if self.adaptive else self.ln_quad, self.refine, j, ln_edge)
         gas[e] = edge_gas(gas[e], self.refine, j, gas_node, gas_edge)
-        return e, ln_p
+        if not self.adaptive:
+            return e, ln_p
+        out = ln_quad.copy()
+        out[e] = ln_p
+        return np.arange(n), out
 
     def _gas_at_shared_pressure(self, full):
         """(gas (n, 1, species), h2s_return, None): the pressure is a shared parameter."""
@@ -212,6 +236,8 @@ class WindowTarget:
     def log_weights(self, psi, edges=None):
         """Log quadrature weights of each row's pressure: (K,), or (n, K) when pooled or
         when some draws have their own points (edges from gas_on_grid)."""
+        if self.adaptive:
+            return self._adaptive_log_weights(np.atleast_2d(psi), edges)
         base = pooled_log_weights(self.log_w, self._z, psi) if self.pooled else self.log_w
         if edges is None:
             return base
@@ -224,6 +250,19 @@ class WindowTarget:
             log_w = log_w + pooled_tilt(z, psi[e]) - norm
         out[e] = log_w
         return out
+
+    def _adaptive_log_weights(self, psi, edges):
+        """(n, K) log weights on each draw's own points (edges from gas_on_grid, or None:
+        the draws' uncollapsed grids): trapezoid in ln P of the prior density times the
+        copula, normalised on the draw's whole range (the mass above a saturation edge
+        stays, with zero likelihood)."""
+        _, ln_full = self._draw_grids(psi)
+        ln_p = ln_full if edges is None else edges[1]
+
+        def raw(ln_x):
+            return (trapezoid_log_weights(ln_x, self._pressure_prior.log_pdf, 0.0)
+                    + pooled_tilt(self._scores.score(ln_x), psi))
+        return raw(ln_p) - special.logsumexp(raw(ln_full), axis=1, keepdims=True)
 
     def _flat(self, gas, h2s):
         """Grid gas flattened to (n K, species), its bad points, h2s_return and ln ratios."""
