@@ -270,3 +270,26 @@ def test_split_check_rarely_flags_one_source_windows(basalt, capsys):
     with capsys.disabled():
         print(f"\nsplit log10 BF of 8 one-source windows: {values}")
     assert flagged <= 1, values
+
+
+def test_window_rows_carry_the_calibration_flag(basalt):
+    """`outside_calibration` on window rows as on single rows: a row's pressure draws with
+    the shared temperature of the same draws, against the laws' recalled ranges (Moore et
+    al. 1998: 1-3000 bar, 700-1200 C; Shishkina et al. 2014: 500-5000 bar, 1200-1250 C;
+    from memory, as in magma/calibration_ranges.py). All inside both (1200 C, 1000 bar): no
+    flag; 30 % of the pressures at 100 bar (more than the 10 % allowed): flagged; 1100 C:
+    flagged."""
+    from ventsource.inference.calibration_flag import FLAG
+    from ventsource.inference.window.sampling import _calibration_flag
+    spec, forward = basalt
+    lik = Likelihood(Measurement(NAMES, [0.5, 0.1, 30.0], 0.15), prediction_names=NAMES)
+    target = WindowTarget(spec, forward, [lik], 0.5)
+    psi = target.shared_prior.sample(np.random.default_rng(0), 100)
+    j_t = list(target.shared_prior.free_names).index("temperature_c")
+    psi[:, j_t] = 1200.0
+    pressure = np.full(100, 1000.0)
+    assert _calibration_flag(target, psi, pressure) == []
+    pressure[:30] = 100.0
+    assert _calibration_flag(target, psi, pressure) == [FLAG]
+    psi[:, j_t] = 1100.0
+    assert _calibration_flag(target, psi, np.full(100, 1000.0)) == [FLAG]

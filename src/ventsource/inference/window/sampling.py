@@ -248,8 +248,21 @@ def _row_results(target, res, measurements, rng, opt):
         # rows, draws, K) arrays, 0.4 GiB for 336 rows of 800 draws
         lls = [ll[0] for ll in target.row_log_likelihoods(gas, h2s, rows=[i])]
         draws = _row_draws(target, i, grid, lls, resp[:, i], rng, psi)
-        out.append(_summarise_row(meas, target, i, p_runs, draws, rng, opt))
+        row = _summarise_row(meas, target, i, p_runs, draws, rng, opt)
+        row.flags += _calibration_flag(target, psi, draws["pressure"])
+        out.append(row)
     return out
+
+
+def _calibration_flag(target, psi, pressure):
+    """`outside_calibration` of a window row, as for a single row (calibration_flag.py): the
+    row's pressure draws with the shared temperature of the same shared draws."""
+    from ventsource.inference.calibration_flag import FLAG, FLAG_SHARE, shares_outside
+    names = tuple(target.shared_prior.parameter_names)
+    temperature = target.shared_prior.full(psi)[:, names.index("temperature_c")]
+    ok = np.isfinite(pressure)
+    shares = shares_outside(target.prior, {"pressure_bar": pressure[ok], "temperature_c": temperature[ok]})
+    return [FLAG] if any(v > FLAG_SHARE for v in shares.values()) else []
 
 
 def _row_draws(target, i, grid, lls, resp, rng, psi):
