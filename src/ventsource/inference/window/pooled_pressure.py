@@ -108,3 +108,23 @@ def pooled_range(table, theta):
     lo = np.maximum(table.ln_pressure(m - Z_HALF_WIDTH * spread), table.ln_bounds[0])
     hi = np.minimum(table.ln_pressure(m + Z_HALF_WIDTH * spread), table.ln_bounds[1])
     return np.minimum(lo, hi - 1e-6), hi
+
+
+def _log_diff_ndtr(a, b):
+    """log(Phi(b) - Phi(a)) for a <= b, on the precise side of the mirror."""
+    flip = a > 0.0
+    lo, hi = np.where(flip, -b, a), np.where(flip, -a, b)
+    top = special.log_ndtr(hi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return top + np.log1p(-np.exp(special.log_ndtr(lo) - top))
+
+
+def cell_log_masses(table, ln_p, theta):
+    """(n, K) log of each point's exact prior mass given the copula's c and s: the point's
+    cell runs between the midpoints to its neighbours (the end points' from the end
+    itself), and a row's score is Normal(m, s^2) there, so the mass is a difference of
+    normal CDFs. Repeated points (a saturation edge's collapsed ones) get zero mass."""
+    bounds = np.concatenate([ln_p[:, :1], 0.5 * (ln_p[:, 1:] + ln_p[:, :-1]), ln_p[:, -1:]], axis=1)
+    centre, spread = theta[:, -2:-1], theta[:, -1:]
+    t = (table.score(bounds) - np.sqrt(1.0 - spread * spread) * centre) / spread
+    return _log_diff_ndtr(t[:, :-1], t[:, 1:])
