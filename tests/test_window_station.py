@@ -1,0 +1,62 @@
+"""A station-length window (slow): a week of 30-minute ratios from one station.
+
+336 rows from one arc_basalt source (the shipped prior's package forward model: H2O
+3.6 wt%, CO2 1800 ppm, S 2000 ppm, dFMQ 0.9, 1150 C), degassing pressures log-uniform
+over 100-600 bar, a random half of the rows with 70 % of their SO2 scrubbed, 15 %
+log-normal noise, seeded. Inverted as one window with the default (pooled) pressures:
+the window must not be flagged for convergence (R-hat across the SMC runs, distinct
+particles). Its CPU seconds and peak RSS are printed (resource.getrusage), never
+asserted: speed is measured by `ventsource bench`.
+"""
+import resource
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from ventsource.forward.model import ForwardModel
+from ventsource.inference.likelihood import Measurement
+from ventsource.inference.priors import load_prior_file
+from ventsource.inference.window.sampling import infer_window
+
+ROOT = Path(__file__).resolve().parents[1]
+NAMES = ("SO2/CO2", "H2S/SO2", "H2O/CO2")
+TRUTH = dict(temperature_c=1150.0, dfmq=0.9, h2o_wt=3.6, co2_ppm=1800.0, s_ppm=2000.0,
+             quench_temperature_c=950.0, h2_retained_log10=-1.0)
+CONVERGENCE_FLAGS = ("rhat_high", "few_distinct_particles")
+
+
+def station_week(spec, forward, n_rows=336, seed=3):
+    rng = np.random.default_rng(seed)
+    names = list(spec.free_names)
+    theta = np.zeros((n_rows, len(names)))
+    for name, value in TRUTH.items():
+        theta[:, names.index(name)] = value
+    theta[:, names.index("pressure_bar")] = np.exp(rng.uniform(np.log(100.0), np.log(600.0), n_rows))
+    scrubbed = np.zeros(n_rows)
+    scrubbed[rng.permutation(n_rows)[:n_rows // 2]] = 0.7
+    theta[:, names.index("scrubbed_so2")] = scrubbed
+    pred = forward.ratios(spec.full(theta))
+    assert np.all(np.isfinite(pred))
+    obs = pred * np.exp(np.log1p(0.15) * rng.standard_normal(pred.shape))
+    return [Measurement(NAMES, obs[i], 0.15, label=f"t{i}") for i in range(n_rows)], scrubbed
+
+
+@pytest.mark.slow
+def test_a_week_of_station_ratios_as_one_window_converges(capsys):
+    spec = load_prior_file(ROOT / "priors" / "arc_basalt.toml")
+    forward = ForwardModel(spec, ratio_names=NAMES)
+    meas, scrubbed = station_week(spec, forward)
+    start = time.process_time()
+    res = infer_window(meas, spec, forward=forward, seed=1)
+    cpu = time.process_time() - start
+    rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024 ** 2
+    p = np.array([r.p_magmatic for r in res.rows])
+    with capsys.disabled():
+        print(f"\n336-row window: {cpu:.0f} CPU-s, process peak RSS {rss:.2f} GiB, R-hat "
+              f"{res.diagnostics['rhat_max']:.3f}, stages {res.diagnostics['stages']}, flags {res.flags}; "
+              f"P(M0) magmatic rows mean {p[scrubbed == 0].mean():.3f}, scrubbed rows max "
+              f"{p[scrubbed > 0].max():.3f}")
+    assert not set(CONVERGENCE_FLAGS) & set(res.flags), (res.flags, res.diagnostics["rhat_max"])
+    assert not any(set(CONVERGENCE_FLAGS) & set(r.flags) for r in res.rows)
