@@ -77,4 +77,4 @@ def bench_window(spec, quick=False):
         g, gd = c / cost[0], d / draws[0]
         print(f"[window] growth 10 -> {n} rows: {g:.2f}x the 10-row window's CPU-s ({n / 10:.0f}x the rows); "
               f"shared draws {gd:.2f}x, cost per shared draw {g / gd:.2f}x")
-    return dict(zip(sizes, cost), **{12: c12})
+    return {12: c12, **dict(zip(sizes, cost))}
