@@ -116,17 +116,18 @@ def _mixture(target, lz):
     return np.where(np.isnan(mix), -np.inf, mix)
 
 
-def new_row_evidences(prior, forward, likelihood, pi0, theta):
-    """(lz (n, H, 1), the one-row target) of a new row at the population's particles."""
-    one = WindowTarget(prior, forward, [likelihood], pi0)
-    return np.stack(one.row_evidences(theta), axis=1), one
+def new_row_evidences(prior, forward, likelihoods, pi0, theta):
+    """(lz (n, H, rows), their target) of new rows at the population's particles: one
+    batch of forward solves serves every row given."""
+    new = WindowTarget(prior, forward, list(likelihoods), pi0)
+    return np.stack(new.row_evidences(theta), axis=1), new
 
 
-def row_answer(pop, lz_new, log_pis):
-    """Per-run probabilities (R, H) of each hypothesis for the new row, from the
-    population before it moves: sum_j w_j pi_k Z_k,j / sum_j w_j m_j."""
+def row_answer(pop, lz_new, log_pis, row=0):
+    """Per-run probabilities (R, H) of each hypothesis for a new row (lz_new[:, :, row]),
+    from the population before it moves: sum_j w_j pi_k Z_k,j / sum_j w_j m_j."""
     R, N = pop.log_w.shape
-    terms = log_pis[None, :] + lz_new[:, :, 0]                       # (RN, H)
+    terms = log_pis[None, :] + lz_new[:, :, row]                       # (RN, H)
     terms = np.where(np.isnan(terms), -np.inf, terms)
     lw = pop.log_w.reshape(-1)[:, None] + terms
     per_run = special.logsumexp(lw.reshape(R, N, -1), axis=1)         # (R, H)
@@ -192,14 +193,16 @@ class UpdateInfo:
 
 
 def add_row(pop, prior, forward, likelihoods, pi0, seed, row_index, ess_target=0.5, max_moves=20,
-            min_moves=2):
+            min_moves=2, lz_new=None):
     """(new population, UpdateInfo): the window's rows so far are `likelihoods`, the new
-    row last; pop holds the population after the others. See the module's docstring."""
+    row last; pop holds the population after the others; lz_new: the new row's
+    new_row_evidences at pop's particles when already computed. See the module's docstring."""
     R, N = pop.n_runs, pop.n_particles
     if pop.n_rows != len(likelihoods) - 1:
         raise SequentialError(f"population holds {pop.n_rows} rows, {len(likelihoods)} given with the new one")
     target = WindowTarget(prior, forward, likelihoods, pi0)
-    lz_new, _ = new_row_evidences(prior, forward, likelihoods[-1], pi0, pop.theta)
+    if lz_new is None:
+        lz_new, _ = new_row_evidences(prior, forward, likelihoods[-1:], pi0, pop.theta)
     p_runs = row_answer(pop, lz_new, target.log_pis)
     view = population_view(target, pop.u.copy(), pop.theta.copy(), pop.log_prior.copy(),
                            np.concatenate([pop.lz, lz_new], axis=2))

@@ -1,0 +1,272 @@
+"""The watch loop: new complete lines -> instant answers -> window update -> files -> alerts.
+
+Per batch of new lines: each is checked alone (a bad line is logged, listed and skipped);
+rows are placed in windows (`--window` spans from the first row's time, or the file's
+window column); every new row of the current window is answered at once against the
+window's population as it stands (one batch of forward solves for all of them,
+answers.csv); then the rows update the window one at a time in file order
+(inference/window/sequential.py), and the tables, state and alerts follow. Numbers
+depend only on the rows and the seed: the population after row k is the same whether
+the watcher ran through or was stopped and restarted (the answers' `window_rows_before`
+says which population answered a row, which depends on when rows arrived).
+
+Rows out of order: a row whose window is already closed is skipped (listed); within the
+current window the order does not matter to the model (its rows are exchangeable given
+the source), such a row is taken and logged. A row dated more than CLOCK_AHEAD_S after
+the computer's clock is skipped (a station clock jump would otherwise open a window in
+the future and strand every later row). A change of source found by the window's check
+(run every check_every rows) closes the window; the next row starts a new one.
+"""
+from __future__ import annotations
+
+import math
+import os
+import sys
+import time
+import warnings
+
+import numpy as np
+
+from ventsource.common.errors import InputError
+from ventsource.workflow.watch import alerts as alert_rules
+from ventsource.workflow.watch.follow import FollowedFile, parse_row
+from ventsource.workflow.watch.outputs import write_answers, write_figure_and_report, write_readme, write_tables
+from ventsource.workflow.watch.state import check_settings, load_state, save_state
+
+CLOCK_AHEAD_S = 86400
+ALERTS_NAME = "alerts.jsonl"
+LOG_NAME = "watch.log"
+
+
+class Watcher:
+    def __init__(self, ctx, stream=None):
+        self.ctx, self.stream = ctx, stream or sys.stderr
+        self.forward = None
+        self.answered_at = {}   # row id -> wall-clock time (s) its answer was written
+
+    def log(self, text):
+        stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+        with open(os.path.join(self.ctx.out_dir, LOG_NAME), "a") as fh:
+            fh.write(f"{stamp} {text}\n")
+        self.stream.write(text + "\n")
+
+    def start(self):
+        from ventsource.forward.model import ForwardModel
+        from ventsource.inference.window.sequential import WindowPopulation
+        c = self.ctx
+        state, arrays = load_state(c.out_dir)
+        if state is None:
+            state = dict(c.settings, offset=0, line=0, header=None, rows_taken=0, t0=None, window=None,
+                         closed_rows=[], skipped=[], streaks={}, answers=[], alerts_sent=0)
+            write_readme(c.out_dir, c.synthetic)
+        else:
+            check_settings(c.out_dir, state, c.settings)
+        self.state = state
+        self.file = FollowedFile(c.data, state["offset"], state["line"], state["header"])
+        self.pop = WindowPopulation.from_arrays(arrays) if arrays is not None else None
+        self.window_rows = [self._reparse(r) for r in (state["window"] or {}).get("rows", [])]
+        if self.window_rows:
+            self.forward = ForwardModel(c.spec, ratio_names=self.window_rows[0].ratio_names)
+
+    def _reparse(self, rec):
+        return parse_row(self.ctx.data, self.state["header"], rec["line"], rec["text"], self.ctx.sigma)
+
+    def poll(self):
+        """Take every line completed since the last poll; returns how many were new."""
+        seen_at = time.monotonic()
+        lines = self.file.new_lines()
+        if not lines:
+            return 0
+        rows = []
+        for line, text in lines:
+            row = self._accept(line, text)
+            if row is not None:
+                rows.append((row, text))
+        self._answer_batch(rows, seen_at)
+        for k, (row, text) in enumerate(rows):
+            self._take(row, text, last=k == len(rows) - 1)
+        self.state.update(offset=self.file.offset, line=self.file.line, header=self.file.header)
+        save_state(self.ctx.out_dir, self.state, None if self.pop is None else self.pop.arrays())
+        return len(lines)
+
+    def _skip(self, line, row_id, reason):
+        self.state["skipped"].append({"line": line, "id": row_id, "reason": reason})
+        self.log(f"skipped line {line}: {reason}")
+
+    def _accept(self, line, text):
+        """NewRow, or None (logged and listed) for a line that cannot be taken."""
+        try:
+            row = parse_row(self.ctx.data, self.file.header, line, text, self.ctx.sigma)
+        except InputError as exc:
+            self._skip(line, None, str(exc))
+            return None
+        taken = {r["id"] for r in self.state["closed_rows"]} | {r.row_id for r in self.window_rows}
+        if row.row_id in taken:
+            self._skip(line, row.row_id, f"duplicate identifier '{row.row_id}'")
+            return None
+        if row.time_s > time.time() + CLOCK_AHEAD_S:
+            self._skip(line, row.row_id, "time more than a day ahead of this computer's clock")
+            return None
+        return row
+
+    def _label(self, row):
+        """(window label, order) of a row: span index from the first row's time, or its column."""
+        w = self.ctx.window
+        if w == "column":
+            if row.window is None:
+                raise InputError(f"{self.ctx.data}: --window column needs a 'window' column in the file")
+            return row.window, None
+        if self.state["t0"] is None:
+            self.state["t0"] = row.time_s
+        k = math.floor((row.time_s - self.state["t0"]) / w)
+        return f"w{k:04d}", k
+
+    def _answer_batch(self, rows, seen_at):
+        """Instant answers of the batch's rows that fall in the current window."""
+        from ventsource.inference.window.sequential import new_row_evidences, row_answer
+        cur = self.state["window"]
+        batch = [r for r, _ in rows if cur is not None and self.pop is not None and not cur.get("closed")
+                 and self._label(r)[0] == cur["base"]]
+        self._batch_lz = {}
+        if not batch:
+            return
+        liks = self._likelihoods([r.measurement for r in batch])
+        lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, self.pop.theta)
+        for j, r in enumerate(batch):
+            self._record_answer(r, row_answer(self.pop, lz, target.log_pis, j), seen_at)
+        self._batch_lz[batch[0].row_id] = lz[:, :, [0]]   # valid until the population moves
+
+    def _record_answer(self, row, p_runs, seen_at):
+        p = p_runs[:, 0]
+        err = float(np.std(p, ddof=1) / np.sqrt(p.size)) if p.size > 1 else float("nan")
+        cur = self.state["window"]
+        self.state["answers"].append({"id": row.row_id, "time": _time_text(row.time_s), "line": row.line,
+                                      "window": cur["label"], "window_rows_before": len(self.window_rows),
+                                      "p_magmatic_on_arrival": float(np.mean(p)),
+                                      "p_magmatic_on_arrival_error": err})
+        write_answers(self.ctx.out_dir, self.state["answers"])
+        self.answered_at[row.row_id] = time.time()
+        self._answered = getattr(self, "_answered", set()) | {row.row_id}
+
+    def _likelihoods(self, measurements):
+        from ventsource.forward.model import ForwardModel
+        from ventsource.inference.window.sequential_result import window_likelihoods
+        if self.forward is None:
+            self.forward = ForwardModel(self.ctx.spec, ratio_names=measurements[0].ratio_names)
+        return window_likelihoods(measurements, self.forward, self.ctx.spec)
+
+    def _take(self, row, text, last):
+        from ventsource.inference.window.sequential import add_row, start_population
+        label, k = self._label(row)
+        if not self._place(row, label, k):
+            return
+        c, st = self.ctx, self.state
+        liks = self._likelihoods([r.measurement for r in self.window_rows] + [row.measurement])
+        if self.pop is None:   # the window's first row: prior draws, then the same update
+            from ventsource.inference.window.target import WindowTarget
+            shared = WindowTarget(c.spec, self.forward, liks[-1:], c.pi0).shared_prior
+            self.pop = start_population(shared, c.n_particles, c.n_runs, [c.seed, st["rows_taken"], 7],
+                                        n_hypotheses=2 if getattr(c.spec, "release", None) is None else 3)
+        lz_new = self._batch_lz.pop(row.row_id, None)
+        seen_at = time.monotonic()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            if row.row_id not in getattr(self, "_answered", set()):
+                from ventsource.inference.window.sequential import new_row_evidences, row_answer
+                lz_new, target = new_row_evidences(c.spec, self.forward, liks[-1:], c.pi0, self.pop.theta)
+                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis), seen_at)
+            self.pop, info = add_row(self.pop, c.spec, self.forward, liks, c.pi0, c.seed, st["rows_taken"],
+                                     lz_new=lz_new)
+        if info.rerun:
+            self.log(f"row {row.row_id}: window run again from the prior ({info.rerun})")
+        self.window_rows.append(row)
+        st["window"]["rows"].append({"line": row.line, "text": text})
+        st["rows_taken"] += 1
+        self._after_update(row, liks, last)
+
+    def _place(self, row, label, k):
+        """Open or close windows for the row; False when it is skipped (out of order)."""
+        st, cur = self.state, self.state["window"]
+        closed = set(st.get("closed_labels", []))
+        if label in closed or (cur is not None and k is not None and cur["order"] is not None and k < cur["order"]):
+            self._skip(row.line, row.row_id, f"out of order: its window {label} is already closed")
+            return False
+        if cur is not None and (label != cur["base"] or cur.get("closed")):
+            self._close_window(reopen=label == cur["base"])
+            cur = None
+        if cur is None:
+            n = st.setdefault("reopened", {}).get(label, 0)
+            st["window"] = {"base": label, "label": label if n == 0 else f"{label}.{n + 1}", "order": k,
+                            "rows": []}
+            self.pop, self.window_rows = None, []
+        elif self.window_rows and row.time_s < self.window_rows[-1].time_s:
+            self.log(f"row {row.row_id} (line {row.line}) is earlier than the row before it; taken "
+                     "into the current window (its rows are exchangeable given the source)")
+        return True
+
+    def _close_window(self, reopen=False):
+        """The current window's rows become final (their numbers of its last update)."""
+        st = self.state
+        st["closed_rows"].extend(st.pop("window_rows_now", []))
+        if reopen:   # a change of source closed it: the same span goes on in a new window
+            st.setdefault("reopened", {})[st["window"]["base"]] = st["reopened"].get(st["window"]["base"], 0) + 1
+        else:
+            st.setdefault("closed_labels", []).append(st["window"]["base"])
+        st["window"], self.pop, self.window_rows = None, None, []
+
+    def _after_update(self, row, liks, last):
+        """Window summaries, the change-of-source check, files and alerts of a new row."""
+        from ventsource.inference.window.sequential_result import source_checks, window_result
+        from ventsource.workflow.windows import window_row_summary
+        c, st = self.ctx, self.state
+        checks, events = None, ()
+        n = len(self.window_rows)
+        if c.check_every and n % c.check_every == 0:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                checks = source_checks(c.spec, self.forward, liks, c.pi0, float(np.mean(self.pop.log_z)),
+                                       [c.seed, st["rows_taken"], 5])
+            st["window"]["checks"] = [None if not np.isfinite(x) else float(x) for x in checks[:3]] + [checks[3]]
+        elif st["window"].get("checks"):
+            checks = tuple(np.nan if x is None else x for x in st["window"]["checks"][:3]) + (st["window"]["checks"][3],)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = window_result(self.pop, c.spec, self.forward, [r.measurement for r in self.window_rows], liks,
+                                c.pi0, c.seed, checks)
+        label = st["window"]["label"]
+        summaries = []
+        for r, rr in zip(self.window_rows, res.rows):
+            s = window_row_summary(r.row_id, _time_text(r.time_s), label, rr, res, c.seed)
+            s.pop("budget_draws", None)
+            s["line"] = r.line
+            summaries.append({k: v for k, v in s.items() if not k.startswith("_")})
+        st["window_rows_now"] = summaries
+        if "mixed_sources" in res.flags and checks is not None:
+            events = ("change_of_source",)
+            st["window"]["closed"] = True
+            self.log(f"window {label}: change of source flagged at row {row.row_id}; the next row starts a new window")
+        rows = st["closed_rows"] + summaries
+        write_tables(c.out_dir, c, rows, st["skipped"], self.forward.ratio_names)
+        if last or c.figures_every and st["rows_taken"] % c.figures_every == 0:
+            write_figure_and_report(c.out_dir, figures=c.figures)
+        for alert in alert_rules.evaluate(c.rules, st["streaks"], summaries[-1], events):
+            st["alerts_sent"] += 1
+            alert_rules.emit(os.path.join(c.out_dir, ALERTS_NAME), alert, c.argv, self.log)
+
+    def run(self, once=False, poll_s=1.0, stop=None):
+        """Follow the file until stopped (Ctrl-C, stop() true) or, with once, until no new line."""
+        self.start()
+        while True:
+            n = self.poll()
+            if once and n == 0:
+                break
+            if stop is not None and stop():
+                break
+            if n == 0:
+                time.sleep(poll_s)
+        if self.state["rows_taken"] or self.state["closed_rows"]:
+            write_figure_and_report(self.ctx.out_dir, figures=self.ctx.figures)
+
+
+def _time_text(t):
+    return time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(int(t)))
