@@ -56,11 +56,11 @@ class Watcher:
         c = self.ctx
         state, arrays = load_state(c.out_dir)
         if state is None:
-            state = dict(c.settings, offset=0, line=0, header=None, rows_taken=0, t0=None, window=None,
+            state = dict(settings=c.settings, offset=0, line=0, header=None, rows_taken=0, t0=None, window=None,
                          closed_rows=[], skipped=[], streaks={}, answers=[], alerts_sent=0)
             write_readme(c.out_dir, c.synthetic)
         else:
-            check_settings(c.out_dir, state, c.settings)
+            check_settings(c.out_dir, state.get("settings") or {}, c.settings)
         self.state = state
         self.file = FollowedFile(c.data, state["offset"], state["line"], state["header"])
         self.pop = WindowPopulation.from_arrays(arrays) if arrays is not None else None
@@ -258,9 +258,7 @@ class Watcher:
         self.start()
         while True:
             n = self.poll()
-            if once and n == 0:
-                break
-            if stop is not None and stop():
+            if n == 0 and (once or (stop is not None and stop())):
                 break
             if n == 0:
                 time.sleep(poll_s)
