@@ -95,7 +95,9 @@ def evaluate(rules, streaks, row, events=()):
                 out.append(_alert(rule, row, {"event": rule["event"]}))
             continue
         v = values[rule["field"]]
-        ok = v is not None and (v > rule["level"] if rule["op"] == "above" else v < rule["level"])
+        if v is None:   # not drawn for this row (a backlog): the streak neither grows nor ends
+            continue
+        ok = v > rule["level"] if rule["op"] == "above" else v < rule["level"]
         streaks[rule["name"]] = streaks.get(rule["name"], 0) + 1 if ok else 0
         if ok and streaks[rule["name"]] == rule["consecutive"]:   # once per streak
             out.append(_alert(rule, row, {"field": rule["field"], "value": v, rule["op"]: rule["level"],

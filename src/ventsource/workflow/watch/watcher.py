@@ -28,6 +28,7 @@ import warnings
 import numpy as np
 
 from ventsource.common.errors import InputError
+from ventsource.inference.window.sequential_result import source_checks
 from ventsource.workflow.watch import alerts as alert_rules
 from ventsource.workflow.watch.follow import FollowedFile, parse_row
 from ventsource.workflow.watch.outputs import write_answers, write_figure_and_report, write_readme, write_tables
@@ -207,6 +208,8 @@ class Watcher:
     def _close_window(self, reopen=False):
         """The current window's rows become final (their numbers of its last update)."""
         st = self.state
+        if len(st.get("window_rows_now") or []) != len(self.window_rows):
+            self._summarise()   # rows taken since the last summary (a backlog)
         st["closed_rows"].extend(st.pop("window_rows_now", []))
         if reopen:   # a change of source closed it: the same span goes on in a new window
             st.setdefault("reopened", {})[st["window"]["base"]] = st["reopened"].get(st["window"]["base"], 0) + 1
@@ -215,43 +218,64 @@ class Watcher:
         st["window"], self.pop, self.window_rows = None, None, []
 
     def _after_update(self, row, liks, last):
-        """Window summaries, the change-of-source check, files and alerts of a new row."""
-        from ventsource.inference.window.sequential_result import source_checks, window_result
-        from ventsource.workflow.windows import window_row_summary
+        """The change-of-source check, summaries, files and alerts after a new row. The
+        window's summaries (a second batch of forward solves) are drawn when no other row
+        waits, on check rows and when the window closes; alerts on probabilities use the
+        row's own P(M0) after its update (the same whenever the rows arrived)."""
+        from ventsource.inference.window.sequential import row_answer
         c, st = self.ctx, self.state
-        checks, events = None, ()
-        n = len(self.window_rows)
+        checks, events, n = None, (), len(self.window_rows)
         if c.check_every and n % c.check_every == 0:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 checks = source_checks(c.spec, self.forward, liks, c.pi0, float(np.mean(self.pop.log_z)),
                                        [c.seed, st["rows_taken"], 5])
             st["window"]["checks"] = [None if not np.isfinite(x) else float(x) for x in checks[:3]] + [checks[3]]
-        elif st["window"].get("checks"):
-            checks = tuple(np.nan if x is None else x for x in st["window"]["checks"][:3]) + (st["window"]["checks"][3],)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            res = window_result(self.pop, c.spec, self.forward, [r.measurement for r in self.window_rows], liks,
-                                c.pi0, c.seed, checks)
-        label = st["window"]["label"]
-        summaries = []
-        for r, rr in zip(self.window_rows, res.rows):
-            s = window_row_summary(r.row_id, _time_text(r.time_s), label, rr, res, c.seed)
-            s.pop("budget_draws", None)
-            s["line"] = r.line
-            summaries.append({k: v for k, v in s.items() if not k.startswith("_")})
-        st["window_rows_now"] = summaries
-        if "mixed_sources" in res.flags and checks is not None:
-            events = ("change_of_source",)
-            st["window"]["closed"] = True
-            self.log(f"window {label}: change of source flagged at row {row.row_id}; the next row starts a new window")
-        rows = st["closed_rows"] + summaries
-        write_tables(c.out_dir, c, rows, st["skipped"], self.forward.ratio_names)
-        if last or c.figures_every and st["rows_taken"] % c.figures_every == 0:
-            write_figure_and_report(c.out_dir, figures=c.figures)
-        for alert in alert_rules.evaluate(c.rules, st["streaks"], summaries[-1], events):
+            if checks[0] < 0.0 or checks[1] < -2.0:   # infer_window's mixed_sources rule
+                events = ("change_of_source",)
+                st["window"]["closed"] = True
+                self.log(f"window {st['window']['label']}: change of source flagged at row {row.row_id}; "
+                         "the next row starts a new window")
+        fresh = last or checks is not None
+        if fresh:
+            self._summarise()
+        p = row_answer(self.pop, self.pop.lz[:, :, -1:], np.log([c.pi0, 1.0 - c.pi0]))[:, 0]
+        now = {"id": row.row_id, "time": _time_text(row.time_s), "line": row.line,
+               "window": st["window"]["label"], "p_magmatic": float(np.mean(p)),
+               "p_magmatic_error": float(np.std(p, ddof=1) / np.sqrt(p.size)) if p.size > 1 else None}
+        if fresh:
+            last_row = st["window_rows_now"][-1]
+            now.update({k: last_row.get(k) for k in ("scrubbed_so2_avg_median", "scrubbed_so2_avg_q95")})
+        for alert in alert_rules.evaluate(c.rules, st["streaks"], now, events):
             st["alerts_sent"] += 1
             alert_rules.emit(os.path.join(c.out_dir, ALERTS_NAME), alert, c.argv, self.log)
+
+    def _checks(self):
+        saved = self.state["window"].get("checks")
+        return None if not saved else tuple(np.nan if x is None else x for x in saved[:3]) + (saved[3],)
+
+    def _summarise(self):
+        """The window's rows summarised from its population; tables and report rewritten."""
+        from ventsource.inference.window.sequential_result import window_result
+        from ventsource.workflow.windows import window_row_summary
+        c, st = self.ctx, self.state
+        meas = [r.measurement for r in self.window_rows]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = window_result(self.pop, c.spec, self.forward, meas, self._likelihoods(meas), c.pi0, c.seed,
+                                self._checks())
+        summaries = []
+        for r, rr in zip(self.window_rows, res.rows):
+            s = window_row_summary(r.row_id, _time_text(r.time_s), st["window"]["label"], rr, res, c.seed)
+            s.pop("budget_draws", None)
+            s["line"] = r.line
+            summaries.append(s)
+        st["window_rows_now"] = summaries
+        write_tables(c.out_dir, c, st["closed_rows"] + summaries, st["skipped"], self.forward.ratio_names)
+        figures = c.figures and c.figures_every and st["rows_taken"] // c.figures_every > st.get("figure_at", -1)
+        if figures:
+            st["figure_at"] = st["rows_taken"] // c.figures_every
+        write_figure_and_report(c.out_dir, figures=figures)
 
     def run(self, once=False, poll_s=1.0, stop=None):
         """Follow the file until stopped (Ctrl-C, stop() true) or, with once, until no new line."""
@@ -262,7 +286,9 @@ class Watcher:
                 break
             if n == 0:
                 time.sleep(poll_s)
-        if self.state["rows_taken"] or self.state["closed_rows"]:
+        if self.window_rows:
+            if len(self.state.get("window_rows_now") or []) != len(self.window_rows):
+                self._summarise()
             write_figure_and_report(self.ctx.out_dir, figures=self.ctx.figures)
 
 
