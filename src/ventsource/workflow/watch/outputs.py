@@ -43,14 +43,17 @@ def write_figure_and_report(out_dir, figures=True):
     from ventsource.workflow.report_html import write_report
     if figures:
         from ventsource.workflow.figures import _plt, series_figure
+        import warnings
         plt = _plt()
         os.makedirs(os.path.join(out_dir, "figures"), exist_ok=True)
-        fig = series_figure(os.path.join(out_dir, SUMMARY_NAME), title="Live monitoring (ventsource watch)")
-        try:
-            _atomic(os.path.join(out_dir, "figures", "series.png"),
-                    lambda part: fig.savefig(part, dpi=100, format="png"))
-        finally:
-            plt.close(fig)
+        with warnings.catch_warnings():   # a window of a few rows: matplotlib's date-axis notes
+            warnings.simplefilter("ignore")
+            fig = series_figure(os.path.join(out_dir, SUMMARY_NAME), title="Live monitoring (ventsource watch)")
+            try:
+                _atomic(os.path.join(out_dir, "figures", "series.png"),
+                        lambda part: fig.savefig(part, dpi=100, format="png"))
+            finally:
+                plt.close(fig)
     write_report(out_dir)
 
 
