@@ -24,6 +24,7 @@ class WatchContext:
     check_every: int = 8    # rows between change-of-source checks (0: never)
     figures_every: int = 10
     figures: bool = True
+    clock_check: bool = True   # skip rows dated more than a day after this computer's clock
     synthetic: bool = False
     rules: list = field(default_factory=list)
     argv: list | None = None
