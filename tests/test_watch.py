@@ -142,3 +142,44 @@ def test_alert_rules_and_consecutive_rows(tmp_path):
     toml.write_text('[command]\nargv = "rm -rf /"\n')
     with pytest.raises(InputError, match="list of non-empty strings"):
         alerts.read_alert_rules(toml)
+
+
+def _cli_watch(data, out, *extra):
+    import subprocess
+    import sys
+    return subprocess.Popen([sys.executable, "-m", "ventsource.cli.main", "watch", str(data), "--prior", str(PRIOR),
+                             "--out", str(out), "--window", "column", "--seed", "4", "--particles", "60",
+                             "--check-every", "0", "--no-figures", "--once", *extra],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+
+
+def _killed_and_restarted(tmp_path, n_rows, kill_after_s):
+    """The watch killed (SIGKILL) at the given moments and started again each time."""
+    header, *lines = DATA.read_text().splitlines()
+    _write(tmp_path / "k.csv", header, lines[:n_rows])
+    for delay in kill_after_s:
+        proc = _cli_watch(tmp_path / "k.csv", tmp_path / "killed")
+        try:
+            proc.wait(timeout=delay)
+        except Exception:
+            proc.kill()
+            proc.wait()
+    assert _cli_watch(tmp_path / "k.csv", tmp_path / "killed").wait(timeout=600) == 0
+    assert _cli_watch(tmp_path / "k.csv", tmp_path / "whole").wait(timeout=600) == 0
+    for name in ("summary.csv",):
+        assert (tmp_path / "killed" / name).read_text() == (tmp_path / "whole" / name).read_text()
+    a = np.load(next((tmp_path / "killed" / "state").glob("population-*.npz")))
+    b = np.load(next((tmp_path / "whole" / "state").glob("population-*.npz")))
+    for key in a.files:
+        assert np.array_equal(a[key], b[key]), key
+
+
+def test_killed_watch_restarts_to_the_numbers_of_an_uninterrupted_one(tmp_path):
+    _killed_and_restarted(tmp_path, 5, [9.0])
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_killed_watch_at_random_moments(tmp_path, seed):
+    rng = np.random.default_rng(seed)
+    _killed_and_restarted(tmp_path, 12, list(rng.uniform(4.0, 25.0, 4)))

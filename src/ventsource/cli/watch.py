@@ -49,7 +49,8 @@ def cmd_watch(args):
 
 def _replay(args):
     from ventsource.common.caution import CAUTION
-    from ventsource.workflow.watch.replay import DEMO_PRIOR, ReplayWriter, demo_lines, latency_seconds
+    from ventsource.workflow.watch.replay import (DEMO_ALERTS, DEMO_PRIOR, demo_lines, latency_seconds, start_writer,
+                                                  written_at)
     from ventsource.workflow.watch.session import make_context, run_watch
     if args.speed <= 0 or args.rows < 2:
         raise InputError("--speed must be > 0 and --rows >= 2")
@@ -58,17 +59,22 @@ def _replay(args):
     data = os.path.join(args.out, "replay-data.csv")
     if os.path.exists(os.path.join(args.out, "watch", "state")):
         raise InputError(f"{args.out}: holds an earlier replay; choose another --out")
+    alerts = args.alerts
+    if alerts is None:
+        alerts = os.path.join(args.out, "alerts.toml")
+        with open(alerts, "w", encoding="utf-8") as fh:
+            fh.write(DEMO_ALERTS)
     ctx = make_context(data, args.prior or DEMO_PRIOR, os.path.join(args.out, "watch"), seed=args.seed,
                        window=args.window if args.window != "30d" else "column", sigma=args.sigma,
-                       alerts_path=args.alerts, figures=not args.no_figures, synthetic=True,
+                       alerts_path=alerts, figures=not args.no_figures, synthetic=True,
                        n_particles=args.particles, check_every=args.check_every)
     ctx.clock_check = False   # the synthetic series is dated over years, some after today
-    writer = ReplayWriter(data, header, lines, args.speed)
-    writer.start()
+    times = os.path.join(args.out, "replay-times.csv")
+    writer = start_writer(data, header, lines, args.speed, times)
     print(f"replaying {len(lines)} synthetic rows (fictional Mount Kerrow) at {args.speed:g} per second "
           f"into {data}; results in {ctx.out_dir}/")
     watcher = run_watch(ctx, poll_s=min(0.2, 1.0 / args.speed), stop=lambda: not writer.is_alive())
-    lat = latency_seconds(writer.written_at, watcher.answered_at)
+    lat = latency_seconds(written_at(times), watcher.answered_at)
     if lat:
         print(f"arrival to answer written: median {np.median(lat):.2f} s, 95th percentile "
               f"{np.percentile(lat, 95):.2f} s over {len(lat)} rows")

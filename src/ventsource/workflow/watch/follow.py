@@ -34,7 +34,8 @@ class FollowedFile:
         self.path, self.offset, self.line, self.header = str(path), int(offset), int(line), header
 
     def new_lines(self):
-        """[(line number, text)] of the lines completed since the last call."""
+        """[(line number, text, byte offset after it)] of the lines completed since the last
+        call (the header is kept, not returned)."""
         try:
             size = os.path.getsize(self.path)
         except FileNotFoundError:
@@ -48,14 +49,16 @@ class FollowedFile:
         end = chunk.rfind(b"\n")
         if end < 0:
             return []   # nothing complete yet (a line still being written)
-        out = []
-        for raw in chunk[:end + 1].splitlines():
+        out, pos = [], 0
+        while pos <= end:
+            stop = chunk.index(b"\n", pos)
+            raw, pos = chunk[pos:stop].rstrip(b"\r"), stop + 1
             self.line += 1
             text = raw.decode("utf-8-sig" if self.line == 1 else "utf-8", errors="replace")
             if self.line == 1:
                 self.header = text
             elif text.strip():
-                out.append((self.line, text))
+                out.append((self.line, text, self.offset + pos))
         self.offset += end + 1
         return out
 

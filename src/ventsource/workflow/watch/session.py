@@ -24,11 +24,11 @@ class WatchContext:
     check_every: int = 8    # rows between change-of-source checks (0: never)
     figures_every: int = 10
     figures: bool = True
-    clock_check: bool = True   # skip rows dated more than a day after this computer's clock
     synthetic: bool = False
     rules: list = field(default_factory=list)
     argv: list | None = None
     settings: dict = field(default_factory=dict)
+    clock_check: bool = True   # skip rows dated more than a day after this computer's clock
 
 
 def make_context(data, prior_path, out_dir, seed=0, window="30d", sigma=None, alerts_path=None,

@@ -20,6 +20,7 @@ the future and strand every later row). A change of source found by the window's
 from __future__ import annotations
 
 import math
+from collections import deque
 import os
 import sys
 import time
@@ -44,6 +45,8 @@ class Watcher:
         self.ctx, self.stream = ctx, stream or sys.stderr
         self.forward = None
         self.answered_at = {}   # row id -> wall-clock time (s) its answer was written
+        self.pending = deque()  # (line, text, byte offset after it, NewRow or None) read, not yet taken
+        self._answered, self._lz_cache, self.version = set(), {}, 0
 
     def log(self, text):
         stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
@@ -72,25 +75,36 @@ class Watcher:
     def _reparse(self, rec):
         return parse_row(self.ctx.data, self.state["header"], rec["line"], rec["text"], self.ctx.sigma)
 
-    def poll(self):
-        """Take every line completed since the last poll; returns how many were new."""
-        seen_at = time.monotonic()
+    def _read(self):
+        """Lines completed since the last look: each checked, queued, and the new rows of
+        the current window answered at once; returns how many lines were read."""
         lines = self.file.new_lines()
-        if not lines:
-            return 0
-        rows = []
-        for line, text in lines:
+        fresh = []
+        for line, text, end in lines:
             row = self._accept(line, text)
+            self.pending.append((line, text, end, row))
             if row is not None:
-                rows.append((row, text))
-        self._answer_batch(rows, seen_at)
-        for k, (row, text) in enumerate(rows):
-            self._take(row, text, last=k == len(rows) - 1)
-        self.state.update(offset=self.file.offset, line=self.file.line, header=self.file.header)
-        save_state(self.ctx.out_dir, self.state, None if self.pop is None else self.pop.arrays())
+                fresh.append(row)
+        if fresh:
+            self._answer_batch(fresh)
         return len(lines)
 
+    def poll(self):
+        """Take every line completed so far, one row at a time; between rows, lines that
+        arrived meanwhile are answered at once. Returns how many lines were read."""
+        n = self._read()
+        while self.pending:
+            line, text, end, row = self.pending.popleft()
+            if row is not None:
+                self._take(row, text, last=not self.pending)
+            self.state.update(offset=end, line=line, header=self.file.header)
+            save_state(self.ctx.out_dir, self.state, None if self.pop is None else self.pop.arrays())
+            n += self._read()
+        return n
+
     def _skip(self, line, row_id, reason):
+        if any(s["line"] == line for s in self.state["skipped"]):
+            return   # read again after a restart: listed and logged once
         self.state["skipped"].append({"line": line, "id": row_id, "reason": reason})
         self.log(f"skipped line {line}: {reason}")
 
@@ -101,7 +115,8 @@ class Watcher:
         except InputError as exc:
             self._skip(line, None, str(exc))
             return None
-        taken = {r["id"] for r in self.state["closed_rows"]} | {r.row_id for r in self.window_rows}
+        taken = ({r["id"] for r in self.state["closed_rows"]} | {r.row_id for r in self.window_rows}
+                 | {p[3].row_id for p in self.pending if p[3] is not None})
         if row.row_id in taken:
             self._skip(line, row.row_id, f"duplicate identifier '{row.row_id}'")
             return None
@@ -122,22 +137,28 @@ class Watcher:
         k = math.floor((row.time_s - self.state["t0"]) / w)
         return f"w{k:04d}", k
 
-    def _answer_batch(self, rows, seen_at):
-        """Instant answers of the batch's rows that fall in the current window."""
+    def _answer_batch(self, rows):
+        """Instant answers of new rows that fall in the current window (one batch of solves);
+        each row's evidences are kept for its update while the particles stay where they are."""
         from ventsource.inference.window.sequential import new_row_evidences, row_answer
         cur = self.state["window"]
-        batch = [r for r, _ in rows if cur is not None and self.pop is not None and not cur.get("closed")
-                 and self._label(r)[0] == cur["base"]]
-        self._batch_lz = {}
+        if cur is None or self.pop is None or cur.get("closed"):
+            return
+        batch = [r for r in rows if self._label(r)[0] == cur["base"] and r.row_id not in self._answered]
         if not batch:
             return
         liks = self._likelihoods([r.measurement for r in batch])
-        lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, self.pop.theta)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, self.pop.theta)
         for j, r in enumerate(batch):
-            self._record_answer(r, row_answer(self.pop, lz, target.log_pis, j), seen_at)
-        self._batch_lz[batch[0].row_id] = lz[:, :, [0]]   # valid until the population moves
+            self._record_answer(r, row_answer(self.pop, lz, target.log_pis, j))
+            self._lz_cache[r.row_id] = (self.version, lz[:, :, [j]])
 
-    def _record_answer(self, row, p_runs, seen_at):
+    def _record_answer(self, row, p_runs):
+        self._answered.add(row.row_id)
+        if any(a["id"] == row.row_id for a in self.state["answers"]):
+            return   # answered before a restart
         p = p_runs[:, 0]
         err = float(np.std(p, ddof=1) / np.sqrt(p.size)) if p.size > 1 else float("nan")
         cur = self.state["window"]
@@ -147,7 +168,6 @@ class Watcher:
                                       "p_magmatic_on_arrival_error": err})
         write_answers(self.ctx.out_dir, self.state["answers"])
         self.answered_at[row.row_id] = time.time()
-        self._answered = getattr(self, "_answered", set()) | {row.row_id}
 
     def _likelihoods(self, measurements):
         from ventsource.forward.model import ForwardModel
@@ -168,16 +188,18 @@ class Watcher:
             shared = WindowTarget(c.spec, self.forward, liks[-1:], c.pi0).shared_prior
             self.pop = start_population(shared, c.n_particles, c.n_runs, [c.seed, st["rows_taken"], 7],
                                         n_hypotheses=2 if getattr(c.spec, "release", None) is None else 3)
-        lz_new = self._batch_lz.pop(row.row_id, None)
-        seen_at = time.monotonic()
+        version, lz_new = self._lz_cache.pop(row.row_id, (None, None))
+        lz_new = lz_new if version == self.version else None
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            if row.row_id not in getattr(self, "_answered", set()):
+            if row.row_id not in self._answered:
                 from ventsource.inference.window.sequential import new_row_evidences, row_answer
                 lz_new, target = new_row_evidences(c.spec, self.forward, liks[-1:], c.pi0, self.pop.theta)
-                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis), seen_at)
+                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis))
             self.pop, info = add_row(self.pop, c.spec, self.forward, liks, c.pi0, c.seed, st["rows_taken"],
                                      lz_new=lz_new)
+        if info.moved_runs or info.rerun:
+            self.version += 1   # the particles moved: evidences kept for waiting rows are stale
         if info.rerun:
             self.log(f"row {row.row_id}: window run again from the prior ({info.rerun})")
         self.window_rows.append(row)
@@ -200,6 +222,7 @@ class Watcher:
             st["window"] = {"base": label, "label": label if n == 0 else f"{label}.{n + 1}", "order": k,
                             "rows": []}
             self.pop, self.window_rows = None, []
+            self.version += 1
         elif self.window_rows and row.time_s < self.window_rows[-1].time_s:
             self.log(f"row {row.row_id} (line {row.line}) is earlier than the row before it; taken "
                      "into the current window (its rows are exchangeable given the source)")
