@@ -15,7 +15,7 @@ current window the order does not matter to the model (its rows are exchangeable
 the source), such a row is taken and logged. A row dated more than CLOCK_AHEAD_S after
 the computer's clock is skipped (a station clock jump would otherwise open a window in
 the future and strand every later row). A change of source found by the window's check
-(run every check_every rows) closes the window; the next row starts a new one.
+(run at check_every, 2 check_every, 4 check_every ... rows) closes the window; the next row starts a new one.
 """
 from __future__ import annotations
 
@@ -46,7 +46,7 @@ class Watcher:
         self.forward = None
         self.answered_at = {}   # row id -> wall-clock time (s) its answer was written
         self.pending = deque()  # (line, text, byte offset after it, NewRow or None) read, not yet taken
-        self._answered, self._lz_cache, self.version = set(), {}, 0
+        self._answered, self._lz_cache, self.version, self._moves = set(), {}, None, 0
 
     def log(self, text):
         stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
@@ -138,32 +138,54 @@ class Watcher:
         return f"w{k:04d}", k
 
     def _answer_batch(self, rows):
-        """Instant answers of new rows that fall in the current window (one batch of solves);
-        each row's evidences are kept for its update while the particles stay where they are."""
+        """Instant answers of new rows (one batch of solves per window): a row of the current
+        window against its population, a row of a window not yet open against that window's
+        starting prior draws. Each row's evidences are kept for its update while the
+        particles stay where they are."""
+        cur, closed = self.state["window"], set(self.state.get("closed_labels", []))
+        self._likelihoods([r.measurement for r in rows[:1]])   # the forward model, on the first row
+        groups = {}
+        for r in rows:
+            label = self._label(r)[0]
+            if r.row_id not in self._answered and label not in closed:
+                groups.setdefault(label, []).append(r)
+        for label, batch in groups.items():
+            if cur is not None and label == cur["base"] and not cur.get("closed") and self.pop is not None:
+                pop, version, before = self.pop, self.version, len(self.window_rows)
+            elif cur is None or label != cur["base"]:
+                pop, version, before = self._start_pop(label), ("start", label), 0
+            else:
+                continue
+            self._answer_rows(batch, pop, version, label if before == 0 else cur["label"], before)
+
+    def _answer_rows(self, batch, pop, version, label, before):
         from ventsource.inference.window.sequential import new_row_evidences, row_answer
-        cur = self.state["window"]
-        if cur is None or self.pop is None or cur.get("closed"):
-            return
-        batch = [r for r in rows if self._label(r)[0] == cur["base"] and r.row_id not in self._answered]
-        if not batch:
-            return
         liks = self._likelihoods([r.measurement for r in batch])
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, self.pop.theta)
+            lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, pop.theta)
         for j, r in enumerate(batch):
-            self._record_answer(r, row_answer(self.pop, lz, target.log_pis, j))
-            self._lz_cache[r.row_id] = (self.version, lz[:, :, [j]])
+            self._record_answer(r, row_answer(pop, lz, target.log_pis, j), label, before)
+            self._lz_cache[r.row_id] = (version, lz[:, :, [j]])
 
-    def _record_answer(self, row, p_runs):
+    def _start_pop(self, label):
+        """A window's starting population: prior draws seeded from the run seed and its label."""
+        from ventsource.inference.window.sequential import start_population
+        from ventsource.inference.window.target import WindowTarget
+        from ventsource.workflow.row_jobs import row_seed
+        c = self.ctx
+        shared = WindowTarget(c.spec, self.forward, self._likelihoods([]), c.pi0).shared_prior
+        return start_population(shared, c.n_particles, c.n_runs, [row_seed(c.seed, f"window-{label}"), 7],
+                                n_hypotheses=2 if getattr(c.spec, "release", None) is None else 3)
+
+    def _record_answer(self, row, p_runs, label, before):
         self._answered.add(row.row_id)
         if any(a["id"] == row.row_id for a in self.state["answers"]):
             return   # answered before a restart
         p = p_runs[:, 0]
         err = float(np.std(p, ddof=1) / np.sqrt(p.size)) if p.size > 1 else float("nan")
-        cur = self.state["window"]
         self.state["answers"].append({"id": row.row_id, "time": _time_text(row.time_s), "line": row.line,
-                                      "window": cur["label"], "window_rows_before": len(self.window_rows),
+                                      "window": label, "window_rows_before": before,
                                       "p_magmatic_on_arrival": float(np.mean(p)),
                                       "p_magmatic_on_arrival_error": err})
         write_answers(self.ctx.out_dir, self.state["answers"])
@@ -177,17 +199,14 @@ class Watcher:
         return window_likelihoods(measurements, self.forward, self.ctx.spec)
 
     def _take(self, row, text, last):
-        from ventsource.inference.window.sequential import add_row, start_population
+        from ventsource.inference.window.sequential import add_row
         label, k = self._label(row)
         if not self._place(row, label, k):
             return
         c, st = self.ctx, self.state
         liks = self._likelihoods([r.measurement for r in self.window_rows] + [row.measurement])
         if self.pop is None:   # the window's first row: prior draws, then the same update
-            from ventsource.inference.window.target import WindowTarget
-            shared = WindowTarget(c.spec, self.forward, liks[-1:], c.pi0).shared_prior
-            self.pop = start_population(shared, c.n_particles, c.n_runs, [c.seed, st["rows_taken"], 7],
-                                        n_hypotheses=2 if getattr(c.spec, "release", None) is None else 3)
+            self.pop, self.version = self._start_pop(st["window"]["label"]), ("start", st["window"]["label"])
         version, lz_new = self._lz_cache.pop(row.row_id, (None, None))
         lz_new = lz_new if version == self.version else None
         with warnings.catch_warnings():
@@ -195,11 +214,13 @@ class Watcher:
             if row.row_id not in self._answered:
                 from ventsource.inference.window.sequential import new_row_evidences, row_answer
                 lz_new, target = new_row_evidences(c.spec, self.forward, liks[-1:], c.pi0, self.pop.theta)
-                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis))
+                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis), st["window"]["label"],
+                                    len(self.window_rows))
             self.pop, info = add_row(self.pop, c.spec, self.forward, liks, c.pi0, c.seed, st["rows_taken"],
                                      lz_new=lz_new)
-        if info.moved_runs or info.rerun:
-            self.version += 1   # the particles moved: evidences kept for waiting rows are stale
+        if info.moved_runs or info.rerun:   # the particles moved: evidences kept for waiting rows are stale
+            self._moves += 1
+            self.version = ("moved", self._moves)
         if info.rerun:
             self.log(f"row {row.row_id}: window run again from the prior ({info.rerun})")
         self.window_rows.append(row)
@@ -222,7 +243,6 @@ class Watcher:
             st["window"] = {"base": label, "label": label if n == 0 else f"{label}.{n + 1}", "order": k,
                             "rows": []}
             self.pop, self.window_rows = None, []
-            self.version += 1
         elif self.window_rows and row.time_s < self.window_rows[-1].time_s:
             self.log(f"row {row.row_id} (line {row.line}) is earlier than the row before it; taken "
                      "into the current window (its rows are exchangeable given the source)")
@@ -248,7 +268,8 @@ class Watcher:
         from ventsource.inference.window.sequential import row_answer
         c, st = self.ctx, self.state
         checks, events, n = None, (), len(self.window_rows)
-        if c.check_every and n % c.check_every == 0:
+        self._read()   # rows that arrived during the update are answered before the slower steps
+        if c.check_every and n % c.check_every == 0 and ((n // c.check_every) & (n // c.check_every - 1)) == 0:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 checks = source_checks(c.spec, self.forward, liks, c.pi0, float(np.mean(self.pop.log_z)),
@@ -259,7 +280,7 @@ class Watcher:
                 st["window"]["closed"] = True
                 self.log(f"window {st['window']['label']}: change of source flagged at row {row.row_id}; "
                          "the next row starts a new window")
-        fresh = last or checks is not None
+        fresh = (last and not self.pending) or checks is not None
         if fresh:
             self._summarise()
         p = row_answer(self.pop, self.pop.lz[:, :, -1:], np.log([c.pi0, 1.0 - c.pi0]))[:, 0]
