@@ -193,10 +193,12 @@ class UpdateInfo:
 
 
 def add_row(pop, prior, forward, likelihoods, pi0, seed, row_index, ess_target=0.5, max_moves=20,
-            min_moves=2, lz_new=None):
+            min_moves=2, lz_new=None, between=None):
     """(new population, UpdateInfo): the window's rows so far are `likelihoods`, the new
     row last; pop holds the population after the others; lz_new: the new row's
-    new_row_evidences at pop's particles when already computed. See the module's docstring."""
+    new_row_evidences at pop's particles when already computed; between: called after each
+    resample-move stage (the caller's other work, e.g. answering rows that arrived).
+    See the module's docstring."""
     R, N = pop.n_runs, pop.n_particles
     if pop.n_rows != len(likelihoods) - 1:
         raise SequentialError(f"population holds {pop.n_rows} rows, {len(likelihoods)} given with the new one")
@@ -225,6 +227,8 @@ def add_row(pop, prior, forward, likelihoods, pi0, seed, row_index, ess_target=0
             view = view.take(idx)
             _rejuvenate(view, resample, beta, N, scale, rngs, evaluate, max_moves, min_moves)
             moved.update(resample)
+            if between is not None:
+                between()
     distinct = min(np.unique(view.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R))
     out = WindowPopulation(view.u, view.theta, view.aux["lp0"], view.aux["lz"], log_w, log_z, scale)
     reason = ""

@@ -13,7 +13,7 @@ from ventsource.workflow.windows import window_summary_columns
 
 ANSWERS_NAME = "answers.csv"
 ANSWER_COLUMNS = ["id", "time", "line", "window", "window_rows_before", "p_magmatic_on_arrival",
-                  "p_magmatic_on_arrival_error"]
+                  "p_magmatic_on_arrival_error", "answered_at"]
 LIVE_NOTE = ("Live monitoring (ventsource watch): the rows of the current window carry the numbers of "
              "its latest update and change as rows arrive; a closed window's rows are final.")
 

@@ -187,7 +187,8 @@ class Watcher:
         self.state["answers"].append({"id": row.row_id, "time": _time_text(row.time_s), "line": row.line,
                                       "window": label, "window_rows_before": before,
                                       "p_magmatic_on_arrival": float(np.mean(p)),
-                                      "p_magmatic_on_arrival_error": err})
+                                      "p_magmatic_on_arrival_error": err,
+                                      "answered_at": _time_text(time.time(), decimals=True)})
         write_answers(self.ctx.out_dir, self.state["answers"])
         self.answered_at[row.row_id] = time.time()
 
@@ -217,7 +218,7 @@ class Watcher:
                 self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis), st["window"]["label"],
                                     len(self.window_rows))
             self.pop, info = add_row(self.pop, c.spec, self.forward, liks, c.pi0, c.seed, st["rows_taken"],
-                                     lz_new=lz_new)
+                                     lz_new=lz_new, between=self._read)
         if info.moved_runs or info.rerun:   # the particles moved: evidences kept for waiting rows are stale
             self._moves += 1
             self.version = ("moved", self._moves)
@@ -336,5 +337,6 @@ class Watcher:
             write_figure_and_report(self.ctx.out_dir, figures=self.ctx.figures)
 
 
-def _time_text(t):
-    return time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(int(t)))
+def _time_text(t, decimals=False):
+    text = time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(int(t)))
+    return text + (f"{t % 1:.3f}"[1:] if decimals else "") + "Z"
