@@ -183,3 +183,19 @@ def test_killed_watch_restarts_to_the_numbers_of_an_uninterrupted_one(tmp_path):
 def test_killed_watch_at_random_moments(tmp_path, seed):
     rng = np.random.default_rng(seed)
     _killed_and_restarted(tmp_path, 12, list(rng.uniform(4.0, 25.0, 4)))
+
+
+def test_split_check_run_piecewise_gives_infer_windows_numbers(demo):
+    """The watch's change-of-source check (its runs one at a time) gives exactly the
+    numbers of infer_window's own check on the same rows and seed."""
+    from ventsource.inference.window.sampling import WINDOW_DEFAULTS, _split_source_log10_bf
+    from ventsource.inference.window.sequential_result import _split_check
+    spec, series, fw = demo
+    liks = window_likelihoods([series.measurements[i] for i in range(4)], fw, spec)
+    opt = dict(WINDOW_DEFAULTS, split_particles=40, split_runs=2)
+    calls = []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ours = _split_check(spec, fw, liks, 11, opt, lambda: calls.append(1))
+        theirs = _split_source_log10_bf(spec, fw, liks, 11, opt)
+    assert ours == theirs and len(calls) == 3

@@ -12,9 +12,11 @@ from types import SimpleNamespace
 import numpy as np
 
 from ventsource.inference.engines.run_rhat import between_run_rhat
-from ventsource.inference.window.sampling import (WINDOW_DEFAULTS, WindowResult, _likelihoods, _row_results,
-                                                  _shared_information, _shared_source_log10_bf,
-                                                  _split_source_log10_bf, _window_flags)
+from scipy import special
+
+from ventsource.inference.window.sampling import (WINDOW_DEFAULTS, WindowError, WindowResult, _likelihoods,
+                                                  _log_evidence, _row_results, _shared_information,
+                                                  _shared_source_log10_bf, _window_flags, split_points)
 from ventsource.inference.window.target import WindowTarget
 
 
@@ -24,9 +26,10 @@ def window_likelihoods(measurements, forward, prior):
     return _likelihoods(measurements, forward, kind, dof)
 
 
-def source_checks(prior, forward, likelihoods, pi0, log_z, seed, **options):
+def source_checks(prior, forward, likelihoods, pi0, log_z, seed, between=None, **options):
     """(log10 BF one source vs each row its own, log10 BF one source vs a change within
-    the window, its error, whether the second check ran): infer_window's checks."""
+    the window, its error, whether the second check ran): infer_window's checks;
+    between: called after each of the second check's runs."""
     opt = dict(WINDOW_DEFAULTS, **options)
     target = WindowTarget(prior, forward, likelihoods, pi0)
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(2)]
@@ -34,8 +37,33 @@ def source_checks(prior, forward, likelihoods, pi0, log_z, seed, **options):
     split_ran = bool(opt["split_check"] and len(likelihoods) >= opt["split_min_rows"])
     split_bf, split_err = np.nan, np.nan
     if split_ran:
-        split_bf, split_err = _split_source_log10_bf(prior, forward, likelihoods, seeds[1], opt)
+        split_bf, split_err = _split_check(prior, forward, likelihoods, seeds[1], opt, between or (lambda: None))
     return bf, split_bf, split_err, split_ran
+
+
+def _split_check(prior, forward, liks, seed, opt, between):
+    """sampling._split_source_log10_bf's numbers (the same runs, seeds and combination),
+    its runs one at a time with the caller's work between them."""
+    cuts = split_points(len(liks))
+    seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(1 + 2 * len(cuts))]
+    try:
+        lz_one, err_one = _log_evidence(prior, forward, liks, seeds[0], opt)
+        between()
+        parts = []
+        for k, c in enumerate(cuts):
+            pair = []
+            for side, sd in zip((liks[:c], liks[c:]), seeds[1 + 2 * k:3 + 2 * k]):
+                pair.append(_log_evidence(prior, forward, side, sd, opt))
+                between()
+            parts.append(pair)
+    except WindowError:
+        return np.nan, np.nan
+    lz_split = np.array([a[0] + b[0] for a, b in parts])
+    var_split = np.array([np.nan_to_num(a[1]) ** 2 + np.nan_to_num(b[1]) ** 2 for a, b in parts])
+    weight = np.exp(lz_split - special.logsumexp(lz_split))
+    lz_change = special.logsumexp(lz_split) - np.log(len(cuts))
+    var = np.nan_to_num(err_one) ** 2 + float(np.sum(weight ** 2 * var_split))
+    return float((lz_one - lz_change) / np.log(10.0)), float(np.sqrt(var) / np.log(10.0))
 
 
 def window_result(pop, prior, forward, measurements, likelihoods, pi0, seed, checks=None, **options):
