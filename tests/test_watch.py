@@ -199,3 +199,15 @@ def test_split_check_run_piecewise_gives_infer_windows_numbers(demo):
         ours = _split_check(spec, fw, liks, 11, opt, lambda: calls.append(1))
         theirs = _split_source_log10_bf(spec, fw, liks, 11, opt)
     assert ours == theirs and len(calls) == 3
+
+
+def test_cli_bad_alert_file_is_one_line_and_exit_2(tmp_path, capsys):
+    from ventsource.cli.main import main
+    bad = tmp_path / "a.toml"
+    bad.write_text('[[rule]]\nfield = "nonsense"\nabove = 1\n')
+    assert main(["watch", str(DATA), "--prior", str(PRIOR), "--out", str(tmp_path / "o"),
+                 "--alerts", str(bad), "--once"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "rule 1: field must be one of" in err[0]
+    assert not (tmp_path / "o").exists()
+    assert main(["watch", "--out", str(tmp_path / "o")]) == 2
