@@ -43,7 +43,10 @@ def default_candidates(base_ratios, base_sigma, free_names=()):
     base = tuple(base_ratios)
     sig = dict(zip(base, np.broadcast_to(np.asarray(base_sigma, float), (len(base),))))
     out = {"baseline": (base, sig, 1)}
-    for add in (("H2/H2O",), ("CO/CO2",), ("H2/H2O", "CO/CO2")):
+    adds = [("H2/H2O",), ("CO/CO2",), ("H2/H2O", "CO/CO2")]
+    if not _sulfur_total_known(base):
+        adds.append(("CO2/ST",))
+    for add in adds:
         new = tuple(r for r in add if r not in base)
         if new:
             out["add " + " and ".join(new)] = (base + new, dict(sig, **{r: 0.15 for r in new}), 1, {})
@@ -53,6 +56,27 @@ def default_candidates(base_ratios, base_sigma, free_names=()):
     if all(n in free_names for n in MELT_INCLUSION_SD):
         out["melt inclusions: S +-150 ppm, dFMQ +-0.15"] = (base, sig, 1, dict(MELT_INCLUSION_SD))
     return out
+
+
+def _sulfur_total_known(ratio_names):
+    """True when the ratios already fix CO2/ST (= 1 / (SO2/CO2 + H2S/CO2)): CO2/ST itself,
+    ST/CO2, or SO2/CO2 with H2S/SO2 or H2S/CO2. A ratio the others fix adds nothing."""
+    have = set(ratio_names)
+    if have & {"CO2/ST", "ST/CO2"}:
+        return True
+    return "SO2/CO2" in have and bool(have & {"H2S/SO2", "H2S/CO2", "SO2/H2S"})
+
+
+def _invert_row_measurement(spec, measurement, seed, n_particles, n_runs=2):
+    """One row of the user's data inverted (None when it cannot be)."""
+    import warnings
+    from ventsource.inference.row.one_measurement import InferenceError, infer
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", category=UserWarning)
+        try:
+            return infer(measurement, spec, seed=seed, n_particles=int(n_particles), n_runs=int(n_runs))
+        except InferenceError:
+            return None
 
 
 def narrowed_prior(spec, constraints, truth_full, z):
@@ -129,15 +153,19 @@ def _metrics(result, is_m0, pi0):
             "contraction_scrubbed": info["contraction"].get("scrubbed_so2", np.nan)}
 
 
-def run_plan(spec, candidates, n_sim=20, seed=0, n_particles=300, n_runs=2, progress=None):
+def run_plan(spec, candidates, n_sim=20, seed=0, n_particles=300, n_runs=2, progress=None,
+             truths=None):
     """Per simulated data set and candidate, the metrics (a DataFrame in long form:
     candidate, sim, is_m0 and METRICS). Same truths, noise and inversion seeds for every
-    candidate; every random step seeded from `seed`."""
+    candidate; every random step seeded from `seed`. truths: None (drawn from the prior)
+    or a function (ratio names, n, seed) -> (theta_full, is_m0, true ratios), e.g. the
+    posterior of the user's data (workflow/plan_posterior.py)."""
     import pandas as pd
     from ventsource.inference.likelihood import sigma_ln
     pi0 = float(getattr(spec, "p_magmatic", 0.5))
     all_ratios = tuple(dict.fromkeys(r for c in candidates.values() for r in c[0]))
-    truth, is_m0, true = simulate_truths(spec, all_ratios, n_sim, pi0, seed)
+    truth, is_m0, true = (simulate_truths(spec, all_ratios, n_sim, pi0, seed) if truths is None
+                          else truths(all_ratios, n_sim, seed))
     z = np.random.default_rng([int(seed), 0x2015E]).standard_normal(true.shape)
     z_mi = np.random.default_rng([int(seed), 0x3E1]).standard_normal((n_sim, len(MELT_INCLUSION_SD) + 4))
     inv_seeds = np.random.SeedSequence([int(seed), 0x1A7]).generate_state(n_sim)
@@ -185,7 +213,8 @@ def summarise_plan(long):
     return table
 
 
-PLAN_NOTE = ("Preposterior comparison: for each candidate the same simulated truths (prior draws) "
+PLAN_NOTE = ("Preposterior comparison: for each candidate the same simulated truths (prior draws, or "
+             "with --data posterior draws of the data's rows; column truths_from) "
              "are measured and inverted; means over the simulated data sets with their Monte Carlo "
              "errors (sd/sqrt(n)); *_minus_baseline: paired difference from the baseline. Ranked by "
              "expected Brier score of P(M0) (lower is better). Two candidates whose difference is "
@@ -216,5 +245,7 @@ def plan_text(table):
                      f"{r.get('brier_minus_baseline_error', np.nan):.3f} "
                      f"{r['width90_scrubbed_mean']:6.2f} +- {r['width90_scrubbed_mc_error']:.2f} "
                      f"{r['width90_pressure_mean']:8.0f} +- {r['width90_pressure_mc_error']:.0f}")
+    if "truths_from" in table:
+        lines += ["", f"Truths drawn from the {table['truths_from'].iloc[0]}."]
     lines += ["", PLAN_NOTE, "Caution: " + CAUTION]
     return "\n".join(lines)
