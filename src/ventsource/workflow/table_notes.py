@@ -85,7 +85,7 @@ def information_notes(rows, reference=None):
              f"- rows flagged near_prior (P(M0) or the scrubbed fraction barely moved from the "
              f"prior): {len(near)} of {len(told)}" + (f" ({', '.join(near[:10])}"
                                                     f"{' ...' if len(near) > 10 else ''})" if near else "")]
-    from ventsource.workflow.shift_reference import reference_words, row_shift_ratio
+    from ventsource.workflow.shift_words import reference_words, row_shift_ratio
     words = reference_words(reference)
     lines.append("- " + (words or "how far data usually move P(M0): not run (ventsource run "
                                    "--shift-reference 16 simulates it from the prior)"))
