@@ -191,3 +191,26 @@ def test_truths_from_the_data_sit_near_the_data():
     _, _, prior = simulate_truths(spec, ("SO2/CO2",), 12, 0.5, seed=2)
     assert np.median(np.abs(np.log(post[:, 0]) - observed)) < 0.5 * np.median(
         np.abs(np.log(prior[:, 0]) - observed))
+
+
+def test_rows_per_window_candidate_inverts_the_rows_together(tmp_path):
+    """--window-rows 3: three noisy copies of each simulated gas inverted by the window
+    model; its scores are probabilities and widths inside the prior's range (the
+    scrubbed fraction lives in [0, 1]; common practice, no source)."""
+    table = tmp_path / "plan.csv"
+    assert main(["plan", "demo_mount_kerrow_fast", "--table", str(table), "-n", "2",
+                 "--particles", "60", "--window-rows", "3"]) == 0
+    t = pd.read_csv(table).set_index("candidate")
+    row = t.loc["3 rows per window (window model)"]
+    assert row["n_simulated"] == 2
+    assert 0 <= row["brier_mean"] <= 1 and 0 < row["width90_scrubbed_mean"] <= 1
+    assert row["width90_pressure_mean"] > 0 and np.isnan(row["contraction_scrubbed_mean"])
+
+
+@pytest.mark.parametrize("extra", [["--window-rows", "1"], ["--window-rows", "9"],
+                                   ["--truths-from-prior"]])
+def test_plan_new_options_refuse_bad_values(tmp_path, capsys, extra):
+    assert main(["plan", "demo_mount_kerrow_fast", "--table", str(tmp_path / "p.csv"), *extra]) == 2
+    err = [e for e in capsys.readouterr().err.splitlines() if e.strip()]
+    assert len([e for e in err if e.startswith("error") or "plan:" in e]) == 1
+    assert not (tmp_path / "p.csv").exists()

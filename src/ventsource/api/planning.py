@@ -2,7 +2,7 @@
 
 
 def plan(prior, ratios=("SO2/CO2", "H2S/SO2", "H2O/CO2"), sigma=0.15, n=20, seed=0,
-         n_particles=300, candidates=None, data=None, truths_from_prior=False):
+         n_particles=300, candidates=None, data=None, truths_from_prior=False, window_rows=0):
     """Preposterior comparison of candidate measurements, ranked by expected Brier score.
 
     Truths are drawn from ``prior`` (purely magmatic with probability pi0), measured
@@ -18,7 +18,9 @@ def plan(prior, ratios=("SO2/CO2", "H2S/SO2", "H2O/CO2"), sigma=0.15, n=20, seed
     ``data`` (a measurement CSV or MeasurementSeries): its ratios and median errors
     replace ``ratios`` and ``sigma``, and the truths are drawn from the posteriors of up
     to 8 of its rows (what the data already say) unless ``truths_from_prior``. Adding
-    CO2/ST is a candidate only when the ratios do not already fix it. Estimates are
+    CO2/ST is a candidate only when the ratios do not already fix it. ``window_rows`` k
+    (2-8) also scores k rows of the gas inverted together by the window model (about
+    20 CPU-s per data set). Estimates are
     model- and prior-dependent and support, never replace, the observatory's own planning.
 
     >>> import ventsource as vs
@@ -48,7 +50,7 @@ def plan(prior, ratios=("SO2/CO2", "H2S/SO2", "H2O/CO2"), sigma=0.15, n=20, seed
             def truths(ratio_names, n_sim, s):
                 return posterior_truths(spec, series, ratio_names, n_sim, s, n_particles)
     cands = (candidates if candidates is not None
-             else default_candidates(tuple(ratios), sigma, spec.free_names))
+             else default_candidates(tuple(ratios), sigma, spec.free_names, window_rows))
     table = summarise_plan(run_plan(spec, cands, n_sim=n, seed=seed, n_particles=n_particles,
                                     truths=truths))
     table["truths_from"] = "prior" if truths is None else "posterior of the data"

@@ -24,6 +24,9 @@ def add_parser(sub):
     p.add_argument("-n", type=int, default=40, help="simulated data sets per candidate (default 40)")
     p.add_argument("--particles", type=int, default=300,
                    help="SMC particles per run of each inversion (default 300, 2 runs)")
+    p.add_argument("--window-rows", type=int, default=0, metavar="K",
+                   help="also score K rows (2-8) of the gas inverted together by the window model "
+                        "(about 20 CPU-s per data set; default 0: not scored)")
     p.add_argument("--seed", type=int, default=0, help="seed of the truths, noise and inversions")
     p.add_argument("--table", metavar="FILE", required=True,
                    help="CSV of the ranked candidates (FILE.README.txt with the caution beside it)")
@@ -51,6 +54,8 @@ def cmd_plan(args):
                                           write_plan)
     if args.n < 2:
         raise InputError("plan: -n must be at least 2 (a Monte Carlo error needs two data sets)")
+    if args.window_rows and not 2 <= args.window_rows <= 8:
+        raise InputError(f"plan: --window-rows {args.window_rows} must be 0 (not scored) or 2 to 8")
     if args.particles < 50:
         raise InputError("plan: --particles must be at least 50")
     if not 0 < args.sigma < 10:
@@ -65,7 +70,7 @@ def cmd_plan(args):
         raise InputError("plan: --truths-from-prior goes with --data (a scenario's truths are the prior's)")
     names, sigma, series = _scenario(args)
     announce_compilation()
-    candidates = default_candidates(names, sigma, spec.free_names)
+    candidates = default_candidates(names, sigma, spec.free_names, args.window_rows)
     total = len(candidates) * args.n
     done = [0]
 
