@@ -9,7 +9,7 @@ from ventsource.workflow.run_folder import file_sha256
 
 # top-down order of hazard.json (keys not named here follow at the end)
 KEY_ORDER = ("what", "caution", "synthetic", "hypotheses", "prior_model_probabilities", "pi0",
-             "rounding", "prior_sensitivity", "windows", "rows", "sulfur_budget", "flag_glossary",
+             "rounding", "prior_sensitivity", "p_magmatic_shift_reference", "windows", "rows", "sulfur_budget", "flag_glossary",
              "field_glossary", "note")
 
 

@@ -42,6 +42,9 @@ FIELD_GLOSSARY = {
     "flags": "warnings on a row; their meanings are in flag_glossary",
     "p_magmatic_shift": "how far the data moved P(M0) from its prior value (posterior minus prior); "
                         "near 0 means the prior, not the data, sets P(M0) (flag near_prior)",
+    "p_magmatic_shift_reference": "how far data simulated from the prior (one row each, the run's "
+                                  "ratios and errors) move P(M0): its spread and mean |shift| with "
+                                  "Monte Carlo errors; the yardstick for each row's p_magmatic_shift",
     "unresolved_direction": "the combination of parameters the data resolved least (leading axis of "
                             "the posterior correlation in prior-sd units), in words",
     "read_no_number": "present on an unexplained row: none of its numbers should be read",

@@ -30,6 +30,7 @@ from ventsource.common.errors import InputError
 from ventsource.workflow.hazard_export import hazard_document
 from ventsource.workflow.hypothesis_rows import add_budget, extend_hazard, extra_columns
 from ventsource.workflow.output_guard import refuse_foreign_run_folder
+from ventsource.workflow.shift_reference import checked_count
 from ventsource.workflow.row_jobs import (Progress, RowJobs, _invert_row, _run_rows, _time_text, row_seed,
                                          worker_count)
 from ventsource.workflow.run_folder import (HAZARD_NAME, LOCK_NAME, RECORDED_SETTINGS, RUNNING_NAME,
@@ -64,12 +65,14 @@ def summary_columns(free_names, ratio_names):
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
                oversubscribe=False, window=None, synthetic_data=False, progress_label="",
-               budget_max_gap_days=None):
+               budget_max_gap_days=None, shift_reference=0):
     """Invert every row; returns the list of summary rows in file order.
 
     window: None (the file's window column if it has one, else row by row), "rows",
     "column" or a time span in seconds (see ventsource.workflow.windows).
     budget_max_gap_days: longest interval the sulfur budget bridges (flux columns only).
+    shift_reference: data sets simulated from the prior to say how far data usually move
+    P(M0) (workflow/shift_reference.py; 0: not run).
 
     workers: local processes (or LocalCluster workers with dask_local), at most one per
     row to invert and, unless oversubscribe, one per core; dask_scheduler: address of a
@@ -85,7 +88,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
-              "budget_max_gap_days": budget_max_gap_days}
+              "budget_max_gap_days": budget_max_gap_days, "shift_reference": checked_count(shift_reference)}
     groups = assign_windows(series, window)  # checked before anything is written
     if groups is not None and (options or {}).get("engine") == "emcee":
         raise InputError("--engine emcee inverts row by row; windows (--window or the file's window "
@@ -207,7 +210,10 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                              synthetic_data=extras.get("synthetic_data", False))
     from ventsource.workflow.hazard_export import ordered
     from ventsource.workflow.run_folder import write_text_json
-    hazard = ordered(extend_hazard(hazard, rows, series, gap_days))
+    from ventsource.workflow.shift_reference import reference_entry, run_reference
+    ref = run_reference(out_dir, spec, series, settings, extras.get("shift_reference", 0))
+    hazard = ordered(dict(extend_hazard(hazard, rows, series, gap_days),
+                          p_magmatic_shift_reference=reference_entry(ref)))
     write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import information_notes, write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
@@ -215,7 +221,7 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                                  "report.html": "the run on one page for a panel (figures included; "
                                                 "open in any browser, no network needed)"},
                        synthetic=hazard["synthetic"], flags=list(hazard["flag_glossary"]),
-                       notes=information_notes(rows))
+                       notes=information_notes(rows, ref))
     from ventsource.workflow.report_html import write_report
     write_report(out_dir)  # drawn again with the figures by the commands that draw them
     return rows

@@ -72,7 +72,7 @@ def _flag_meanings(flags):
 MAX_NOTED_ROWS = 20
 
 
-def information_notes(rows):
+def information_notes(rows, reference=None):
     """README lines on how much the data said: rows flagged near_prior and, per row (the
     first MAX_NOTED_ROWS), the shift of P(M0) from its prior and the direction the data
     resolved least (summary.csv columns p_magmatic_shift, *_contraction, unresolved_direction)."""
@@ -85,9 +85,15 @@ def information_notes(rows):
              f"- rows flagged near_prior (P(M0) or the scrubbed fraction barely moved from the "
              f"prior): {len(near)} of {len(told)}" + (f" ({', '.join(near[:10])}"
                                                     f"{' ...' if len(near) > 10 else ''})" if near else "")]
+    from ventsource.workflow.shift_words import reference_words, row_shift_ratio
+    words = reference_words(reference)
+    lines.append("- " + (words or "how far data usually move P(M0): not run (ventsource run "
+                                   "--shift-reference 16 simulates it from the prior)"))
     for r in told[:MAX_NOTED_ROWS]:
         shift = r.get("p_magmatic_shift")
-        moved = "" if shift is None else f"P(M0) moved {shift:+.3f} from its prior; "
+        ratio = row_shift_ratio(shift, reference)
+        moved = "" if shift is None else (f"P(M0) moved {shift:+.3f} from its prior"
+                                          + ("" if ratio is None else f" ({ratio:.2f} x the usual)") + "; ")
         lines.append(f"- {r['id']}: {moved}least resolved: {r['unresolved_direction']}")
     if len(told) > MAX_NOTED_ROWS:
         lines.append(f"- ... {len(told) - MAX_NOTED_ROWS} more rows in summary.csv")
