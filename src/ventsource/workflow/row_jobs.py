@@ -151,35 +151,40 @@ def _dask_client(scheduler, local_workers):
     return Client(cluster), cluster
 
 
+PROGRESS_CLOCK = time.monotonic   # the bar's seconds (a test replaces it by a count of work)
+
+
 class Progress:
     """One-line progress bar with an estimate of the time left (from this session's rate).
 
-    work: None (every job one row of equal cost), or {window label: its row count} of the
-    windows still to invert; a window then advances the bar by its rows as its inversion
-    goes (partial(), from the sampler's stages), and the time left is estimated from the
-    windows' costs (window_cost), not from their rows. clock: seconds (tests pass their own)."""
+    work: None (every job one row of equal cost), or {window label: (its row count, its
+    relative cost)} of the windows still to invert (inference/window/progress.py
+    expected_cost); a window then advances the bar by its rows as its inversion goes
+    (partial(), from the sampler's stages), and the time left is estimated from the
+    windows' costs, not from their rows. clock: seconds (default PROGRESS_CLOCK)."""
 
-    def __init__(self, total, already, stream=None, width=28, label="", work=None, clock=time.monotonic):
+    def __init__(self, total, already, stream=None, width=28, label="", work=None, clock=None):
         self.total, self.done, self.start_done = total, already, already
         self.label = f"{label}: " if label else ""
         self.stream = stream if stream is not None else sys.stderr
         self.width = width
-        self.clock = clock
-        self.t0 = clock()
+        self.clock = clock or PROGRESS_CLOCK
+        self.t0 = self.clock()
         self.tty = getattr(self.stream, "isatty", lambda: False)()
         self.work = dict(work or {})
-        self.total_cost = sum(window_cost(n) for n in self.work.values())
-        self.finished_cost, self.in_flight, self.closed = 0.0, {}, set()
+        self.total_cost = sum(cost for _, cost in self.work.values())
+        self.finished_cost, self.in_flight, self.closed, self.recorded = 0.0, {}, set(), {}
 
     def _rows_in_flight(self):
-        return sum(int(f * n) for n, f in self.in_flight.values())
+        """Rows' worth done in the windows in flight, less their rows already recorded."""
+        return sum(max(int(f * n) - self.recorded.get(k, 0), 0) for k, (n, f) in self.in_flight.items())
 
     def _left_s(self, elapsed):
         """Seconds left, or None before anything was done."""
         if not self.work:
             new = self.done - self.start_done
             return elapsed / new * (self.total - self.done) if new > 0 else None
-        done = self.finished_cost + sum(window_cost(n) * f for n, f in self.in_flight.values())
+        done = self.finished_cost + sum(self.work[k][1] * f for k, (_, f) in self.in_flight.items())
         return elapsed / done * (self.total_cost - done) if done > 0 else None
 
     def text(self, last=""):
@@ -207,11 +212,14 @@ class Progress:
             self.show(f"window '{label}' {int(fraction * n_rows)} of {n_rows} rows' work")
 
     def update(self, last="", window=None):
+        """One row recorded (window: its window's label, whose cost counts once all its rows are)."""
         self.done += 1
         if window is not None and window in self.work and window not in self.closed:
-            self.closed.add(window)
-            self.in_flight.pop(window, None)
-            self.finished_cost += window_cost(self.work[window])
+            self.recorded[window] = self.recorded.get(window, 0) + 1
+            if self.recorded[window] >= self.work[window][0]:
+                self.closed.add(window)
+                self.in_flight.pop(window, None)
+                self.finished_cost += self.work[window][1]
         self.show(last)
 
     def show(self, last=""):
@@ -223,18 +231,6 @@ class Progress:
         else:
             self.stream.write(line + "\n")
         self.stream.flush()
-
-
-# Cost of a window of n rows, relative: its shared draws cost the same whatever the rows
-# (48 solves per draw) and each row adds cheap compiled work. From the window bench in
-# DEVELOPERS.md (6 -> 24 rows: 21.5 -> 31.0 CPU-s, x1.44): cost ~ 35 + n. A window of
-# fewer than 4 rows runs no change-of-source check (about 38 % of a window's time,
-# inference/window/progress.py).
-WINDOW_FIXED_COST, UNCHECKED_SHARE = 35.0, 0.62
-
-
-def window_cost(n_rows):
-    return (WINDOW_FIXED_COST + n_rows) * (1.0 if n_rows >= 4 else UNCHECKED_SHARE)
 
 
 _PROGRESS_SINK = None   # this process: bar.partial (one worker) or a queue to the parent

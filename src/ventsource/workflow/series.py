@@ -153,7 +153,7 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
     work, todo = _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir)
     bar = Progress(len(series.ids), len(done), stream=progress_stream, label=extras.get("progress_label", ""),
-                   work=None if groups is None else {job[2]: len(job[3]) for job in todo})
+                   work=None if groups is None else window_work(todo))
     for line in short_window_lines(groups, series.ids):  # also in README.txt and the flag summary
         bar.stream.write(f"warning: {line}\n")
     if failed:
@@ -166,6 +166,12 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     from ventsource.workflow.run_summary import flag_summary
     bar.stream.write("\n".join(flag_summary(rows)) + "\n")
     return rows
+
+
+def window_work(todo):
+    """{label: (rows, relative cost)} of the window jobs still to invert (for the progress bar)."""
+    from ventsource.inference.window.sampling import expected_cost
+    return {job[2]: (len(job[3]), expected_cost(len(job[3]), job[7])) for job in todo}
 
 
 def _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir):

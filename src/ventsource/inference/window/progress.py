@@ -15,11 +15,28 @@ from __future__ import annotations
 
 import numpy as np
 
-# Shares of a window's CPU time. Measured on the demo prior (fast variant), 8 and 12 rows,
-# 200 particles x 4 runs: the main run 55-60 %, the per-row results and the one-source
-# check 3-5 %, the change-of-source check 35-40 % (docs/running.md, "Progress").
-MAIN_SHARE, ROWS_SHARE, CHECK_SHARE = 0.58, 0.04, 0.38
 FIRST_STAGE_GUESS = 10.0     # stages left assumed after the first one (no ladder yet)
+# Cost of one SMC run, relative: particles x runs x forward solves per draw x (1 + ln rows).
+# The stages grow with the information the rows carry about the shared magma, which for d
+# shared parameters grows as (d/2) ln n (Schwarz 1978, Ann. Stat. 6:461; from memory).
+# CHECK_FACTOR: the check's smaller runs (24 solves, fewer stages) per unit. Measured on
+# the demo prior (fast variant) with the forward-model states solved as the clock: 40 x 2
+# particles, windows of 1, 3, 4 rows: 50, 118, 493 (the 4-row window's check 76 %); 200
+# x 4, 8 rows: check 28 % of the CPU time. 1 + ln n fits 1 -> 3 rows (2.1 against 2.4) and
+# the window bench's 6 -> 24 rows (1.50 against 1.44, DEVELOPERS.md).
+CHECK_FACTOR = 0.44
+
+
+def _run_cost(n_particles, n_runs, n_rows):
+    return n_particles * n_runs * (1.0 + np.log(max(n_rows, 1)))
+
+
+def window_costs(n_rows, opt, check_rows):
+    """(main run, per-row results, [each check run]) relative costs of one window;
+    check_rows: rows of each SMC run of the change-of-source check, in order."""
+    main = _run_cost(opt["n_particles"], opt["n_runs"], n_rows)
+    checks = [CHECK_FACTOR * _run_cost(opt["split_particles"], opt["split_runs"], k) for k in check_rows]
+    return main, 0.05 * main, checks
 
 
 class StageFraction:
@@ -46,13 +63,14 @@ class StageFraction:
 class WindowProgress:
     """Calls report(fraction) as a window advances; fraction in [0, 1], never decreasing.
 
-    n_check_runs: SMC runs of the change-of-source check (0 when it does not run)."""
+    costs: window_costs(n_rows, options): the main run, the per-row results, each check run."""
 
-    def __init__(self, report, n_check_runs):
-        self.report, self.n_check = report, int(n_check_runs)
-        scale = 1.0 if self.n_check else 1.0 / (MAIN_SHARE + ROWS_SHARE)
-        self.main, self.rows = MAIN_SHARE * scale, ROWS_SHARE * scale
-        self.check = CHECK_SHARE if self.n_check else 0.0
+    def __init__(self, report, costs):
+        main, rows, checks = costs
+        total = main + rows + sum(checks)
+        self.report = report
+        self.main, self.rows = main / total, rows / total
+        self.checks = [c / total for c in checks]
         self.done_checks, self.run = 0, StageFraction()
         self.last = 0.0
 
@@ -72,12 +90,13 @@ class WindowProgress:
 
     def check_stage(self, beta, stage=None):
         """Callback of each SMC run of the change-of-source check, in turn."""
+        k = min(self.done_checks, len(self.checks) - 1)
         f = self.run.update(beta)
-        k = self.done_checks + f
+        done = sum(self.checks[:k]) + self.checks[k] * f
         if f >= 1.0:
             self.done_checks += 1
             self.run = StageFraction()
-        self._emit(self.main + self.rows + self.check * min(k / max(self.n_check, 1), 1.0))
+        self._emit(self.main + self.rows + done)
 
     def finished(self):
         self._emit(1.0)

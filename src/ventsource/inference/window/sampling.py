@@ -38,7 +38,7 @@ from ventsource.inference.evidence.bridge import Transform, support_bounds
 from ventsource.inference.likelihood import Likelihood
 from ventsource.inference.hypotheses.model_choice import predictive_check
 from ventsource.inference.row.smc_measurement import model_averaged_quantiles
-from ventsource.inference.window.progress import WindowProgress
+from ventsource.inference.window.progress import WindowProgress, window_costs
 from ventsource.inference.window.target import So2FreeWindowTarget, WindowTarget
 from ventsource.chemistry.species import INDEX
 
@@ -145,8 +145,8 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
     target = WindowTarget(prior, forward, target_liks, pi0)
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(4)]
     split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
-    bar = WindowProgress(progress or (lambda f: None), 1 + 2 * len(split_points(len(measurements)))
-                         if split_ran else 0)
+    bar = WindowProgress(progress or (lambda f: None),
+                         window_costs(len(measurements), opt, check_run_rows(len(measurements), opt)))
     res = _run_smc(target, seeds[0], opt["n_particles"], opt["n_runs"], opt, bar.main_stage)
     rng = np.random.default_rng(seeds[1])
     rows = _row_results(target, res, measurements, rng, opt)
@@ -209,6 +209,21 @@ def _run_smc(target, seed, n_particles, n_runs, opt, on_stage=None):
                             ess_target=opt["ess_target"], max_moves=opt["max_moves"], on_stage=on_stage)
     except SMCError as exc:
         raise WindowError(f"window: {exc}") from None
+
+
+def check_run_rows(n_rows, opt):
+    """Rows of each SMC run of the change-of-source check, in the order they run ([] when
+    the check does not run)."""
+    if not (opt["split_check"] and n_rows >= opt["split_min_rows"]):
+        return []
+    return [n_rows] + [k for c in split_points(n_rows) for k in (c, n_rows - c)]
+
+
+def expected_cost(n_rows, options=None):
+    """Relative cost of a window of n_rows with these options (for progress bars only)."""
+    opt = dict(WINDOW_DEFAULTS, **{k: v for k, v in (options or {}).items() if k in WINDOW_DEFAULTS})
+    main, rows, checks = window_costs(n_rows, opt, check_run_rows(n_rows, opt))
+    return main + rows + sum(checks)
 
 
 def split_points(n_rows):
