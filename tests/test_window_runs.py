@@ -231,3 +231,35 @@ def test_two_workers_report_progress_inside_windows_and_give_the_same_numbers(wi
             assert np.allclose(one[c], two[c], rtol=1e-9, atol=0, equal_nan=True), c
         else:
             assert one[c].tolist() == two[c].tolist(), c
+
+
+def _documented_columns():
+    """Regular expressions of the columns docs/outputs.md lists for summary.csv."""
+    text = open(os.path.join(ROOT, "docs", "outputs.md")).read()
+    section = text.split("## `summary.csv` columns")[1].split("\n## ")[0]
+    patterns = []
+    for line in section.splitlines():
+        if not line.startswith("| `"):
+            continue
+        previous = None
+        for name in re.findall(r"`([^`]+)`", line.split("|")[1]):
+            if name.startswith("..."):
+                name = previous + name[3:]
+            previous = name
+            rx = re.escape(name).replace("NAME", r"\w+").replace("RATIO", r"[^_]+")
+            rx = rx.replace(r"q05/median/q95", "(q05|median|q95)").replace(r"median/q05/q95", "(q05|median|q95)")
+            patterns.append(rx)
+    return patterns
+
+
+def test_every_column_is_documented_and_the_readme_agrees(window_run):
+    """Every column of both tables has its line in docs/outputs.md, and README.txt beside the
+    table names the window columns and the model-averaged / if-scrubbed convention."""
+    patterns = _documented_columns()
+    table = _table(window_run[0])
+    missing = [c for c in table.columns if not any(re.fullmatch(p, c) for p in patterns)]
+    assert not missing, missing
+    readme = open(os.path.join(window_run[0], "README.txt")).read()
+    for word in ("same columns", "NAME_avg_*", "NAME_if_scrubbed_*", "window_span_days", "source_check",
+                 "scrubbed_so2_if_scrubbed_*", "NAME_rhat"):
+        assert word in readme, word
