@@ -20,8 +20,20 @@ GLOSSARY = [
     "p_scrubbed_below_epsilon (summary.csv; in hazard.json "
     "p_scrubbed_below_epsilon_if_scrubbed): IF the SO2 was scrubbed (M1), the probability that "
     "less than epsilon of it was removed. It is conditional on M1: do not compare it with P(M0).",
+    "summary.csv has the same columns, with the same meanings, in row-by-row and window runs; "
+    "a column that does not apply is empty (docs/outputs.md lists every column).",
     "scrubbed_so2_avg_*: fraction of the magmatic SO2 removed, averaged over the hypotheses "
-    "(5 %, 50 %, 95 % quantiles).",
+    "(5 %, 50 %, 95 % quantiles). scrubbed_so2_if_scrubbed_*: the same IF scrubbed (M1 only), "
+    "a conditional quantity.",
+    "NAME_avg_*: a parameter averaged over the hypotheses (in a window: the magma's shared "
+    "posterior, repeated on each of its rows; pressure per row); NAME_if_scrubbed_*: under M1 "
+    "(row by row every parameter, in a window the pressure); NAME_rhat, NAME_ess_bulk: "
+    "agreement of the sampler runs and effective draws (a window: its shared parameters); "
+    "units: pressure_bar bar, temperature_c C, dfmq log units, *_ppm ppm by mass.",
+    "window, window_first_time, window_last_time, window_span_days (days from the first to the "
+    "last row), window_n_rows: the window of the row (empty row by row). source_check: the "
+    "change-of-source check ran (run), was not run (not_run: fewer than 4 rows; one row runs no "
+    "source check) or failed.",
     "log10_bf_one_source, log10_bf_one_vs_split: log10 Bayes factors of one shared source in a "
     "window against each row with its own source / against a change of source inside it "
     "(below 0, resp. below -2: flag mixed_sources).",
