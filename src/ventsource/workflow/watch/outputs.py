@@ -9,7 +9,7 @@ from types import SimpleNamespace
 
 from ventsource.common.caution import CAUTION
 from ventsource.workflow.run_folder import HAZARD_NAME, SUMMARY_NAME, _atomic, _rewrite, write_text_json
-from ventsource.workflow.windows import window_summary_columns
+from ventsource.workflow.summary_columns import summary_columns
 
 ANSWERS_NAME = "answers.csv"
 ANSWER_COLUMNS = ["id", "time", "line", "window", "window_rows_before", "p_magmatic_on_arrival",
@@ -26,7 +26,7 @@ def write_tables(out_dir, ctx, rows, skipped, ratio_names):
     """summary.csv and hazard.json of every row taken so far."""
     from ventsource.workflow.hazard_export import hazard_document, ordered
     from ventsource.workflow.hypothesis_rows import extend_hazard
-    cols = window_summary_columns(ratio_names) + ["line"]
+    cols = summary_columns(ctx.spec.free_names, ratio_names) + ["line"]
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)
     series = SimpleNamespace(path=ctx.data, fluxes=None, default_sigma=ctx.sigma)
     doc = hazard_document(series, ctx.spec, ctx.prior_path, rows, ctx.seed, {}, LIVE_NOTE, sigma=ctx.sigma,

@@ -302,16 +302,20 @@ class Watcher:
     def _summarise(self):
         """The window's rows summarised from its population; tables and report rewritten."""
         from ventsource.inference.window.sequential_result import window_result
-        from ventsource.workflow.windows import window_row_summary
+        from ventsource.workflow.windows import _window_fields, window_row_summary
         c, st = self.ctx, self.state
         meas = [r.measurement for r in self.window_rows]
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             res = window_result(self.pop, c.spec, self.forward, meas, self._likelihoods(meas), c.pi0, c.seed,
                                 self._checks())
+        if not np.isfinite(res.log10_bf_split):
+            res.source_check = "not_run"   # the check runs at 8, 16, 32 ... rows of a window
+        times = [_time_text(r.time_s) for r in self.window_rows]
+        shared = _window_fields(st["window"]["label"], times, res, c.spec)
         summaries = []
-        for r, rr in zip(self.window_rows, res.rows):
-            s = window_row_summary(r.row_id, _time_text(r.time_s), st["window"]["label"], rr, res, c.seed)
+        for r, rr, t in zip(self.window_rows, res.rows, times):
+            s = window_row_summary(r.row_id, t, rr, res, c.seed, c.spec, shared)
             s.pop("budget_draws", None)
             s["line"] = r.line
             summaries.append(s)
