@@ -2,7 +2,8 @@
 import os
 
 from ventsource.cli.series_options import (_budget_gap, _check_series_args, _default_sigma,
-                                          _inference_options, _window_option, add_series_options)
+                                          _inference_options, _segment_option, _window_option,
+                                          add_series_options)
 from ventsource.cli.shared import _load_prior, announce_compilation, route_warnings
 from ventsource.common.errors import InputError
 
@@ -34,7 +35,8 @@ def cmd_run(args):
     announce_compilation()
     vs.run(series, args.prior, args.out, seed=args.seed, workers=args.workers, resume=args.resume,
            window=window, dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
-           oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args), **options)
+           oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args),
+           segments=_segment_option(args), **options)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures
