@@ -35,6 +35,12 @@ FIELD_GLOSSARY = {
                                    "quantiles",
     "window": "label of the group of rows that share one magmatic source (window runs only)",
     "windows": "each window: its time span, its rows and its Bayes factors",
+    "segments": "--window auto: the segments the data chose (rows sharing one magma source), the "
+                "prior on the number of changes, each segment's time span, rows, log10 odds of a "
+                "further change inside it and the probability of a change at its start",
+    "p_change_before": "--window auto: posterior probability that the magma source changed just "
+                       "before this row, the other changes found held fixed (not averaged over "
+                       "segmentations)",
     "log10_bf_one_source": "log10 Bayes factor of one shared source against independent sources "
                            "for the rows of the window, each row with its own (below 0: flag mixed_sources)",
     "log10_bf_one_vs_split": "log10 Bayes factor of one source against a change of source inside "

@@ -9,9 +9,23 @@ import os
 
 import pandas as pd
 
-from ventsource.workflow.figures import INK, _footnote, _plt, _read_summary
+from ventsource.common.caution import CAUTION
+
+INK = "#1d3557"   # the series figure's ink (workflow/figures.py), not imported: figures calls us
 
 _SEGMENT_COLOURS = ("#1d3557", "#b5651d", "#2a7f62", "#6a3d7a", "#8d6e00", "#a23b3b")
+
+
+def _plt():
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt
+
+
+def _read_summary(summary_csv):
+    s = pd.read_csv(summary_csv, dtype={"id": str, "window": str}, keep_default_na=False, na_values=[""])
+    return s, pd.to_datetime(s["time"].str.rstrip("Z"))
 
 
 def segments_figure(summary_csv, title=""):
@@ -44,7 +58,7 @@ def segments_figure(summary_csv, title=""):
     fig.suptitle((title + "\n" if title else "") + "segments chosen by the data (--window auto): dashed "
                  "lines are the changes of source found; P(M0) of each row from its own segment",
                  fontsize=9)
-    _footnote(fig)
+    fig.text(0.01, 0.005, "Caution: " + CAUTION, fontsize=7, color="#333333", ha="left", va="bottom")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     return fig
 
