@@ -158,8 +158,12 @@ def change_probabilities(ev, starts, n, kind_value, m):
 
 
 def _fill(p, ev, a, b, n, k_other, kind_value, m, rows):
-    """Posterior of a change at each position in a..b-1 (or none), k_other changes fixed."""
-    cuts = _positions(a, b, m)
+    """Posterior of a change at each position in a..b-1 (or none), k_other changes fixed.
+
+    Long stretches: every position near a grid point within a factor 1e4 of the best
+    grid point is scored; positions farther off get 0 (below 1e-4 of the largest
+    neighbour, to the grid's resolution)."""
+    cuts = _scored_positions(ev, a, b, m)
     if not cuts:
         return
     lz = _scan(ev, a, b, cuts)
@@ -169,3 +173,16 @@ def _fill(p, ev, a, b, n, k_other, kind_value, m, rows):
     post = dict(zip(cuts, np.exp(log_one - total)))
     for i in rows:
         p[i] = post.get(i, 0.0)   # a position closer than m rows to an end has no prior mass
+
+
+def _scored_positions(ev, a, b, m):
+    every = _positions(a, b, m)
+    step = max(1, int(np.ceil(len(every) / GRID_POSITIONS))) if every else 1
+    if step == 1:
+        return every
+    grid = every[::step]
+    lz = _scan(ev, a, b, grid)
+    if not np.isfinite(lz).any():
+        return grid
+    keep = [g for g, v in zip(grid, lz) if v >= lz.max() - np.log(1e4)]
+    return sorted(set(grid) | {c for c in every if any(abs(c - g) < step for g in keep)})
