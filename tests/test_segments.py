@@ -154,8 +154,8 @@ def test_segment_evidence_does_not_depend_on_the_order_asked(tmp_path):
 
 
 def test_window_auto_run_finds_the_change_and_writes_its_outputs(tmp_path, monkeypatch):
-    """Fast but real: 10 rows from the package's forward model, a recharge (twice the CO2,
-    half the S) from row 5 on, demo prior; `--window auto` through run_series. The change
+    """Fast but real: 8 rows from the package's forward model, a recharge (twice the CO2,
+    half the S) from row 4 on, demo prior; `--window auto` through run_series. The change
     is found within 2 rows, each segment is inverted as a window, summary.csv carries the
     segment labels and p_change_before, segments.csv and hazard.json (validated against
     docs/hazard.schema.json) the segments; a resume does not choose again."""
@@ -166,15 +166,15 @@ def test_window_auto_run_finds_the_change_and_writes_its_outputs(tmp_path, monke
     from ventsource.workflow.measurements import read_measurements
     from ventsource.workflow.series import run_series
     spec = load_prior_file(FAST)
-    meas, _ = source_series(spec, ForwardModel(spec, ratio_names=NAMES), 10, change_at=(5,), seed=4)
+    meas, _ = source_series(spec, ForwardModel(spec, ratio_names=NAMES), 8, change_at=(4,), seed=4)
     data = write_csv(tmp_path / "d.csv", meas)
     out = tmp_path / "run"
-    opts = dict(n_particles=60, n_runs=2, split_particles=60, split_runs=2)
+    opts = dict(n_particles=60, n_runs=2)   # the evidences: the check's own size (100 x 2)
     kw = dict(seed=1, window="auto", options=opts, segments={"min_rows": 3}, progress_stream=io.StringIO())
     run_series(read_measurements(data), str(FAST), str(out), **kw)
     s = pd.read_csv(out / "summary.csv", dtype={"id": str})
     seg = pd.read_csv(out / "segments.csv")
-    assert len(seg) == 2 and abs(int(seg["n_rows"][0]) - 5) <= 2, seg
+    assert len(seg) == 2 and abs(int(seg["n_rows"][0]) - 4) <= 2, seg
     assert s["window"].tolist() == ["s01"] * int(seg["n_rows"][0]) + ["s02"] * int(seg["n_rows"][1])
     c = int(seg["n_rows"][0])
     assert np.isnan(s["p_change_before"][0]) and s["p_change_before"][c] > 0.5
