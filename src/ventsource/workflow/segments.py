@@ -70,7 +70,8 @@ def choose_segments(series, spec, out_dir, settings, stream=None):
                                     p_change_at_start=_finite(seg.p_change_before[s["start"]]))
                                for lab, s in zip(seg.labels, seg.segments)],
                   "p_change_before": {rid: _finite(p) for rid, p in zip(ids, seg.p_change_before)}}
-        _atomic(path, lambda part: _dump_json(part, _json_safe(record), None))
+        record = _json_safe(record)   # the same record whether made now or read on --resume
+        _atomic(path, lambda part: _dump_json(part, record, None))
         if stream is not None:
             stream.write(f"{len(record['segments'])} segment(s), {seg.diagnostics['n_segment_evidences']} "
                          f"segment evidences, {seg.diagnostics['cpu_s']:.0f} CPU-s\n")

@@ -37,7 +37,9 @@ def segments_figure(summary_csv, title=""):
     fig, (top, bottom) = plt.subplots(2, 1, figsize=(12, 5.2), sharex=True)
     p = pd.to_numeric(s["p_change_before"], errors="coerce")
     width = (times.diff().median() or pd.Timedelta(hours=1)) * 0.6
-    top.bar(times, p.fillna(0.0), width=width, color=INK, label="P(change of source just before the row)")
+    gap = times.diff()
+    between = times - gap.fillna(pd.Timedelta(0)) / 2   # a change before row i lies between i-1 and i
+    top.bar(between, p.fillna(0.0), width=width, color=INK, label="P(change of source between two rows)")
     top.set_ylim(0, 1.02)
     top.set_ylabel("P(change)")
     labels = s["window"].astype("string").fillna("").tolist()
