@@ -143,12 +143,24 @@ def write_segments_table(out_dir, record):
     _atomic(os.path.join(out_dir, SEGMENTS_CSV), write)
 
 
+def hazard_change_fields(row):
+    """p_change_before of a hazard.json row, by the house rounding rule (2 decimals without
+    an error, never exactly 0 or 1: workflow/hazard_format.py)."""
+    from ventsource.workflow.hazard_format import round_probability
+    return {"p_change_before": round_probability(row.get("p_change_before"), None)[0]}
+
+
 def hazard_segments(record):
-    """The `segments` entry of hazard.json."""
+    """The `segments` entry of hazard.json (probabilities and log10 odds rounded by the
+    house rule)."""
+    from ventsource.workflow.hazard_format import round_log10_bf, round_probability
+    rounded = [dict(s, p_change_at_start=round_probability(s.get("p_change_at_start"), None)[0],
+                    log10_odds_change_inside=round_log10_bf(s.get("log10_odds_change_inside")))
+               for s in record["segments"]]
     return {"how": "segments chosen by the data (--window auto): binary segmentation by Bayesian model "
                    "comparison of where the magma source changes; each segment scored by the window "
                    "model with every row's SO2 free (a change of scrubbing is not a change of source)",
             "change_prior": record["change_prior"], "min_rows": record["min_rows"],
             "caution": CAUTION,
             "segments": [{k: s.get(k) for k in TABLE_COLUMNS if k not in ("log_z", "log_z_error")}
-                         for s in record["segments"]]}
+                         for s in rounded]}

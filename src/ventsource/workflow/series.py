@@ -212,7 +212,8 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
     rows = add_budget(series, [done[i] for i in series.ids], settings["seed"], gap_days)
     segments = extras.get("segments")  # --window auto (workflow/segments.py)
     if segments is not None:
-        from ventsource.workflow.segments import add_change_probabilities, hazard_segments, write_segments_table
+        from ventsource.workflow.segments import (add_change_probabilities, hazard_change_fields,
+                                                  hazard_segments, write_segments_table)
         rows = add_change_probabilities(rows, segments)
         write_segments_table(out_dir, segments)
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
@@ -226,7 +227,7 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
     if segments is not None:
         hazard["segments"] = hazard_segments(segments)
         for out, row in zip(hazard["rows"], rows):
-            out["p_change_before"] = row.get("p_change_before")
+            out.update(hazard_change_fields(row))
     hazard = ordered(hazard)
     write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import information_notes, write_table_readme
