@@ -39,7 +39,7 @@ VERSION_IMPORT = "ventsource.__version__"
 SUBLAYERS = {
     "inference": {"priors": 0, "likelihood": 1, "option_rules": 1, "information": 1, "evidence": 2,
                   "engines": 3, "hypotheses": 4, "calibration_flag": 4, "sulfur_flags": 4, "row": 5,
-                  "window": 6},
+                  "window": 6, "segments": 7},
 }
 
 MAX_MODULE_LINES = 400

@@ -18,14 +18,16 @@ def _prior_path(prior):
 
 def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_sigma=0.15,
         figures=False, dask_scheduler=None, dask_local=False, oversubscribe=False,
-        budget_max_gap_days=None, shift_reference=0, **options):
+        budget_max_gap_days=None, shift_reference=0, segments=None, **options):
     """Invert every row of a measurement file into the folder ``out``; returns its
     summary.csv as a pandas DataFrame (one row per measurement, as ``ventsource run``
     writes it; columns: docs/outputs.md).
 
     ``data``: a measurement CSV or a MeasurementSeries (read_measurements); ``prior``: a
     file or a shipped name; ``window``: None (the file's window column if it has one,
-    else row by row), "rows", "column" or a span in seconds (rows sharing a source).
+    else row by row), "rows", "column", a span in seconds (rows sharing a source) or
+    "auto" (segments the data choose; ``segments``: {"min_rows": 4, "change_prior":
+    "geometric:0.5"} or "poisson:MEAN"; adds segments.csv and ``p_change_before``).
     The folder also gets hazard.json, rows/*.nc (each row's InferenceData) and run.json;
     ``resume=True`` keeps verified finished rows; ``figures=True`` draws the figures.
     ``dask_scheduler`` (an address) or ``dask_local`` spread the rows over Dask
@@ -58,7 +60,7 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     run_series(series, prior_path, out, seed=seed, workers=workers, resume=resume,
                options=options, dask_scheduler=dask_scheduler, dask_local=dask_local, window=window,
                oversubscribe=oversubscribe, budget_max_gap_days=budget_max_gap_days,
-               shift_reference=shift_reference)
+               shift_reference=shift_reference, segments=segments)
     if figures:
         from ventsource.workflow.figures import run_figures
         run_figures(out, series, load_prior(prior_path))

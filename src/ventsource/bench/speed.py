@@ -185,6 +185,8 @@ def run_benchmarks(quick=False, only=None):
         from ventsource.bench.window import bench_window
         from ventsource.inference.priors import load_prior_file
         bench_window(load_prior_file(_prior_path("arc_basalt")), quick=quick)
+        from ventsource.bench.segments import bench_segments  # --window auto
+        bench_segments(load_prior_file(_prior_path("arc_basalt")), quick=quick)
     if "watch" in sections:
         from ventsource.bench.watch import bench_watch
         from ventsource.inference.priors import load_prior_file

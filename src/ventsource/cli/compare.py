@@ -22,6 +22,9 @@ def cmd_compare(args):
     from ventsource.workflow.compare import run_compare
     from ventsource import read_measurements
     _check_series_args(args)
+    if args.min_segment_rows is not None or args.change_prior is not None:  # not passed on by compare
+        raise InputError("--min-segment-rows and --change-prior apply to ventsource run; compare's "
+                         "--window auto uses the defaults (4 rows, geometric:0.5)")
     if len(args.prior) < 2:
         raise InputError("compare: give at least two --prior files")
     specs = [_load_prior(p) for p in args.prior]

@@ -2,7 +2,8 @@
 import os
 
 from ventsource.cli.series_options import (_budget_gap, _check_series_args, _default_sigma,
-                                          _inference_options, _window_option, add_series_options)
+                                          _inference_options, _segment_option, _window_option,
+                                          add_series_options)
 from ventsource.cli.shared import _load_prior, announce_compilation, route_warnings
 from ventsource.common.errors import InputError
 
@@ -41,7 +42,7 @@ def cmd_run(args):
     vs.run(series, args.prior, args.out, seed=args.seed, workers=args.workers, resume=args.resume,
            window=window, dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
            oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args),
-           shift_reference=args.shift_reference, **options)
+           segments=_segment_option(args), shift_reference=args.shift_reference, **options)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures

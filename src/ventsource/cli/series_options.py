@@ -20,11 +20,17 @@ def add_series_options(p):
     p.add_argument("--resume", action="store_true", help="keep finished rows, invert the rest")
     p.add_argument("--seed", type=int, default=0,
                    help="run seed; each row's seed derives from it and the row id")
-    p.add_argument("--window", default=None, metavar="SPAN|1|column",
+    p.add_argument("--window", default=None, metavar="SPAN|1|column|auto",
                    help="rows that share one magma source: a time span such as 30d, 12h or 2w "
                         "(consecutive windows from the first row), 'column' (the file's window "
-                        "column), or 1 (every row alone); default: the file's window column if "
-                        "it has one, else 1")
+                        "column), 'auto' (segments the data choose: where the source changes, by "
+                        "Bayesian model comparison) or 1 (every row alone); default: the file's "
+                        "window column if it has one, else 1")
+    p.add_argument("--min-segment-rows", type=int, default=None, metavar="N",
+                   help="--window auto: fewest rows in a segment (default 4, at least 2)")
+    p.add_argument("--change-prior", default=None, metavar="geometric[:q]|poisson[:mean]",
+                   help="--window auto: prior on the number of source changes (default geometric:0.5, "
+                        "P(k) = (1 - q) q^k; poisson:MEAN gives a Poisson number)")
     p.add_argument("--engine", choices=["smc", "emcee"], default=None,
                    help="sampling engine for row-by-row inversion (default: smc)")
     p.add_argument("--budget-max-gap", type=float, default=None, metavar="DAYS",
@@ -78,11 +84,22 @@ def _window_option(args):
     return parse_window_option(args.window) if args.window is not None else None
 
 
+def _segment_option(args):
+    """{"min_rows", "change_prior"} of --window auto (checked), or None."""
+    given = {k: v for k, v in (("min_rows", getattr(args, "min_segment_rows", None)),
+                               ("change_prior", getattr(args, "change_prior", None))) if v is not None}
+    if given and _window_option(args) != "auto":
+        raise InputError("--min-segment-rows and --change-prior apply to --window auto only")
+    from ventsource.workflow.segments import segment_settings
+    return segment_settings(given) if _window_option(args) == "auto" else None
+
+
 def _check_series_args(args):
     """Cheap checks of options, before the data file is read."""
     if args.workers < 1:
         raise InputError("--workers must be at least 1")
     _window_option(args)
+    _segment_option(args)
     if getattr(args, "dask_local", False) or getattr(args, "dask_scheduler", None):
         try:
             import dask.distributed  # noqa: F401

@@ -396,4 +396,5 @@ def run_figures(out_dir, series, spec, corner_ids=(), truth_csv=None, title="", 
                                                 n=n_prior))
     if corner_ids:
         paths += plot_corner(out_dir, corner_ids, fig_dir, truth_csv=truth_csv)
-    return paths
+    from ventsource.workflow.segments_figure import plot_segments  # --window auto only
+    return paths + plot_segments(out_dir, fig_dir, title)

@@ -80,6 +80,9 @@ def window_setting(window, has_column):
         return {"option": "1", "mode": "row by row", "span_days": None}
     if window == "column" or window is None:
         return {"option": "column", "mode": "the measurement file's window column", "span_days": None}
+    if window == "auto":
+        return {"option": "auto", "mode": "segments the data choose (Bayesian change points)",
+                "span_days": None}
     seconds = float(window)
     unit, size = next((u, n) for u, n in _UNIT_S if seconds % n == 0 or n == 1)
     return {"option": f"{seconds / size:g}{unit}", "mode": "consecutive time spans from the first row",

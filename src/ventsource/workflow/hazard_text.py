@@ -43,6 +43,12 @@ FIELD_GLOSSARY = {
     "windows": "each window: first_time and last_time (its first and last row, UTC), span_days (days "
                "from the first to the last row), n_rows, rows, source_check (the change-of-source "
                "check: run, not_run for fewer than 4 rows, failed), its Bayes factors and flags",
+    "segments": "--window auto: the segments the data chose (rows sharing one magma source), the "
+                "prior on the number of changes, each segment's time span, rows, log10 odds of a "
+                "further change inside it and the probability of a change at its start",
+    "p_change_before": "--window auto: posterior probability that the magma source changed just "
+                       "before this row, the other changes found held fixed (not averaged over "
+                       "segmentations)",
     "log10_bf_one_source": "log10 Bayes factor of one shared source against independent sources "
                            "for the rows of the window, each row with its own (below 0: flag mixed_sources)",
     "log10_bf_one_vs_split": "log10 Bayes factor of one source against a change of source inside "

@@ -12,7 +12,7 @@ from ventsource.common.errors import InputError
 
 # What a series run writes at the top of its folder (workflow.series and its notes).
 RUN_FOLDER_NAMES = ("summary.csv", "summary.running.csv", "hazard.json", "README.txt",
-                    "compare.csv", "compare.png", "report.html")
+                    "compare.csv", "compare.png", "report.html", "segments.csv", "segments.json")
 
 
 def _same_file(a, b):

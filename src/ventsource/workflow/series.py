@@ -51,11 +51,12 @@ __all__ = ["run_series", "summary_columns", "hazard_document", "Progress", "row_
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
                oversubscribe=False, window=None, synthetic_data=False, progress_label="",
-               budget_max_gap_days=None, shift_reference=0):
+               budget_max_gap_days=None, shift_reference=0, segments=None):
     """Invert every row; returns the list of summary rows in file order.
 
     window: None (the file's window column if it has one, else row by row), "rows",
-    "column" or a time span in seconds (see ventsource.workflow.windows).
+    "column", a time span in seconds (see ventsource.workflow.windows) or "auto" (segments
+    the data choose, workflow/segments.py; segments: {"min_rows", "change_prior"}).
     budget_max_gap_days: longest interval the sulfur budget bridges (flux columns only).
     shift_reference: data sets simulated from the prior to say how far data usually move
     P(M0) (workflow/shift_reference.py; 0: not run).
@@ -73,6 +74,9 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     prior_sha = prior_content_sha256(prior_path)  # a comment changed is the same prior
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
+    if window == "auto":  # segments the data choose: their settings (workflow/segments.py)
+        from ventsource.workflow.segments import segment_settings
+        settings["segments"] = segment_settings(segments)
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
               "budget_max_gap_days": budget_max_gap_days, "shift_reference": checked_count(shift_reference)}
     groups = assign_windows(series, window)  # checked before anything is written
@@ -88,6 +92,9 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     with _FolderLock(out_dir):
         old = _earlier_run(out_dir, settings, resume, window_column)  # again, now that no other run can write
         try:
+            if window == "auto":  # --- segments the data choose (workflow/segments.py) ---
+                from ventsource.workflow.segments import choose_segments
+                groups, extras["segments"] = choose_segments(series, spec, out_dir, settings, progress_stream)
             return _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, resume,
                                workers, dask_scheduler, dask_local, progress_stream, model_note,
                                oversubscribe, groups, extras)
@@ -137,6 +144,9 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     else:
         done, failed = (read_done_windows(out_dir, groups, series.ids) if resume else {}), []
     cols = cols + extra_columns(spec, series)  # three hypotheses, sulfur budget: only when used
+    if extras.get("segments") is not None:  # --window auto
+        from ventsource.workflow.segments import SEGMENT_COLUMNS
+        cols = cols + list(SEGMENT_COLUMNS)
     todo_ids = [rid for rid in series.ids if rid not in done]
     summary_path, hazard_path = (os.path.join(out_dir, n) for n in (SUMMARY_NAME, HAZARD_NAME))
     if (old or {}).get("status") == "complete" and not todo_ids and os.path.exists(summary_path) \
@@ -196,6 +206,12 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
     """summary.csv, hazard.json and the tables' README.txt of a run whose rows are all done."""
     gap_days = extras.get("budget_max_gap_days")
     rows = add_budget(series, [done[i] for i in series.ids], settings["seed"], gap_days)
+    segments = extras.get("segments")  # --window auto (workflow/segments.py)
+    if segments is not None:
+        from ventsource.workflow.segments import (add_change_probabilities, hazard_change_fields,
+                                                  hazard_segments, write_segments_table)
+        rows = add_change_probabilities(rows, segments)
+        write_segments_table(out_dir, segments)
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
@@ -205,14 +221,21 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
     from ventsource.workflow.run_folder import write_text_json
     from ventsource.workflow.shift_reference import reference_entry, run_reference
     ref = run_reference(out_dir, spec, series, settings, extras.get("shift_reference", 0))
-    hazard = ordered(dict(extend_hazard(hazard, rows, series, gap_days),
-                          p_magmatic_shift_reference=reference_entry(ref)))
+    hazard = dict(extend_hazard(hazard, rows, series, gap_days), p_magmatic_shift_reference=reference_entry(ref))
+    if segments is not None:
+        hazard["segments"] = hazard_segments(segments)
+        for out, row in zip(hazard["rows"], rows):
+            out.update(hazard_change_fields(row))
+    hazard = ordered(hazard)
     write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import information_notes, write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
                                  HAZARD_NAME: "per-row probabilities with provenance and flag meanings",
                                  "report.html": "the run on one page for a panel (figures included; "
-                                                "open in any browser, no network needed)"},
+                                                "open in any browser, no network needed)",
+                                 **({"segments.csv": "one line per segment the data chose (--window auto): "
+                                                     "its rows, times, evidence, odds of a further change "
+                                                     "inside (see docs/outputs.md)"} if segments else {})},
                        synthetic=hazard["synthetic"], flags=list(hazard["flag_glossary"]),
                        notes=short_window_notes(rows) + information_notes(rows, ref))
     from ventsource.workflow.report_html import write_report

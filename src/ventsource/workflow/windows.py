@@ -30,12 +30,13 @@ def parse_window_option(text):
     s = str(text).strip()
     if s == "1":
         return "rows"
-    if s == "column":
-        return "column"
+    if s in ("column", "auto"):  # auto: segments the data choose (workflow/segments.py)
+        return s
     m = re.fullmatch(r"(\d+(?:\.\d+)?)\s*(s|min|h|d|w)", s)
     if not m or float(m.group(1)) <= 0:
         raise InputError(f"--window '{text}': give 1 (row by row), a time span such as 30d, 12h, "
-                         f"2w, or 'column' (the measurement file's window column)")
+                         f"2w, 'column' (the measurement file's window column) or 'auto' (segments "
+                         f"the data choose)")
     seconds = float(m.group(1)) * _UNITS_S[m.group(2)]
     if seconds < 1:  # row times have one-second resolution
         raise InputError(f"--window '{text}': a window spans at least 1 s (times are read to the second)")
@@ -46,6 +47,8 @@ def assign_windows(series, window):
     """Ordered list of (window label, [row indices]) or None for row-by-row."""
     if window == "rows" or (window is None and series.windows is None):
         return None
+    if window == "auto":  # chosen later by the data (workflow/segments.py), inside the run's lock
+        return []
     if window == "column" or (window is None and series.windows is not None):
         if series.windows is None:
             raise InputError(f"{series.path}: --window column needs a 'window' column in the file")
