@@ -45,7 +45,7 @@ def _reference_budget(s_ppm, dfmq):
     t_k = T_C + 273.15
     fe3 = iron_redox.fe3_fraction(ARC_BASALT, t_k, 1.0, log10_fo2_fmq(t_k, 1.0) + dfmq)
     x6 = sulfate_fraction_jugo2010(dfmq)
-    sulfide_cap = laws.scss_ppm(ARC_BASALT, t_k, 1.0) / (1 - x6)
+    sulfide_cap = laws.scss_ppm(ARC_BASALT, t_k, 1.0, H2O_WT) / (1 - x6)  # all H2O dissolved
     cap = min(sulfide_cap, laws.scas_ppm(t_k) / x6)
     assert s_ppm <= cap or cap == sulfide_cap  # the cases here hold no anhydrite
     dissolved = min(s_ppm, cap) * 1e-6 / 32.06
@@ -160,7 +160,7 @@ def _open_path_steps(s_ppm, dfmq, n_steps=20):
     the first batch removed) to 1 bar, stepped here from the compiled kernels (the calls
     open_path.py makes), keeping every removed gas so the balances can be summed in Python."""
     from ventsource.magma.degassing_context import (
-        _C_CSA, _C_CSB, _C_SCSS_A, CTX_SIZE, MG_SIZE, WORK_SIZE, _set_pressure)
+        _C_CSA, _C_CSB, _C_MDRY, _C_SCSS_A, _C_SCSS_W, CTX_SIZE, MG_SIZE, WORK_SIZE, _set_pressure)
     from ventsource.magma.open_path import _remove_gas
     from ventsource.magma.redox_balance import remove_gas_redox, solve_with_redox
     from ventsource.magma.saturation import saturation_pressure
@@ -169,7 +169,9 @@ def _open_path_steps(s_ppm, dfmq, n_steps=20):
     ctx, ln_k, ln_phi = np.empty(CTX_SIZE), np.empty(6), np.empty(10)
     z, x, mg, work = np.empty(4), np.empty(10), np.empty(MG_SIZE), np.empty(WORK_SIZE)
     ctx[_C_CSA], ctx[_C_CSB] = laws.sulfide_capacity_oneill2021(ARC_BASALT)
-    ctx[_C_SCSS_A:_C_SCSS_A + 5] = laws.prepare_sulfur_caps(ARC_BASALT)
+    caps = laws.prepare_sulfur_caps(ARC_BASALT)
+    ctx[_C_SCSS_A:_C_SCSS_A + 5] = caps[:5]
+    ctx[_C_SCSS_W], ctx[_C_MDRY] = caps[5:]
     redox_par = np.array([1.0, iron_redox.kc91_composition_term(ARC_BASALT),
                           validate_melt(ARC_BASALT)["FeOt"]])
     degassing._fill_bulk_context(ctx, T_C + 273.15, 1.0, dfmq, H2O_WT, CO2_PPM, s_ppm, np.nan,
@@ -237,7 +239,7 @@ def test_closed_path_with_anhydrite_conserves_electrons_and_sulfur():
     np.testing.assert_allclose(anhydrite[~with_phase], 0.0, atol=1e-9 * n_s)
     t_k = T_C + 273.15
     x6 = sulfate_fraction_jugo2010(dfmq)
-    cap0 = min(laws.scss_ppm(ARC_BASALT, t_k, 1.0) / (1 - x6), laws.scas_ppm(t_k) / x6)
+    cap0 = min(laws.scss_ppm(ARC_BASALT, t_k, 1.0, H2O_WT) / (1 - x6), laws.scas_ppm(t_k) / x6)
     fe3_0 = iron_redox.fe3_fraction(ARC_BASALT, t_k, 1.0, log10_fo2_fmq(t_k, 1.0) + dfmq)
     e0 = _n_fe(s_ppm) * fe3_0 + 8 * x6 * cap0 * 1e-6 / 32.06 + 8 * (n_s - cap0 * 1e-6 / 32.06)
     np.testing.assert_allclose(_budget(res, s_ppm, PRESSURES) + 8 * anhydrite, e0, rtol=1e-9)

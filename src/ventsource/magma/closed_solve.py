@@ -23,7 +23,7 @@ import math
 from ventsource.magma.closed_residuals import _evaluate
 from ventsource.magma.closed_start import G_START_MIN, _initial_guess
 from ventsource.magma.degassing_context import (
-    _W_JAC, _W_JACT, _W_ITER, _W_M, _W_MGT, _W_R, _W_RT, _W_STEP, _W_TRIAL, _W_XT, MG_SIZE,
+    _C_SK, _caps_at_water, _W_JAC, _W_JACT, _W_ITER, _W_M, _W_MGT, _W_R, _W_RT, _W_STEP, _W_TRIAL, _W_XT, MG_SIZE,
     STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, _kernel,
 )
 from ventsource.magma.newton_step import _solve_newton
@@ -134,6 +134,8 @@ def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work, refresh):
         converged = True
     if not converged:
         return STATUS_FAILED
+    if ctx[_C_SK] > 0.0:
+        _caps_at_water(ctx, 0.5 * mg[3])  # the cap in force is the final state's
     # normalise away the last 1e-12 of the sum
     s = 0.0
     for j in range(10):

@@ -34,7 +34,9 @@ from ventsource.magma.degassing_context import (
     _C_CAPKIND, _C_DFMQ, _C_DFMQ0, _C_E0, _C_KCC, _C_LNFO2, _C_LNRMAX, _C_NFE, _C_NS, _C_P,
     _C_REDOX, _C_SCAS_A, _C_SCAS_B, _C_SCSS_A, _C_SCSS_B, _C_SCSS_P, _C_SK, _C_T, _W_JACT, _W_M,
     _W_MGT, _W_RT, _W_STEP, _W_TRIAL, _W_XT, M_S, MG_SIZE,
-    MAX_SULFATE_FRACTION, STATUS_FAILED, STATUS_GAS, SULFUR_PHASE_ANHYDRITE, _kernel, _set_dfmq,
+    MAX_SULFATE_FRACTION, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_ANHYDRITE, _C_NH,
+    _kernel,
+    _set_dfmq, scss_water_term,
 )
 from ventsource.magma.newton_step import _solve_newton
 from ventsource.magma.iron_redox import KC_A, KC_B, KC_C, KC_E, KC_F, KC_G, KC_H, KC_T0
@@ -112,7 +114,9 @@ def set_redox_reference(ctx, n_fe, comp_term, evolving):
         to_mol = 1e-6 / M_S
         cap = math.inf
         if math.isfinite(ctx[_C_SCSS_A]):
-            cap = math.exp(ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P]) * to_mol / (1.0 - x6)
+            water, _d = scss_water_term(ctx, 0.5 * ctx[_C_NH])  # all the H2O dissolved
+            cap = (math.exp(ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P] + water) * to_mol
+                   / (1.0 - x6))
         scas = math.inf
         if math.isfinite(ctx[_C_SCAS_A]) and x6 > 0.0:
             scas = math.exp(ctx[_C_SCAS_A] + ctx[_C_SCAS_B] / t) * to_mol / x6
@@ -179,6 +183,15 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
     """Closed-system equilibrium at ctx's T and P; with evolving redox also the dFMQ
     (left in ctx) at which melt + gas hold the redox budget ctx[_C_E0]."""
     st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work)
+    if ctx[_C_REDOX] != 0.0 and st == STATUS_NO_GAS:
+        # Gas or not is decided at the melt's own dFMQ at this pressure (melt and sulfur
+        # phase holding the whole budget, gas_free_dfmq), not at the start value: near
+        # saturation the sulfur gas species tip the balance, and the start value depends
+        # on the caller (the saturation search starts from its last solve)
+        d_free = gas_free_dfmq(ctx, ln_k)
+        if not math.isfinite(d_free):
+            return STATUS_FAILED
+        st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
     if ctx[_C_REDOX] == 0.0 or st != STATUS_GAS:
         return st
     tol = REDOX_TOL * ctx[_C_NFE]
