@@ -18,7 +18,8 @@ import math
 import numpy as np
 
 from ventsource.magma.melt import (
-    CATIONS_PER_OXIDE, H2O_MOLAR_MASS_G_MOL, anhydrous_mole_fractions, cation_fractions, mean_molar_mass_g_mol,
+    CATIONS_PER_OXIDE, H2O_MOLAR_MASS_G_MOL, anhydrous_mole_fractions, cation_fractions,
+    mean_molar_mass_g_mol,
 )
 
 M_S_G_MOL = 32.06
@@ -45,7 +46,7 @@ ONEILL2021_CS = {"const": 8.77, "inv_t": -23590.0, "t_ref_k": 1673.0, "NaK": 6.7
 # through the melt's own H2O at each state (the kernels move the cap with it):
 # X_i = X_i,dry (1 - phi) with phi = X_H2O, so ln X_S = (dry law) - phi (sum_i k_i
 # X_i,dry + 3.049), and ppm = 1e6 X_S M_S / M_melt with the hydrous mean molar mass
-# (scss_water_term). With 3-5 wt% H2O in a basalt it lowers SCSS by ~35-45 %.
+# (scss_water_term). With 3-5 wt% H2O in a basalt it lowers SCSS by 13-21 % (MORB below).
 # Calibration (from memory): basaltic to andesitic melts, 1 bar to ~9 GPa,
 # 1200-1800 C; stated fit error about 20-30 % relative (from memory).
 LI_RIPLEY2009_SCSS = {"const": -1.76, "inv_t": -4740.0, "per_kbar": -0.021, "FeOt": 5.559,
