@@ -199,9 +199,18 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
     res = magma_electrons(ctx, z, x, mg) - ctx[_C_E0]
     d_prev = d
     res_prev = res
+    # E rises with dFMQ: the root stays bracketed by the iterates on either side. Where
+    # a sulfur phase appears or vanishes E(dFMQ) has a kink, and Newton steps from its
+    # two sides can cycle; a step leaving the bracket is replaced by its midpoint.
+    lo = -math.inf
+    hi = math.inf
     for it in range(MAX_REDOX_STEPS):
         if abs(res) <= tol:
             return STATUS_GAS
+        if res < 0.0:
+            lo = max(lo, d)
+        else:
+            hi = min(hi, d)
         slope = _implicit_slope(ctx, h_law, h_par, c_law, c_par, z, mg, work, ln_k,
                                 res + ctx[_C_E0])
         implicit = slope > 0.0
@@ -214,6 +223,9 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
                     slope = secant
         step = -res / slope
         step = max(-MAX_DFMQ_STEP, min(MAX_DFMQ_STEP, step))
+        if not (lo < d + step < hi) and math.isfinite(lo) and math.isfinite(hi):
+            step = 0.5 * (lo + hi) - d
+            implicit = False  # no predictor for a bisection step
         d_prev = d
         res_prev = res
         d = d + step
