@@ -36,8 +36,9 @@ summary = vs.run(series, "demo_mount_kerrow_fast", os.path.join(out, "run"), see
 # 3. posterior beside the truth
 truth = pd.read_csv(os.path.join(HERE, "mount_kerrow_truth.csv"), dtype={"id": str})
 both = summary.merge(truth[["id", "episode", "pressure_bar", "scrubbed_so2"]], on="id")
-print(both[["id", "episode", "p_magmatic", "p_magmatic_error", "scrubbed_so2", "scrubbed_so2_median",
-            "scrubbed_so2_q05", "scrubbed_so2_q95", "pressure_bar", "pressure_bar_median"]]
+print(both[["id", "episode", "p_magmatic", "p_magmatic_error", "scrubbed_so2", "scrubbed_so2_avg_median",
+            "scrubbed_so2_if_scrubbed_q05", "scrubbed_so2_if_scrubbed_median", "scrubbed_so2_if_scrubbed_q95",
+            "pressure_bar", "pressure_bar_avg_median"]]
       .to_string(index=False, float_format=lambda v: f"{v:.3g}"))
 
 # 4. figures

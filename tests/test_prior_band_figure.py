@@ -26,8 +26,8 @@ def test_series_figure_draws_prior_band_behind_posterior(tmp_path):
     times = ["2026-01-01T00:00:00Z", "2026-01-11T00:00:00Z"]
     d = {"id": ["a", "b"], "time": times, "p_magmatic": [0.8, 0.1], "p_magmatic_error": [0.01, 0.01],
          "flags": ["", ""], "scrubbed_so2_avg_q05": [0, 0.4], "scrubbed_so2_avg_median": [0, 0.6],
-         "scrubbed_so2_avg_q95": [0.1, 0.8], "pressure_bar_q05": [20, 30],
-         "pressure_bar_median": [50, 60], "pressure_bar_q95": [90, 100],
+         "scrubbed_so2_avg_q95": [0.1, 0.8], "pressure_bar_avg_q05": [20, 30],
+         "pressure_bar_avg_median": [50, 60], "pressure_bar_avg_q95": [90, 100],
          "pp SO2/CO2_q05": [0.5, 0.2], "pp SO2/CO2_median": [0.7, 0.3], "pp SO2/CO2_q95": [0.9, 0.4]}
     path = tmp_path / "summary.csv"
     pd.DataFrame(d).to_csv(path, index=False)

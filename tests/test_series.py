@@ -73,13 +73,16 @@ def test_finished_run_outputs(one_worker, data_file):
     s = numbers(one_worker)
     assert s["id"].tolist() == ["KRW-001", "KRW-004", "KRW-008"]
     for col in ("p_magmatic", "p_magmatic_error", "p_scrubbed_below_epsilon", "flags",
-                "pressure_bar_median", "pressure_bar_q05", "pressure_bar_q95", "pressure_bar_rhat",
+                "pressure_bar_if_scrubbed_median", "pressure_bar_if_scrubbed_q05", "pressure_bar_if_scrubbed_q95",
+                "pressure_bar_avg_median", "dfmq_avg_median", "pressure_bar_rhat",
                 "pressure_bar_ess_bulk", "pp SO2/CO2_q05", "pp SO2/CO2_q95"):
         assert col in s.columns, col
     p = s["p_magmatic"].astype(float)
     assert ((p > 0) & (p < 1)).all()
-    assert (s["pressure_bar_q05"].astype(float) <= s["pressure_bar_median"].astype(float)).all()
-    assert (s["pressure_bar_median"].astype(float) <= s["pressure_bar_q95"].astype(float)).all()
+    for tag in ("pressure_bar_if_scrubbed", "pressure_bar_avg", "dfmq_avg"):
+        assert (s[f"{tag}_q05"].astype(float) <= s[f"{tag}_median"].astype(float)).all()
+        assert (s[f"{tag}_median"].astype(float) <= s[f"{tag}_q95"].astype(float)).all()
+    assert (s["window"] == "").all() and (s["source_check"] == "").all()   # row by row: empty
     assert s["seed"].tolist() == [row_seed(5, i) for i in s["id"]]
     h = json.load(open(os.path.join(one_worker, "hazard.json")))
     assert h["caution"] == CAUTION

@@ -46,10 +46,13 @@ def infer_window(measurements, prior, seed=0, **options):
     ``measurements``: a sequence of Measurement, or a MeasurementSeries (all its rows).
     Only ``pressure_bar`` and the scrubbed fraction vary per row (or the prior's
     [window] per_row set); everything else is shared. ``options``: n_particles,
-    n_runs, split_check, ... (ventsource.inference.window.sampling.WINDOW_DEFAULTS).
+    n_runs, split_check, ... (ventsource.inference.window.sampling.WINDOW_DEFAULTS), and
+    ``progress``, a function called with the fraction done (0 to 1) as the window advances.
     Returns a WindowResult: ``summary()`` (one row per measurement, model-averaged;
     ``summary("M1")`` the scrubbed fraction if scrubbed), ``idata()`` (the shared
-    posterior), ``log10_bf_shared`` (one source against each row its own), ``flags``.
+    posterior), ``log10_bf_shared`` (one source against each row its own; NaN for one
+    row), ``source_check`` (the change-of-source check: "run", "not_run" below 4 rows or
+    with split_check=False, "failed"), ``flags``.
 
     >>> import ventsource as vs
     >>> rows = vs.read_measurements("examples/mount_kerrow_synthetic.csv").measurements[:3]

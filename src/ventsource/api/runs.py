@@ -18,7 +18,7 @@ def _prior_path(prior):
 
 def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_sigma=0.15,
         figures=False, dask_scheduler=None, dask_local=False, oversubscribe=False,
-        budget_max_gap_days=None, **options):
+        budget_max_gap_days=None, shift_reference=0, **options):
     """Invert every row of a measurement file into the folder ``out``; returns its
     summary.csv as a pandas DataFrame (one row per measurement, as ``ventsource run``
     writes it; columns: docs/outputs.md).
@@ -31,7 +31,9 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     ``dask_scheduler`` (an address) or ``dask_local`` spread the rows over Dask
     workers; ``oversubscribe`` allows more workers than cores;
     ``budget_max_gap_days``: longest interval the sulfur budget bridges (files with
-    flux columns). ``options``: options of infer (n_particles, engine, ...). Bad input raises
+    flux columns); ``shift_reference``: data sets simulated from the prior to learn how far
+    data usually move P(M0) (hazard.json's p_magmatic_shift_reference; 0: not run).
+    ``options``: options of infer (n_particles, engine, ...). Bad input raises
     InputError (a ValueError) with one line. Results are model- and prior-dependent and
     support, never replace, the responsible observatory's assessment.
 
@@ -55,7 +57,8 @@ def run(data, prior, out, seed=0, workers=1, resume=False, window=None, default_
     prior_path = _prior_path(prior)
     run_series(series, prior_path, out, seed=seed, workers=workers, resume=resume,
                options=options, dask_scheduler=dask_scheduler, dask_local=dask_local, window=window,
-               oversubscribe=oversubscribe, budget_max_gap_days=budget_max_gap_days)
+               oversubscribe=oversubscribe, budget_max_gap_days=budget_max_gap_days,
+               shift_reference=shift_reference)
     if figures:
         from ventsource.workflow.figures import run_figures
         run_figures(out, series, load_prior(prior_path))

@@ -160,7 +160,7 @@ def bench_open_style(model, spec, theta):
           f"{int((res.status == degassing.STATUS_FAILED).sum())} failed")
 
 
-SECTIONS = ("speciation", "forward", "inference", "window", "emcee", "series", "ratios", "reader")
+SECTIONS = ("speciation", "forward", "inference", "window", "watch", "emcee", "series", "ratios", "reader")
 
 
 def _prior_path(name):
@@ -185,6 +185,10 @@ def run_benchmarks(quick=False, only=None):
         from ventsource.bench.window import bench_window
         from ventsource.inference.priors import load_prior_file
         bench_window(load_prior_file(_prior_path("arc_basalt")), quick=quick)
+    if "watch" in sections:
+        from ventsource.bench.watch import bench_watch
+        from ventsource.inference.priors import load_prior_file
+        bench_watch(load_prior_file(_prior_path("arc_basalt")), quick=quick)
     if "emcee" in sections:
         from ventsource.bench.inference import bench_inference
         bench_inference(quick=quick)

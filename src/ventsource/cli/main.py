@@ -8,11 +8,11 @@ import sys
 
 from ventsource import __version__
 from ventsource.cli import (bench, compare, demo, forward, plan, prior_predictive, priors, ratios_command, run,
-                            speciate)
+                            speciate, watch)
 from ventsource.common.errors import InputError
 
 EXIT_USAGE = 2
-COMMANDS = (speciate, forward, prior_predictive, run, compare, demo, priors, bench, ratios_command, plan)
+COMMANDS = (speciate, forward, prior_predictive, run, compare, demo, priors, bench, ratios_command, plan, watch)
 
 
 class _HelpFormatter(argparse.ArgumentDefaultsHelpFormatter):
@@ -63,7 +63,7 @@ def main(argv=None):
         if not getattr(args, "handler", None):
             parser.print_help()
             return EXIT_USAGE
-        if args.command in ("run", "compare", "demo", "bench", "plan"):
+        if args.command in ("run", "compare", "demo", "bench", "plan", "watch"):
             from ventsource.common.threads import single_thread_environment
             single_thread_environment()  # before NumPy loads (the prior lookup loads it)
         _resolve_prior_args(args)

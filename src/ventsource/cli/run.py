@@ -15,6 +15,10 @@ def add_parser(sub):
     add_series_options(rp)
     rp.add_argument("--corner", nargs="+", default=[], metavar="ID",
                     help="row identifiers to draw corner plots for")
+    rp.add_argument("--shift-reference", type=int, default=0, metavar="N",
+                    help="simulate N data sets from the prior and invert them, to say how far data "
+                         "usually move P(M0) (README.txt, hazard.json; about 1-2 CPU-s each; "
+                         "default 0: not run)")
     rp.add_argument("--no-figures", action="store_true", help="tables and netCDF only")
     rp.set_defaults(handler=cmd_run)
 
@@ -23,6 +27,8 @@ def cmd_run(args):
     import ventsource as vs
     from ventsource.common.caution import CAUTION
     _check_series_args(args)
+    from ventsource.workflow.shift_reference import checked_count
+    checked_count(args.shift_reference, "--shift-reference")
     spec = _load_prior(args.prior)
     options = _inference_options(args)
     series = vs.read_measurements(args.data, default_sigma=_default_sigma(args, spec))  # checks first
@@ -34,7 +40,8 @@ def cmd_run(args):
     announce_compilation()
     vs.run(series, args.prior, args.out, seed=args.seed, workers=args.workers, resume=args.resume,
            window=window, dask_scheduler=args.dask_scheduler, dask_local=args.dask_local,
-           oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args), **options)
+           oversubscribe=args.oversubscribe, budget_max_gap_days=_budget_gap(args),
+           shift_reference=args.shift_reference, **options)
     figs = []
     if not args.no_figures:
         from ventsource.workflow.figures import run_figures

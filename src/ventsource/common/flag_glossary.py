@@ -32,6 +32,10 @@ FLAG_GLOSSARY = {
                   "prior spread: the row's numbers are mostly the prior's.",
     "source_check_failed": "The change-of-source check of this window could not be computed "
                            "(its SMC runs failed); the window's own results stand unchecked.",
+    "source_check_not_run": "This window has too few rows (fewer than 4) for the check of a "
+                            "change of source inside it, which was not run; with one row neither "
+                            "source check applies. A change of magma inside the window would go "
+                            "unnoticed.",
     "m1_not_converged": "The scrubbing model's MCMC chains did not reach their target.",
     "m0_not_converged": "The purely magmatic model's MCMC chains did not reach their target.",
     "m1_rhat_high": "The scrubbing model's MCMC chains disagree (R-hat above its limit).",

@@ -62,7 +62,7 @@ def series_figure(summary_csv, series=None, truth_csv=None, title="", prior_name
     s, times = _read_summary(summary_csv)
     truth = pd.read_csv(truth_csv) if truth_csv else None
     ratios = [c[3:-4] for c in s.columns if c.startswith("pp ") and c.endswith("_q05")]
-    has_p = "pressure_bar_median" in s
+    has_p = _pressure_column(s) is not None
     has_m2 = "p_released" in s and s["p_released"].notna().any()
     has_budget = "cumulative_retained_s_t_median" in s and s["cumulative_retained_s_t_median"].notna().any()
     extra = int(has_m2) + int(has_budget)
@@ -223,13 +223,17 @@ def _scrubbed_panel(ax, s, times, truth):
     ax.set_ylabel("scrubbed SO2\n(fraction)", fontsize=9)
 
 
+def _pressure_column(s):
+    """(column stem, legend tag) of the pressure to draw, or None: the model-averaged
+    pressure_bar_avg_*, else the posterior if scrubbed (said so in the legend)."""
+    if "pressure_bar_avg_median" in s and s["pressure_bar_avg_median"].notna().any():
+        return "pressure_bar_avg", "model-averaged"
+    return ("pressure_bar_if_scrubbed", "if scrubbed (model M1 only, conditional)") \
+        if "pressure_bar_if_scrubbed_median" in s else None
+
+
 def _pressure_panel(ax, s, times, truth):
-    # window runs: model-averaged; row-by-row runs: their model-averaged columns (older
-    # folders without them: the scrubbing model's posterior, said so in the legend)
-    row_avg = "pressure_bar_avg_median" in s
-    averaged = row_avg or "scrubbed_so2_if_scrubbed_median" in s
-    col = "pressure_bar_avg" if row_avg else "pressure_bar"
-    tag = "model-averaged" if averaged else "if scrubbed (model M1 only, conditional)"
+    col, tag = _pressure_column(s)
     ax.fill_between(times, s[f"{col}_q05"].astype(float), s[f"{col}_q95"].astype(float),
                     color=INK, alpha=0.15, lw=0, label=f"5-95 %, {tag}")
     ax.plot(times, s[f"{col}_median"].astype(float), "-o", ms=3, color=INK, label=f"median, {tag}")

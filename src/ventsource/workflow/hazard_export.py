@@ -9,15 +9,17 @@ from ventsource.workflow.run_folder import file_sha256
 
 # top-down order of hazard.json (keys not named here follow at the end)
 KEY_ORDER = ("what", "caution", "synthetic", "hypotheses", "prior_model_probabilities", "pi0",
-             "rounding", "prior_sensitivity", "windows", "rows", "sulfur_budget", "flag_glossary",
+             "rounding", "prior_sensitivity", "window_setting", "p_magmatic_shift_reference", "windows",
+             "rows", "sulfur_budget", "flag_glossary",
              "field_glossary", "note")
 
 
 def hazard_document(series, spec, prior_path, rows, seed, options, model_note=None, sigma=None,
-                    out_dir=None, synthetic_data=False, window_per_row=None):
+                    out_dir=None, synthetic_data=False, window_per_row=None, window="unset"):
     """Plain dict for elicitation panels: per-row probability with provenance.
 
-    window_per_row: the window model's per-row parameters (None: rows inverted one by one).
+    window_per_row: the window model's per-row parameters (None: rows inverted one by one);
+    window: the run's window setting (None, "rows", "column" or a span in seconds).
 
     Paths are relative to the run folder; numbers are rounded by hazard_format's rule."""
     from ventsource import __version__
@@ -45,6 +47,7 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
         "rounding": ROUNDING_RULE,
         "prior_sensitivity": {"note": "not run: 'ventsource compare' inverts the same data under "
                                       "other priors and shows how much each probability moves"},
+        "window_setting": window_setting(window, getattr(series, "windows", None) is not None),
         "windows": window_spans(rows, flag_lists),
         "rows": [_hazard_row(r, flags) for r, flags in zip(rows, flag_lists)],
         "flag_glossary": glossary_for(flag_lists),
@@ -65,8 +68,28 @@ def hazard_document(series, spec, prior_path, rows, seed, options, model_note=No
     }
 
 
+_UNIT_S = (("w", 7 * 86400), ("d", 86400), ("h", 3600), ("min", 60), ("s", 1))
+WINDOW_FLAGS = {"mixed_sources", "source_check_failed", "source_check_not_run"}
+
+
+def window_setting(window, has_column):
+    """How the run grouped its rows: the --window setting and, for a time span, its length."""
+    if window == "unset":
+        return None
+    if window == "rows" or (window is None and not has_column):
+        return {"option": "1", "mode": "row by row", "span_days": None}
+    if window == "column" or window is None:
+        return {"option": "column", "mode": "the measurement file's window column", "span_days": None}
+    seconds = float(window)
+    unit, size = next((u, n) for u, n in _UNIT_S if seconds % n == 0 or n == 1)
+    return {"option": f"{seconds / size:g}{unit}", "mode": "consecutive time spans from the first row",
+            "span_days": seconds / 86400.0}
+
+
 def window_spans(rows, flag_lists):
-    """One entry per window (first row order): span, rows, Bayes factors (1 decimal), flags."""
+    """One entry per window (first row order): first and last row time, time from first to
+    last row (days), rows and their number, the change-of-source check's state, Bayes
+    factors (1 decimal), window flags."""
     from ventsource.workflow.hazard_format import round_log10_bf
     spans = {}
     for r, flags in zip(rows, flag_lists):
@@ -74,13 +97,23 @@ def window_spans(rows, flag_lists):
         if label is None:
             continue
         w = spans.setdefault(label, {"window": label, "first_time": r["time"], "last_time": r["time"],
-                                     "rows": [], "log10_bf_one_source": round_log10_bf(r.get("log10_bf_one_source")),
+                                     "span_days": None, "n_rows": 0, "rows": [],
+                                     "source_check": r.get("source_check"),
+                                     "log10_bf_one_source": round_log10_bf(r.get("log10_bf_one_source")),
                                      "log10_bf_one_vs_split": round_log10_bf(r.get("log10_bf_one_vs_split")),
                                      "flags": []})
         w["rows"].append(r["id"])
+        w["n_rows"] = len(w["rows"])
         w["first_time"], w["last_time"] = min(w["first_time"], r["time"]), max(w["last_time"], r["time"])
-        w["flags"] = sorted(set(w["flags"]) | ({"mixed_sources", "source_check_failed"} & set(flags)))
+        w["span_days"] = _days_between(w["first_time"], w["last_time"])
+        w["flags"] = sorted(set(w["flags"]) | (WINDOW_FLAGS & set(flags)))
     return list(spans.values())
+
+
+def _days_between(first, last):
+    import numpy as np
+    t0, t1 = (np.datetime64(x.rstrip("Z"), "s") for x in (first, last))
+    return round(float((t1 - t0).astype(np.int64)) / 86400.0, 6)
 
 
 def _hazard_row(r, flags):
@@ -95,6 +128,8 @@ def _hazard_row(r, flags):
                     "p_scrubbed_below_epsilon_if_scrubbed_error": pb_err})
     out["scrubbed_so2_model_averaged"] = {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))
                                           for q in ("q05", "median", "q95")}
+    out["scrubbed_so2_if_scrubbed"] = {q: round_fraction(r.get(f"scrubbed_so2_if_scrubbed_{q}"))
+                                       for q in ("q05", "median", "q95")}
     out.update({"flags": flags, "seed": r.get("seed"),
                 "p_magmatic_shift": _rounded(r.get("p_magmatic_shift")),  # how much the data said
                 "unresolved_direction": r.get("unresolved_direction")})

@@ -33,8 +33,16 @@ FIELD_GLOSSARY = {
     "scrubbed_so2_model_averaged": "fraction of the magmatic SO2 removed by scrubbing, averaged "
                                    "over the hypotheses (0 under M0 and M2): 5 %, 50 %, 95 % "
                                    "quantiles",
+    "scrubbed_so2_if_scrubbed": "fraction of the magmatic SO2 removed IF the gas was scrubbed (the "
+                                "posterior under M1 alone): 5 %, 50 %, 95 % quantiles; conditional, "
+                                "quote scrubbed_so2_model_averaged instead",
     "window": "label of the group of rows that share one magmatic source (window runs only)",
-    "windows": "each window: its time span, its rows and its Bayes factors",
+    "window_setting": "how the rows were grouped: option (the --window value: 1 = row by row, a time "
+                      "span such as 30d, or column = the file's window column), mode, and span_days "
+                      "(the length of each time span, days; null otherwise)",
+    "windows": "each window: first_time and last_time (its first and last row, UTC), span_days (days "
+               "from the first to the last row), n_rows, rows, source_check (the change-of-source "
+               "check: run, not_run for fewer than 4 rows, failed), its Bayes factors and flags",
     "log10_bf_one_source": "log10 Bayes factor of one shared source against independent sources "
                            "for the rows of the window, each row with its own (below 0: flag mixed_sources)",
     "log10_bf_one_vs_split": "log10 Bayes factor of one source against a change of source inside "
@@ -42,6 +50,9 @@ FIELD_GLOSSARY = {
     "flags": "warnings on a row; their meanings are in flag_glossary",
     "p_magmatic_shift": "how far the data moved P(M0) from its prior value (posterior minus prior); "
                         "near 0 means the prior, not the data, sets P(M0) (flag near_prior)",
+    "p_magmatic_shift_reference": "how far data simulated from the prior (one row each, the run's "
+                                  "ratios and errors) move P(M0): its spread and mean |shift| with "
+                                  "Monte Carlo errors; the yardstick for each row's p_magmatic_shift",
     "unresolved_direction": "the combination of parameters the data resolved least (leading axis of "
                             "the posterior correlation in prior-sd units), in words",
     "read_no_number": "present on an unexplained row: none of its numbers should be read",
@@ -73,6 +84,8 @@ WHAT_TO_DO = {
     "mixed_sources": "shorten the window or split it with a window column; do not read the "
                      "change as scrubbing",
     "source_check_failed": "look at the window's rows by eye, or shorten the window",
+    "source_check_not_run": "look at the window's rows by eye, or join it with a neighbouring "
+                            "window of the same source (4 rows or more are checked)",
     "many_failed_states": "the prior puts most mass where no gas is released: narrow it",
     "m0_not_reproducing": "informative when another hypothesis reproduces the row (no "
                            "unexplained flag)",

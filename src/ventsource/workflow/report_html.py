@@ -123,6 +123,9 @@ def _window_words(w):
                 "rows' numbers assume a shared source and should be read with that in mind.")
     if "source_check_failed" in w["flags"]:
         return "The change-of-source check could not run: the shared source is unchecked."
+    if w.get("source_check") == "not_run":
+        return ("Too few rows to check for a change of source inside the window (not run; 4 rows "
+                "or more are checked): a change of magma here would go unnoticed.")
     return "The rows are consistent with one shared magmatic source."
 
 

@@ -6,12 +6,14 @@ or on a Dask cluster, with a progress bar; a finished row writes its own files
 import csv
 import hashlib
 import json
+import multiprocessing
 import os
 import sys
 import time
 import warnings
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, as_completed, wait
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from functools import partial
+from queue import Empty
 
 import numpy as np
 
@@ -19,6 +21,7 @@ from ventsource.common.errors import InputError
 from ventsource.workflow.hypothesis_rows import DRAWS_KEY, compact_draws, hypothesis_fields
 from ventsource.workflow.netcdf_bytes import write_netcdf
 from ventsource.workflow.run_folder import _atomic, _dump_json, _fmt, file_sha256, row_key
+from ventsource.workflow.summary_columns import complete, quantile_columns, summary_columns
 
 DASK_CONNECT_TIMEOUT_S = 20
 
@@ -68,14 +71,20 @@ def _invert_row(args):
     return row
 
 
-def _averaged_pressure(result, spec):
-    """pressure_bar_avg_q05/median/q95: the row's pressure averaged over M0 and M1
-    (inference/row/averaged.py), as a window run reports it; {} without that parameter."""
-    if "pressure_bar" not in spec.free_names or result.idata_m0 is None:
+def _averaged_quantiles(result, spec):
+    """NAME_avg_q05/median/q95 of every free parameter but the scrubbed fraction (whose
+    model-averaged quantiles come with the result): the row averaged over M0 and M1
+    (inference/row/averaged.py), as a window run reports it; {} without an M0 posterior."""
+    if result.idata_m0 is None:
         return {}
-    s = result.summary("averaged").loc["pressure_bar"]
-    return {"pressure_bar_avg_q05": float(s["5%"]), "pressure_bar_avg_median": float(s["median"]),
-            "pressure_bar_avg_q95": float(s["95%"])}
+    summary = result.summary("averaged")
+    out = {}
+    for name in spec.free_names:
+        if name != "scrubbed_so2" and name in summary.index:
+            s = summary.loc[name]
+            out.update(zip(quantile_columns(f"{name}_avg"), (float(s["5%"]), float(s["median"]),
+                                                             float(s["95%"]))))
+    return out
 
 
 def _summary_row(result, spec, row_id, time_text, seed):
@@ -88,14 +97,12 @@ def _summary_row(result, spec, row_id, time_text, seed):
     row.update(hypothesis_fields(result.hypotheses))
     row[DRAWS_KEY] = compact_draws(result.budget_draws, seed)
     if result.scrubbed_model_averaged is not None:  # point mass at 0 with weight P(M0)
-        (row["scrubbed_so2_avg_q05"], row["scrubbed_so2_avg_median"],
-         row["scrubbed_so2_avg_q95"]) = map(float, result.scrubbed_model_averaged)
-    row.update(_averaged_pressure(result, spec))  # the same quantity as a window run's pressure
-    for name in spec.free_names:
+        row.update(zip(quantile_columns("scrubbed_so2_avg"), map(float, result.scrubbed_model_averaged)))
+    row.update(_averaged_quantiles(result, spec))  # the same quantities as a window run's
+    for name in spec.free_names:  # the posterior if scrubbed (M1)
         s = summary.loc[name]
-        row[f"{name}_median"] = float(s["median"])
-        row[f"{name}_q05"] = float(s["5%"])
-        row[f"{name}_q95"] = float(s["95%"])
+        row.update(zip(quantile_columns(f"{name}_if_scrubbed"),
+                       (float(s["5%"]), float(s["median"]), float(s["95%"]))))
         row[f"{name}_rhat"] = float(s["r_hat"])
         row[f"{name}_ess_bulk"] = float(s["ess_bulk"])
     row.update(information_fields(result.information))
@@ -107,7 +114,7 @@ def _summary_row(result, spec, row_id, time_text, seed):
         if x.size:
             q = np.quantile(x, [0.05, 0.5, 0.95])
             row[f"pp {name}_q05"], row[f"pp {name}_median"], row[f"pp {name}_q95"] = map(float, q)
-    return row
+    return complete(row, summary_columns(spec.free_names, ()))  # pp columns: the row's own ratios
 
 
 def _num(v):
@@ -144,34 +151,75 @@ def _dask_client(scheduler, local_workers):
     return Client(cluster), cluster
 
 
-class Progress:
-    """One-line progress bar with an estimate of the time left (from this session's rate)."""
+PROGRESS_CLOCK = time.monotonic   # the bar's seconds (a test replaces it by a count of work)
 
-    def __init__(self, total, already, stream=None, width=28, label=""):
+
+class Progress:
+    """One-line progress bar with an estimate of the time left (from this session's rate).
+
+    work: None (every job one row of equal cost), or {window label: (its row count, its
+    relative cost)} of the windows still to invert (inference/window/progress.py
+    expected_cost); a window then advances the bar by its rows as its inversion goes
+    (partial(), from the sampler's stages), and the time left is estimated from the
+    windows' costs, not from their rows. clock: seconds (default PROGRESS_CLOCK)."""
+
+    def __init__(self, total, already, stream=None, width=28, label="", work=None, clock=None):
         self.total, self.done, self.start_done = total, already, already
         self.label = f"{label}: " if label else ""
         self.stream = stream if stream is not None else sys.stderr
         self.width = width
-        self.t0 = time.monotonic()
+        self.clock = clock or PROGRESS_CLOCK
+        self.t0 = self.clock()
         self.tty = getattr(self.stream, "isatty", lambda: False)()
+        self.work = dict(work or {})
+        self.total_cost = sum(cost for _, cost in self.work.values())
+        self.finished_cost, self.in_flight, self.closed, self.recorded = 0.0, {}, set(), {}
+
+    def _rows_in_flight(self):
+        """Rows' worth done in the windows in flight, less their rows already recorded."""
+        return sum(max(int(f * n) - self.recorded.get(k, 0), 0) for k, (n, f) in self.in_flight.items())
+
+    def _left_s(self, elapsed):
+        """Seconds left, or None before anything was done."""
+        if not self.work:
+            new = self.done - self.start_done
+            return elapsed / new * (self.total - self.done) if new > 0 else None
+        done = self.finished_cost + sum(self.work[k][1] * f for k, (_, f) in self.in_flight.items())
+        return elapsed / done * (self.total_cost - done) if done > 0 else None
 
     def text(self, last=""):
-        frac = self.done / self.total if self.total else 1.0
+        shown = min(self.done + self._rows_in_flight(), self.total)
+        frac = shown / self.total if self.total else 1.0
         fill = int(round(frac * self.width))
         bar = "#" * fill + "." * (self.width - fill)
-        new = self.done - self.start_done
-        elapsed = time.monotonic() - self.t0
-        if new > 0 and self.done < self.total:
-            left = elapsed / new * (self.total - self.done)
-            eta = f"~{int(left // 60)}:{int(left % 60):02d} left"
-        elif self.done >= self.total:
+        elapsed = self.clock() - self.t0
+        left = self._left_s(elapsed) if self.done < self.total else None
+        if self.done >= self.total:
             eta = f"done in {elapsed:.0f} s"
+        elif left is not None:
+            eta = f"~{int(left // 60)}:{int(left % 60):02d} left"
         else:
             eta = "estimating time left"
-        return f"{self.label}[{bar}] {self.done}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
+        return f"{self.label}[{bar}] {shown}/{self.total} rows, {eta}" + (f" (last: {last})" if last else "")
 
-    def update(self, last=""):
+    def partial(self, label, n_rows, fraction):
+        """A window in flight is `fraction` done: a line whenever it completes another row's worth."""
+        if label in self.closed or label not in self.work:
+            return
+        before = int(self.in_flight.get(label, (n_rows, 0.0))[1] * n_rows)
+        self.in_flight[label] = (n_rows, min(float(fraction), 1.0 - 1e-9))  # its rows count when recorded
+        if int(self.in_flight[label][1] * n_rows) > before:
+            self.show(f"window '{label}' {int(fraction * n_rows)} of {n_rows} rows' work")
+
+    def update(self, last="", window=None):
+        """One row recorded (window: its window's label, whose cost counts once all its rows are)."""
         self.done += 1
+        if window is not None and window in self.work and window not in self.closed:
+            self.recorded[window] = self.recorded.get(window, 0) + 1
+            if self.recorded[window] >= self.work[window][0]:
+                self.closed.add(window)
+                self.in_flight.pop(window, None)
+                self.finished_cost += self.work[window][1]
         self.show(last)
 
     def show(self, last=""):
@@ -183,6 +231,28 @@ class Progress:
         else:
             self.stream.write(line + "\n")
         self.stream.flush()
+
+
+_PROGRESS_SINK = None   # this process: bar.partial (one worker) or a queue to the parent
+
+
+def report_window_progress(label, n_rows, fraction):
+    """Called by a window's sampler as it advances (workflow/windows.py); reporting only."""
+    sink = _PROGRESS_SINK
+    if sink is None:
+        return
+    if callable(sink):
+        sink(label, n_rows, fraction)
+    else:
+        sink.put((label, n_rows, fraction))
+
+
+def _worker_init(parent_pid, queue):
+    """Pool initializer: end with the parent; send window progress to the parent's queue."""
+    global _PROGRESS_SINK
+    from ventsource.common.worker_death import die_with_parent
+    die_with_parent(parent_pid)
+    _PROGRESS_SINK = queue
 
 
 def worker_count(requested, n_jobs, oversubscribe=False):
@@ -210,22 +280,43 @@ class RowJobs:
                    self.settings["options"], self.out_dir)
 
 
-def _pool_map(pool, work, jobs, record, in_flight):
-    """Submit jobs as workers free up (at most in_flight pending), record each result."""
+PROGRESS_POLL_S = 0.5
+
+
+def _pool_map(pool, work, jobs, record, in_flight, drain=lambda: None):
+    """Submit jobs as workers free up (at most in_flight pending), record each result;
+    between results, drain() passes on the workers' progress messages."""
     pending, jobs = set(), iter(jobs)
     try:
         for job in jobs:
             pending.add(pool.submit(work, job))
-            if len(pending) >= in_flight:
-                finished, pending = wait(pending, return_when=FIRST_COMPLETED)
-                for fut in finished:
-                    record(fut.result())
-        for fut in as_completed(pending):
-            record(fut.result())
+            while len(pending) >= in_flight:
+                pending = _record_some(pending, record, drain)
+        while pending:
+            pending = _record_some(pending, record, drain)
     except BaseException:
         for fut in pending:
             fut.cancel()
         raise
+
+
+def _record_some(pending, record, drain):
+    finished, pending = wait(pending, timeout=PROGRESS_POLL_S, return_when=FIRST_COMPLETED)
+    drain()
+    for fut in finished:
+        record(fut.result())
+    return pending
+
+
+def _drainer(queue, bar):
+    def drain():
+        while True:
+            try:
+                msg = queue.get_nowait()
+            except Empty:
+                return
+            bar.partial(*msg)
+    return drain
 
 
 def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_local, oversubscribe,
@@ -243,7 +334,7 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
             os.fsync(fh.fileno())
         done[row["id"]] = row
         p = row.get("p_magmatic")
-        bar.update(f"{row['id']} P(M0)={p:.3f}" if p is not None else row["id"])
+        bar.update(f"{row['id']} P(M0)={p:.3f}" if p is not None else row["id"], row.get("window"))
 
     n_workers = worker_count(workers, len(todo), oversubscribe)
     if todo and (dask_scheduler or dask_local):
@@ -258,10 +349,20 @@ def _run_rows(todo, done, running, cols, bar, workers, dask_scheduler, dask_loca
             if cluster is not None:
                 cluster.close()
     elif todo and n_workers > 1:
-        from ventsource.common.worker_death import die_with_parent
-        with ProcessPoolExecutor(max_workers=n_workers, initializer=die_with_parent,
-                                 initargs=(os.getpid(),)) as pool:
-            _pool_map(pool, work, todo, record, in_flight=4 * n_workers)
+        queue = multiprocessing.get_context().Queue()
+        with ProcessPoolExecutor(max_workers=n_workers, initializer=_worker_init,
+                                 initargs=(os.getpid(), queue)) as pool:
+            _pool_map(pool, work, todo, record, 4 * n_workers, _drainer(queue, bar))
     else:
+        _run_here(todo, work, record, bar)
+
+
+def _run_here(todo, work, record, bar):
+    """Every job in this process; a window's progress goes straight to the bar."""
+    global _PROGRESS_SINK
+    _PROGRESS_SINK = bar.partial
+    try:
         for job in todo:
             record(work(job))
+    finally:
+        _PROGRESS_SINK = None

@@ -57,7 +57,9 @@ def _verified_rows(out_dir, ids, prior_sha, cols):
 
     A row is kept only when rows/KEY.json reads as this row's summary (its id, every
     summary column, this run's prior) and rows/KEY.nc has the sha256 the summary
-    recorded; anything else (a truncated or edited file) is inverted again."""
+    recorded; anything else (a truncated or edited file, a summary written under other
+    column names) is inverted again."""
+    from ventsource.workflow.summary_columns import has_columns
     done, failed = {}, []
     for rid in ids:
         key = row_key(rid)
@@ -69,7 +71,7 @@ def _verified_rows(out_dir, ids, prior_sha, cols):
             with open(js) as fh:
                 row = json.load(fh)
             ok = (isinstance(row, dict) and row.get("id") == rid and row.get("prior_sha256") == prior_sha
-                  and all(c in row for c in cols[:8]) and row.get("nc_sha256") == file_sha256(nc))
+                  and has_columns(row, cols) and row.get("nc_sha256") == file_sha256(nc))
         except (OSError, ValueError):
             ok = False
         if ok:

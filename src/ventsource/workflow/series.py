@@ -30,6 +30,7 @@ from ventsource.common.errors import InputError
 from ventsource.workflow.hazard_export import hazard_document
 from ventsource.workflow.hypothesis_rows import add_budget, extend_hazard, extra_columns
 from ventsource.workflow.output_guard import refuse_foreign_run_folder
+from ventsource.workflow.shift_reference import checked_count
 from ventsource.workflow.row_jobs import (Progress, RowJobs, _invert_row, _run_rows, _time_text, row_seed,
                                          worker_count)
 from ventsource.workflow.run_folder import (HAZARD_NAME, LOCK_NAME, RECORDED_SETTINGS, RUNNING_NAME,
@@ -37,8 +38,9 @@ from ventsource.workflow.run_folder import (HAZARD_NAME, LOCK_NAME, RECORDED_SET
                                             _earlier_run, _mark_stopped, _refuse_if_in_use, _rewrite,
                                             _run_settings, _verified_rows, _write_json, file_sha256,
                                             prior_content_sha256, row_key)
-from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows,
-                                         window_summary_columns)
+from ventsource.workflow.summary_columns import summary_columns
+from ventsource.workflow.windows import (assign_windows, invert_window, read_done_windows, short_window_lines,
+                                         short_window_notes)
 
 # names other modules and tests import from here (their homes: run_folder, row_jobs, hazard_export)
 __all__ = ["run_series", "summary_columns", "hazard_document", "Progress", "row_key", "row_seed",
@@ -46,30 +48,17 @@ __all__ = ["run_series", "summary_columns", "hazard_document", "Progress", "row_
            "RECORDED_SETTINGS", "RUNNING_NAME", "SUMMARY_NAME"]
 
 
-def summary_columns(free_names, ratio_names):
-    cols = ["id", "time", "p_magmatic", "p_magmatic_error", "p_scrubbed_below_epsilon",
-            "p_scrubbed_below_epsilon_error", "flags", "seed",
-            "scrubbed_so2_avg_q05", "scrubbed_so2_avg_median", "scrubbed_so2_avg_q95"]
-    for name in free_names:
-        cols += [f"{name}_median", f"{name}_q05", f"{name}_q95", f"{name}_rhat", f"{name}_ess_bulk"]
-    cols += ["p_magmatic_shift"] + [f"{name}_contraction" for name in free_names]
-    cols += ["unresolved_direction"]  # how much the data said (inference/information.py)
-    if "pressure_bar" in free_names:  # model-averaged, as in window runs (inference/row/averaged.py)
-        cols += ["pressure_bar_avg_q05", "pressure_bar_avg_median", "pressure_bar_avg_q95"]
-    for r in ratio_names:  # posterior predictive of each measured ratio (for the figures)
-        cols += [f"pp {r}_q05", f"pp {r}_median", f"pp {r}_q95"]
-    return cols
-
-
 def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, options=None,
                dask_scheduler=None, dask_local=False, progress_stream=None, model_note=None,
                oversubscribe=False, window=None, synthetic_data=False, progress_label="",
-               budget_max_gap_days=None):
+               budget_max_gap_days=None, shift_reference=0):
     """Invert every row; returns the list of summary rows in file order.
 
     window: None (the file's window column if it has one, else row by row), "rows",
     "column" or a time span in seconds (see ventsource.workflow.windows).
     budget_max_gap_days: longest interval the sulfur budget bridges (flux columns only).
+    shift_reference: data sets simulated from the prior to say how far data usually move
+    P(M0) (workflow/shift_reference.py; 0: not run).
 
     workers: local processes (or LocalCluster workers with dask_local), at most one per
     row to invert and, unless oversubscribe, one per core; dask_scheduler: address of a
@@ -85,7 +74,7 @@ def run_series(series, prior_path, out_dir, seed=0, workers=1, resume=False, opt
     settings = _run_settings(series, prior_path, prior_sha, seed, options)
     settings["window"] = window
     extras = {"synthetic_data": synthetic_data, "progress_label": progress_label,
-              "budget_max_gap_days": budget_max_gap_days}
+              "budget_max_gap_days": budget_max_gap_days, "shift_reference": checked_count(shift_reference)}
     groups = assign_windows(series, window)  # checked before anything is written
     if groups is not None and (options or {}).get("engine") == "emcee":
         raise InputError("--engine emcee inverts row by row; windows (--window or the file's window "
@@ -142,11 +131,10 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
                 dask_scheduler, dask_local, progress_stream, model_note, oversubscribe, groups=None,
                 extras=None):
     extras = extras or {}
+    cols = summary_columns(spec.free_names, series.ratio_names)  # one table shape, rows or windows
     if groups is None:
-        cols = summary_columns(spec.free_names, series.ratio_names)
         done, failed = _verified_rows(out_dir, series.ids, prior_sha, cols) if resume else ({}, [])
     else:
-        cols = window_summary_columns(series.ratio_names)
         done, failed = (read_done_windows(out_dir, groups, series.ids) if resume else {}), []
     cols = cols + extra_columns(spec, series)  # three hypotheses, sulfur budget: only when used
     todo_ids = [rid for rid in series.ids if rid not in done]
@@ -167,8 +155,10 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     running = os.path.join(out_dir, RUNNING_NAME)
     _rewrite(running, cols, [done[i] for i in series.ids if i in done])
     work, todo = _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir)
-    bar = Progress(len(series.ids), len(done), stream=progress_stream,
-                   label=extras.get("progress_label", ""))
+    bar = Progress(len(series.ids), len(done), stream=progress_stream, label=extras.get("progress_label", ""),
+                   work=None if groups is None else window_work(todo))
+    for line in short_window_lines(groups, series.ids):  # also in README.txt and the flag summary
+        bar.stream.write(f"warning: {line}\n")
     if failed:
         bar.stream.write(f"{len(failed)} finished row(s) failed verification and are inverted again: "
                          f"{', '.join(failed[:5])}{' ...' if len(failed) > 5 else ''}\n")
@@ -179,6 +169,12 @@ def _run_locked(series, spec, prior_path, prior_sha, out_dir, settings, old, res
     from ventsource.workflow.run_summary import flag_summary
     bar.stream.write("\n".join(flag_summary(rows)) + "\n")
     return rows
+
+
+def window_work(todo):
+    """{label: (rows, relative cost)} of the window jobs still to invert (for the progress bar)."""
+    from ventsource.inference.window.sampling import expected_cost
+    return {job[2]: (len(job[3]), expected_cost(len(job[3]), job[7])) for job in todo}
 
 
 def _jobs(series, groups, done, prior_path, prior_ref, settings, out_dir):
@@ -203,11 +199,14 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
     _rewrite(os.path.join(out_dir, SUMMARY_NAME), cols, rows)  # final file in input order
     hazard = hazard_document(series, spec, prior_path, rows, settings["seed"], settings["options"],
                              model_note, sigma=settings["sigma"], out_dir=out_dir,
-                             window_per_row=settings.get("window_per_row"),
+                             window_per_row=settings.get("window_per_row"), window=settings.get("window"),
                              synthetic_data=extras.get("synthetic_data", False))
     from ventsource.workflow.hazard_export import ordered
     from ventsource.workflow.run_folder import write_text_json
-    hazard = ordered(extend_hazard(hazard, rows, series, gap_days))
+    from ventsource.workflow.shift_reference import reference_entry, run_reference
+    ref = run_reference(out_dir, spec, series, settings, extras.get("shift_reference", 0))
+    hazard = ordered(dict(extend_hazard(hazard, rows, series, gap_days),
+                          p_magmatic_shift_reference=reference_entry(ref)))
     write_text_json(os.path.join(out_dir, HAZARD_NAME), hazard)
     from ventsource.workflow.table_notes import information_notes, write_table_readme
     write_table_readme(out_dir, {SUMMARY_NAME: "one row per measurement (see docs/outputs.md)",
@@ -215,7 +214,7 @@ def _finish(series, spec, prior_path, out_dir, settings, cols, done, model_note,
                                  "report.html": "the run on one page for a panel (figures included; "
                                                 "open in any browser, no network needed)"},
                        synthetic=hazard["synthetic"], flags=list(hazard["flag_glossary"]),
-                       notes=information_notes(rows))
+                       notes=short_window_notes(rows) + information_notes(rows, ref))
     from ventsource.workflow.report_html import write_report
     write_report(out_dir)  # drawn again with the figures by the commands that draw them
     return rows

@@ -20,8 +20,20 @@ GLOSSARY = [
     "p_scrubbed_below_epsilon (summary.csv; in hazard.json "
     "p_scrubbed_below_epsilon_if_scrubbed): IF the SO2 was scrubbed (M1), the probability that "
     "less than epsilon of it was removed. It is conditional on M1: do not compare it with P(M0).",
+    "summary.csv has the same columns, with the same meanings, in row-by-row and window runs; "
+    "a column that does not apply is empty (docs/outputs.md lists every column).",
     "scrubbed_so2_avg_*: fraction of the magmatic SO2 removed, averaged over the hypotheses "
-    "(5 %, 50 %, 95 % quantiles).",
+    "(5 %, 50 %, 95 % quantiles). scrubbed_so2_if_scrubbed_*: the same IF scrubbed (M1 only), "
+    "a conditional quantity.",
+    "NAME_avg_*: a parameter averaged over the hypotheses (in a window: the magma's shared "
+    "posterior, repeated on each of its rows; pressure per row); NAME_if_scrubbed_*: under M1 "
+    "(row by row every parameter, in a window the pressure); NAME_rhat, NAME_ess_bulk: "
+    "agreement of the sampler runs and effective draws (a window: its shared parameters); "
+    "units: pressure_bar bar, temperature_c C, dfmq log units, *_ppm ppm by mass.",
+    "window, window_first_time, window_last_time, window_span_days (days from the first to the "
+    "last row), window_n_rows: the window of the row (empty row by row). source_check: the "
+    "change-of-source check ran (run), was not run (not_run: fewer than 4 rows; one row runs no "
+    "source check) or failed.",
     "log10_bf_one_source, log10_bf_one_vs_split: log10 Bayes factors of one shared source in a "
     "window against each row with its own source / against a change of source inside it "
     "(below 0, resp. below -2: flag mixed_sources).",
@@ -72,7 +84,7 @@ def _flag_meanings(flags):
 MAX_NOTED_ROWS = 20
 
 
-def information_notes(rows):
+def information_notes(rows, reference=None):
     """README lines on how much the data said: rows flagged near_prior and, per row (the
     first MAX_NOTED_ROWS), the shift of P(M0) from its prior and the direction the data
     resolved least (summary.csv columns p_magmatic_shift, *_contraction, unresolved_direction)."""
@@ -85,9 +97,15 @@ def information_notes(rows):
              f"- rows flagged near_prior (P(M0) or the scrubbed fraction barely moved from the "
              f"prior): {len(near)} of {len(told)}" + (f" ({', '.join(near[:10])}"
                                                     f"{' ...' if len(near) > 10 else ''})" if near else "")]
+    from ventsource.workflow.shift_words import reference_words, row_shift_ratio
+    words = reference_words(reference)
+    lines.append("- " + (words or "how far data usually move P(M0): not run (ventsource run "
+                                   "--shift-reference 16 simulates it from the prior)"))
     for r in told[:MAX_NOTED_ROWS]:
         shift = r.get("p_magmatic_shift")
-        moved = "" if shift is None else f"P(M0) moved {shift:+.3f} from its prior; "
+        ratio = row_shift_ratio(shift, reference)
+        moved = "" if shift is None else (f"P(M0) moved {shift:+.3f} from its prior"
+                                          + ("" if ratio is None else f" ({ratio:.2f} x the usual)") + "; ")
         lines.append(f"- {r['id']}: {moved}least resolved: {r['unresolved_direction']}")
     if len(told) > MAX_NOTED_ROWS:
         lines.append(f"- ... {len(told) - MAX_NOTED_ROWS} more rows in summary.csv")

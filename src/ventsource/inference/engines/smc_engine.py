@@ -127,12 +127,14 @@ class _Evaluator:
 
 
 def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
-                 seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200):
+                 seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None):
     """Run n_runs independent tempered SMC samplers in lockstep.
 
     log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
-    the prior's support. Returns SMCResult.
+    the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
+    progress reports only (it gets copies; the runs' numbers do not depend on it).
+    Returns SMCResult.
     """
     R, N = int(n_runs), int(n_particles)
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(R)]
@@ -167,6 +169,8 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         pop = pop.take(idx)
         acc = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves)
         acc_hist.append(acc)
+        if on_stage is not None:
+            on_stage(beta.copy(), stages.copy())
     shape = (R, N)
     distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),

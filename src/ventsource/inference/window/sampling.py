@@ -17,7 +17,10 @@ small runs of the window model with every row's SO2 free, so that the amount of
 scrubbing or release does not weigh in). A window that spans a change of magma (fresh
 recharge) is flagged "mixed_sources" rather than read as scrubbing: (a) below 0 or (b)
 below -2. Measured: (a) alone missed a change to twice the CO2 and half the S in an
-8-row window (+0.42), which (b) puts at -15.8.
+8-row window (+0.42), which (b) puts at -15.8. A window of one row runs neither check
+(with one row, (a) compares the row with itself: its value was Monte Carlo noise, once
+-0.052, enough to flag it); a window of fewer than split_min_rows (4) rows runs no (b):
+it says so (WindowResult.source_check "not_run", flag source_check_not_run).
 """
 from __future__ import annotations
 
@@ -35,6 +38,7 @@ from ventsource.inference.evidence.bridge import Transform, support_bounds
 from ventsource.inference.likelihood import Likelihood
 from ventsource.inference.hypotheses.model_choice import predictive_check
 from ventsource.inference.row.smc_measurement import model_averaged_quantiles
+from ventsource.inference.window.progress import WindowProgress, window_costs
 from ventsource.inference.window.target import So2FreeWindowTarget, WindowTarget
 from ventsource.chemistry.species import INDEX
 
@@ -68,6 +72,7 @@ class RowResult:
     flags: list
     hypotheses: dict | None = None      # with a release prior: P(M0), P(M1), P(M2) and errors
     budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor
+    pressure_if_scrubbed: tuple = (np.nan,) * 3   # (q05, median, q95) of the M1 draws
 
 
 @dataclass
@@ -84,6 +89,7 @@ class WindowResult:
     log10_bf_split_error: float = float("nan")
     pi0: float | None = None            # prior P(M0) (with [hypotheses]: M0's three-way share)
     information: dict | None = None     # how much the data said about the shared parameters
+    source_check: str = "run"           # the change-of-source check: run, not_run, failed
 
     def summary(self, model: str = "averaged"):
         """pandas DataFrame, one row per measurement: P(M0) and its error, the scrubbed
@@ -121,7 +127,9 @@ def _likelihoods(measurements, forward, kind, dof):
     return [Likelihood(m, kind=kind, dof=dof, prediction_names=forward.ratio_names) for m in measurements]
 
 
-def infer_window(measurements, prior, forward=None, seed=0, **options):
+def infer_window(measurements, prior, forward=None, seed=0, progress=None, **options):
+    """progress: None, or report(fraction) called as the window advances (fraction in [0, 1],
+    never decreasing; window/progress.py); the numbers do not depend on it."""
     unknown = sorted(set(options) - set(WINDOW_DEFAULTS))
     if unknown:
         raise WindowError(f"window: unknown option(s) {unknown}; known: {sorted(WINDOW_DEFAULTS)}")
@@ -136,28 +144,45 @@ def infer_window(measurements, prior, forward=None, seed=0, **options):
     target_liks = _likelihoods(measurements, forward, kind, dof)
     target = WindowTarget(prior, forward, target_liks, pi0)
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(4)]
-    res = _run_smc(target, seeds[0], opt["n_particles"], opt["n_runs"], opt)
+    split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
+    bar = WindowProgress(progress or (lambda f: None),
+                         window_costs(len(measurements), opt, check_run_rows(len(measurements), opt)))
+    res = _run_smc(target, seeds[0], opt["n_particles"], opt["n_runs"], opt, bar.main_stage)
     rng = np.random.default_rng(seeds[1])
     rows = _row_results(target, res, measurements, rng, opt)
     log_z, log_z_err = res.log_z_mean_error
-    bf = _shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[2]), opt["n_source_check"])
+    bf = np.nan   # one row: "one source against each row its own" compares the row with itself
+    if len(measurements) > 1:
+        bf = _shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[2]), opt["n_source_check"])
+    bar.rows_done()
     split_bf, split_err, check_cpu = np.nan, np.nan, 0.0
-    if opt["split_check"] and len(measurements) >= opt["split_min_rows"]:
+    if split_ran:
         start = time.process_time()
-        split_bf, split_err = _split_source_log10_bf(prior, forward, target_liks, seeds[3], opt)
+        split_bf, split_err = _split_source_log10_bf(prior, forward, target_liks, seeds[3], opt,
+                                                     bar.check_stage)
         check_cpu = time.process_time() - start
     rhat_max = between_run_rhat(res.theta)
     prior_p0 = float(np.exp(target.log_pis[0]))  # pi0, less the release share with [hypotheses]
-    split_ran = bool(opt["split_check"] and len(measurements) >= opt["split_min_rows"])
     flags = _window_flags(res, rhat_max, bf, split_bf, opt, split_ran)
     diag = {"n_forward_evals": int(res.n_evals), "stages": res.n_stages.tolist(),
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
             "per_row": list(target.per_row), "source_check_cpu_s": check_cpu}
-    return WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
-                        flags, diag, split_bf, split_err, prior_p0,
-                        _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed))
+    out = WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
+                       flags, diag, split_bf, split_err, prior_p0,
+                       _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed),
+                       source_check=_source_check_state(split_ran, split_bf))
+    bar.finished()
+    return out
+
+
+def _source_check_state(split_ran, split_bf):
+    """The change-of-source check: "run", "failed" (its SMC runs failed) or "not_run"
+    (fewer rows than split_min_rows, or split_check off; flag source_check_not_run)."""
+    if not split_ran:
+        return "not_run"
+    return "run" if np.isfinite(split_bf) else "failed"
 
 
 def _shared_information(shared_prior, theta, rows, pi0, seed):
@@ -176,14 +201,29 @@ def _shared_information(shared_prior, theta, rows, pi0, seed):
     return information_summary(names, prior, np.asarray(theta, float).reshape(-1, len(names)))
 
 
-def _run_smc(target, seed, n_particles, n_runs, opt):
+def _run_smc(target, seed, n_particles, n_runs, opt, on_stage=None):
     sp = target.shared_prior
     try:
         return tempered_smc(sp.log_prob, target, sp.sample, Transform(support_bounds(sp)),
                             n_particles=n_particles, n_runs=n_runs, seed=seed,
-                            ess_target=opt["ess_target"], max_moves=opt["max_moves"])
+                            ess_target=opt["ess_target"], max_moves=opt["max_moves"], on_stage=on_stage)
     except SMCError as exc:
         raise WindowError(f"window: {exc}") from None
+
+
+def check_run_rows(n_rows, opt):
+    """Rows of each SMC run of the change-of-source check, in the order they run ([] when
+    the check does not run)."""
+    if not (opt["split_check"] and n_rows >= opt["split_min_rows"]):
+        return []
+    return [n_rows] + [k for c in split_points(n_rows) for k in (c, n_rows - c)]
+
+
+def expected_cost(n_rows, options=None):
+    """Relative cost of a window of n_rows with these options (for progress bars only)."""
+    opt = dict(WINDOW_DEFAULTS, **{k: v for k, v in (options or {}).items() if k in WINDOW_DEFAULTS})
+    main, rows, checks = window_costs(n_rows, opt, check_run_rows(n_rows, opt))
+    return main + rows + sum(checks)
 
 
 def split_points(n_rows):
@@ -192,13 +232,13 @@ def split_points(n_rows):
     return sorted(c for c in cuts if SPLIT_MIN_SIDE <= c <= n_rows - SPLIT_MIN_SIDE)
 
 
-def _log_evidence(prior, forward, liks, seed, opt):
+def _log_evidence(prior, forward, liks, seed, opt, on_stage=None):
     """(log Z, error) of the window model with every row's SO2 free."""
     target = So2FreeWindowTarget(prior, forward, liks, n_solve=SPLIT_SOLVES)
-    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], opt).log_z_mean_error
+    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], opt, on_stage).log_z_mean_error
 
 
-def _split_source_log10_bf(prior, forward, liks, seed, opt):
+def _split_source_log10_bf(prior, forward, liks, seed, opt, on_stage=None):
     """log10 [Z(one source) / Z(a change of source)] and its Monte Carlo error.
 
     The alternative: the rows before and after a change point each from their own
@@ -219,8 +259,8 @@ def _split_source_log10_bf(prior, forward, liks, seed, opt):
     cuts = split_points(len(liks))
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(1 + 2 * len(cuts))]
     try:
-        lz_one, err_one = _log_evidence(prior, forward, liks, seeds[0], opt)
-        parts = [[_log_evidence(prior, forward, side, sd, opt) for side, sd in
+        lz_one, err_one = _log_evidence(prior, forward, liks, seeds[0], opt, on_stage)
+        parts = [[_log_evidence(prior, forward, side, sd, opt, on_stage) for side, sd in
                   zip((liks[:c], liks[c:]), seeds[1 + 2 * k:3 + 2 * k])] for k, c in enumerate(cuts)]
     except WindowError:   # the check failed, not the window: flagged, the rows stand
         return np.nan, np.nan
@@ -311,7 +351,8 @@ def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
     else:
         averaged = tuple(model_averaged_quantiles(p, s1))
     return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
-                     hypotheses=hyp, budget_draws=draws["budget"])
+                     hypotheses=hyp, budget_draws=draws["budget"],
+                     pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]))
 
 
 def _shared_source_log10_bf(target, log_z_window, rng, n):
@@ -327,6 +368,8 @@ def _window_flags(res, rhat_max, bf, split_bf, opt, split_ran=False):
     flags = []
     if split_ran and not np.isfinite(split_bf):
         flags.append("source_check_failed")
+    if not split_ran:
+        flags.append("source_check_not_run")
     if bf < 0.0 or split_bf < opt["split_flag_below"]:
         flags.append("mixed_sources")
     if rhat_max > opt["smc_rhat_max"]:
