@@ -26,18 +26,27 @@ class CalibrationRange:
 # key: (models key, law name)
 CALIBRATION_RANGES = {
     # Moore, Vennemann and Carmichael 1998, Am. Mineral. 83:36-42: natural melts from
-    # basalt to rhyolite, to about 3 kbar, about 700-1200 C (from memory)
+    # basalt to rhyolite (from memory); "to 3 kilobars" is the paper's title (read on a
+    # stored copy of its first page); about 700-1200 C (from memory, their compiled
+    # experiments; no table of the paper could be read here)
     ("h2o_solubility", "moore1998"): CalibrationRange(
         "Moore et al. 1998", "natural melts, basalt to rhyolite", (45.0, 78.0), (1.0, 3000.0),
         (700.0, 1200.0)),
     # Liu, Zhang and Behrens 2005, J. Volcanol. Geotherm. Res. 143:219-235: metaluminous
-    # rhyolite, 0-500 MPa, 700-1200 C (from memory)
+    # rhyolite, 0-500 MPa, 700-1200 C (from memory; the abstract's stated range of use as
+    # recalled, not read here)
     ("h2o_solubility", "liu2005"): CalibrationRange(
         "Liu et al. 2005", "metaluminous rhyolite", (70.0, 80.0), (1.0, 5000.0), (700.0, 1200.0)),
     ("co2_solubility", "liu2005"): CalibrationRange(
         "Liu et al. 2005", "metaluminous rhyolite", (70.0, 80.0), (1.0, 5000.0), (700.0, 1200.0)),
     # Shishkina et al. 2014, Chem. Geol. 388:112-129: basalt to basaltic andesite and
-    # alkaline mafic melts, 50-500 MPa, experiments near 1200-1250 C (from memory)
+    # alkaline mafic melts, experiments at 50-500 MPa and 1200-1250 C (from memory; the
+    # paper's text and tables could not be read here). The law has no temperature term:
+    # below 1200 C it is applied at temperatures where it was not tested, so a magma at
+    # 1050-1200 C is flagged on purpose. Not widened: the one stored statement on the
+    # temperature effect (Stolper et al. 1987, Am. Mineral. 72:1071, abstract: total CO2
+    # solubility in albite melt nearly independent of T at 1450-1625 C and 15-30 kbar)
+    # is for another melt and far from these conditions.
     ("co2_solubility", "shishkina2014"): CalibrationRange(
         "Shishkina et al. 2014", "mafic to intermediate melts (basalt to basaltic andesite, "
         "alkaline mafic)", (40.0, 58.0), (500.0, 5000.0), (1200.0, 1250.0)),

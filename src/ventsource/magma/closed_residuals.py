@@ -9,7 +9,7 @@ from ventsource.chemistry.species import MOLAR_MASS_G_MOL
 from ventsource.magma.degassing_context import (
     _C_DS, _C_LNRMAX, _C_MONO, _C_NC, _C_NH, _C_NS, _C_P, _C_PHIC, _C_PHIH, _C_SK, _C_T,
     _CO2_MOL_PER_PPM,
-    _H2O_MOL_PER_WT_PERCENT, _kernel,
+    _H2O_MOL_PER_WT_PERCENT, _caps_at_water, _kernel,
 )
 from ventsource.magma.solubility_co2 import co2_ppm
 from ventsource.magma.solubility_h2o import h2o_wt_percent
@@ -205,12 +205,14 @@ def _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh):
         # A sulfide liquid or anhydrite may take the S the melt and gas cannot hold:
         # either no phase (q = 1) below the cap on fS2, or a phase (q < 1) with fS2
         # buffered at the cap. max(ln q, u2 - u2_cap) = 0 says both at once
-        # (complementarity; Newton follows the active branch).
+        # (complementarity; Newton follows the active branch). The SCSS cap moves with
+        # the melt's H2O (n_w = mh / 2 mol per gram), so its branch depends on u0, u1.
+        d_cap = _caps_at_water(ctx, 0.5 * mh)
         cap = z[2] - 2.0 * ctx[_C_LNRMAX]
         if cap > res:
             r[3] = cap
-            jac[12] = 0.0
-            jac[13] = 0.0
+            jac[12] = -d_cap * h2o_0 * _H2O_MOL_PER_WT_PERCENT
+            jac[13] = -d_cap * h2o_1 * _H2O_MOL_PER_WT_PERCENT
             jac[14] = 1.0
             jac[15] = 0.0
     s = 0.0

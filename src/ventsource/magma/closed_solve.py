@@ -23,7 +23,7 @@ import math
 from ventsource.magma.closed_residuals import _evaluate
 from ventsource.magma.closed_start import G_START_MIN, _initial_guess
 from ventsource.magma.degassing_context import (
-    _W_JAC, _W_JACT, _W_ITER, _W_M, _W_MGT, _W_R, _W_RT, _W_STEP, _W_TRIAL, _W_XT, MG_SIZE,
+    _C_SK, _caps_at_water, _W_JAC, _W_JACT, _W_ITER, _W_M, _W_MGT, _W_R, _W_RT, _W_STEP, _W_TRIAL, _W_XT, MG_SIZE,
     STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, _kernel,
 )
 from ventsource.magma.newton_step import _solve_newton
@@ -44,12 +44,13 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
         g_start = _initial_guess(ctx, h_law, h_par, c_law, c_par, z, False)
     else:
         g_start = z[3]
-    st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work)
+    # a warm start (the same state at a nearby fO2) keeps the law elasticities in mg
+    st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work, use_guess)
     if st == STATUS_FAILED and use_guess and g_start < 0.0:
         # H and C alone dissolve: before calling it "no gas", try once from a start
         # where S makes a small gas
         _initial_guess(ctx, h_law, h_par, c_law, c_par, z, True)
-        st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work)
+        st = _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work, True)
     if st == STATUS_FAILED and g_start < 0.0:
         # Above saturation the 4-D iteration can stall at g < 0 (with D_S the S
         # balance has no root there); the H-C system alone, g_start < 0, already
@@ -60,9 +61,11 @@ def solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work):
 
 
 @_kernel
-def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
+def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work, refresh):
     """Damped Newton iteration from z; STATUS_GAS, STATUS_NO_GAS (root with g <= 0)
-    or STATUS_FAILED."""
+    or STATUS_FAILED. refresh: recompute the law elasticities at the start (a cold
+    start); a warm start reuses those in mg (the line search refreshes them while
+    the merit is above REFRESH_MERIT)."""
     # S (and the S dilution of H2O and CO2) only add gas, so the true g is above the
     # H-C estimate; a start on the positive side keeps the iteration off the g < 0
     # region where the S balance may have no root.
@@ -80,7 +83,7 @@ def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
     # trace element whose balance is ~ ln(g) + u stays near-linear, and g < 0 remains
     # reachable (undersaturated magma).
     v = math.asinh(z[3] / G_SCALE)
-    merit = _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, True)
+    merit = _evaluate(z, ctx, h_law, h_par, c_law, c_par, x, mg, r, jac, refresh)
     dg = math.sqrt(G_SCALE * G_SCALE + z[3] * z[3])  # dg/dv = G_SCALE cosh(v)
     for i in range(4):
         jac[4 * i + 3] *= dg
@@ -131,6 +134,8 @@ def _newton(ctx, h_law, h_par, c_law, c_par, z, x, mg, work):
         converged = True
     if not converged:
         return STATUS_FAILED
+    if ctx[_C_SK] > 0.0:
+        _caps_at_water(ctx, 0.5 * mg[3])  # the cap in force is the final state's
     # normalise away the last 1e-12 of the sum
     s = 0.0
     for j in range(10):

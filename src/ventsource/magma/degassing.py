@@ -22,7 +22,8 @@ from numba import njit
 
 from ventsource.magma.redox_balance import gas_free_dfmq, set_redox_reference, solve_with_redox
 from ventsource.magma.degassing_context import (  # noqa: F401  (re-exported for callers)
-    _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_LNRMAX, _C_SCSS_A, _C_SK, CTX_SIZE, M_CO2, M_H2O,
+    _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_LNRMAX, _C_MDRY, _C_NH, _C_SCSS_A, _C_SCSS_W, _C_SK,
+    _caps_at_water, CTX_SIZE, M_CO2, M_H2O,
     M_S, MG_SIZE, P_SAT_CAP_BAR, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_NONE,
     WORK_SIZE, _fill_context, _kernel,
 )
@@ -86,6 +87,7 @@ def _store_state(j, st, z, mg, ctx, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out
             melt_out[j, 1] = co2_ppm_bulk
             melt_out[j, 2] = s_ppm
             if capped:
+                _caps_at_water(ctx, 0.5 * ctx[_C_NH])  # no gas: the melt holds all the H2O
                 cap_ppm = ctx[_C_SK] * math.exp(ctx[_C_LNRMAX]) * M_S * 1e6
                 if s_ppm > cap_ppm:
                     melt_out[j, 2] = cap_ppm
@@ -108,6 +110,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     ctx[_C_CSB] = ln_cs_b_k
     for i in range(5):  # SCSS (A, B, per bar) and SCAS (A, B) terms, see sulfur_laws
         ctx[_C_SCSS_A + i] = s_caps[i]
+    ctx[_C_SCSS_W] = s_caps[5]  # the SCSS law's H2O term and the dry melt's molar mass
+    ctx[_C_MDRY] = s_caps[6]
     for j in range(temperature_k.shape[0]):
         _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
                            co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par)
@@ -167,9 +171,9 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     fluid/melt S partition coefficient D_S (mass fraction in gas / in melt).
     sulfide_capacity: None, or (A, B) with ln C_S = A + B/T(K): melt S from the
     sulfide capacity and the Jugo et al. (2010) sulfate fraction instead of D_S
-    (s_partition is then ignored). sulfur_caps: None, or the five terms
-    (SCSS A, B, C per bar; SCAS A, B) of sulfur_laws.prepare_sulfur_caps (NaN: no
-    cap of that kind); used with sulfide_capacity only. redox: None (buffered: fO2 at
+    (s_partition is then ignored). sulfur_caps: None, or the seven terms
+    (SCSS A, B, C per bar; SCAS A, B; SCSS H2O coefficient, dry molar mass) of
+    sulfur_laws.prepare_sulfur_caps (NaN: no cap of that kind, no H2O term); used with sulfide_capacity only. redox: None (buffered: fO2 at
     dfmq at every pressure) or (Kress-Carmichael composition term, FeOt wt%) of the melt
     (iron_redox.kc91_composition_term): evolving redox, dfmq is the magma's before
     degassing and fO2 follows the electron balance of redox_balance.py.
@@ -197,7 +201,7 @@ def degas(temperature_c, pressure_bar, dfmq, h2o_wt, co2_ppm, s_ppm, s_partition
     phase = np.empty(n, dtype=np.int64)
     d_at_p = np.empty(n)
     redox_par = np.zeros(3) if redox is None else np.array([1.0, float(redox[0]), float(redox[1])])
-    caps = np.full(5, math.nan) if sulfur_caps is None else np.ascontiguousarray(sulfur_caps, dtype=float)
+    caps = np.full(7, math.nan) if sulfur_caps is None else np.ascontiguousarray(sulfur_caps, dtype=float)
     _degas_batch(t_c + 273.15, p, d, h2o, co2, s, ds, style == "open", int(open_steps),
                  bool(saturation), eos == "ideal", int(h2o_law[0]),
                  np.ascontiguousarray(h2o_law[1], dtype=float), int(co2_law[0]),

@@ -71,7 +71,15 @@ _C_NFE = 51
 _C_KCC = 52
 _C_E0 = 53
 _C_DFMQ0 = 54
-CTX_SIZE = 55
+# The H2O term of the SCSS law (sulfur_laws.scss_water_term): its coefficient W on the
+# melt's H2O mole fraction phi (NaN: no H2O term) and the dry melt's mean molar mass
+# (g/mol); the sulfide and anhydrite caps' ln fS2^0.5 of the dry law (the sulfide one
+# moves with the melt's H2O; _C_LNRMAX holds the cap in force).
+_C_SCSS_W = 55
+_C_MDRY = 56
+_C_LNRS = 57
+_C_LNRA = 58
+CTX_SIZE = 59
 SULFUR_PHASE_NONE = 0
 SULFUR_PHASE_SULFIDE = 1
 SULFUR_PHASE_ANHYDRITE = 2
@@ -161,20 +169,53 @@ def _update_sulfur_caps(ctx, sulfide_k, sulfate):
     """ln of the fS2^0.5 at which the melt saturates in a sulfide liquid (its S2- reaches
     SCSS) or in anhydrite (its S6+ reaches SCAS), whichever comes first. A sulfur
     phase present buffers fS2 there: melt S stays at the cap, the excess stays in
-    the phase and does not degas."""
+    the phase and does not degas. Set here for the melt holding all the magma's H2O
+    (no gas); the closed-system residuals move the SCSS cap with the melt's H2O."""
     t = ctx[_C_T]
+    ctx[_C_LNRS] = math.inf
+    ctx[_C_LNRA] = math.inf
     if math.isfinite(ctx[_C_SCSS_A]):
         ln_scss = ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P] * ctx[_C_P]
-        ln_r = ln_scss + math.log(1e-6 / M_S) - math.log(sulfide_k)
-        if ln_r < ctx[_C_LNRMAX]:
-            ctx[_C_LNRMAX] = ln_r
-            ctx[_C_CAPKIND] = SULFUR_PHASE_SULFIDE
+        ctx[_C_LNRS] = ln_scss + math.log(1e-6 / M_S) - math.log(sulfide_k)
     if math.isfinite(ctx[_C_SCAS_A]) and sulfate > 0.0:
         ln_scas = ctx[_C_SCAS_A] + ctx[_C_SCAS_B] / t
-        ln_r = ln_scas + math.log(1e-6 / M_S) - math.log(sulfide_k * sulfate / (1.0 - sulfate))
-        if ln_r < ctx[_C_LNRMAX]:
-            ctx[_C_LNRMAX] = ln_r
-            ctx[_C_CAPKIND] = SULFUR_PHASE_ANHYDRITE
+        ctx[_C_LNRA] = ln_scas + math.log(1e-6 / M_S) - math.log(sulfide_k * sulfate / (1.0 - sulfate))
+    _caps_at_water(ctx, 0.5 * ctx[_C_NH])
+
+
+@_kernel
+def scss_water_term(ctx, n_w):
+    """(ln SCSS(H2O) - ln SCSS(dry), its derivative in n_w) for a melt holding n_w mol
+    H2O per gram (sulfur_laws.scss_water_term: Li and Ripley 2009's H2O term and the
+    dilution of the other oxides and of ppm by the H2O). (0, 0) without an H2O term."""
+    w = ctx[_C_SCSS_W]
+    if not math.isfinite(w) or n_w <= 0.0:
+        return 0.0, 0.0
+    m_d = ctx[_C_MDRY]
+    den = 1.0 + n_w * (m_d - M_H2O)
+    phi = n_w * m_d / den
+    mix = 1.0 - phi + phi * M_H2O / m_d
+    term = -phi * w - math.log(mix)
+    d_term_d_phi = -w - (M_H2O / m_d - 1.0) / mix
+    return term, d_term_d_phi * m_d / (den * den)
+
+
+@_kernel
+def _caps_at_water(ctx, n_w):
+    """Set the cap in force (_C_LNRMAX, _C_CAPKIND) for a melt holding n_w mol H2O per
+    gram; returns d _C_LNRMAX / d n_w (0 where anhydrite or no phase caps the melt)."""
+    term, slope = scss_water_term(ctx, n_w)
+    ln_s = ctx[_C_LNRS] + term
+    ctx[_C_LNRMAX] = math.inf
+    ctx[_C_CAPKIND] = SULFUR_PHASE_NONE
+    if ln_s < ctx[_C_LNRMAX]:
+        ctx[_C_LNRMAX] = ln_s
+        ctx[_C_CAPKIND] = SULFUR_PHASE_SULFIDE
+    if ctx[_C_LNRA] < ctx[_C_LNRMAX]:
+        ctx[_C_LNRMAX] = ctx[_C_LNRA]
+        ctx[_C_CAPKIND] = SULFUR_PHASE_ANHYDRITE
+        return 0.0
+    return slope if ctx[_C_CAPKIND] == SULFUR_PHASE_SULFIDE else 0.0
 
 
 @_kernel

@@ -34,7 +34,9 @@ from ventsource.magma.degassing_context import (
     _C_CAPKIND, _C_DFMQ, _C_DFMQ0, _C_E0, _C_KCC, _C_LNFO2, _C_LNRMAX, _C_NFE, _C_NS, _C_P,
     _C_REDOX, _C_SCAS_A, _C_SCAS_B, _C_SCSS_A, _C_SCSS_B, _C_SCSS_P, _C_SK, _C_T, _W_JACT, _W_M,
     _W_MGT, _W_RT, _W_STEP, _W_TRIAL, _W_XT, M_S, MG_SIZE,
-    MAX_SULFATE_FRACTION, STATUS_FAILED, STATUS_GAS, SULFUR_PHASE_ANHYDRITE, _kernel, _set_dfmq,
+    MAX_SULFATE_FRACTION, STATUS_FAILED, STATUS_GAS, STATUS_NO_GAS, SULFUR_PHASE_ANHYDRITE, _C_NH,
+    _kernel,
+    _set_dfmq, scss_water_term,
 )
 from ventsource.magma.newton_step import _solve_newton
 from ventsource.magma.iron_redox import KC_A, KC_B, KC_C, KC_E, KC_F, KC_G, KC_H, KC_T0
@@ -112,7 +114,9 @@ def set_redox_reference(ctx, n_fe, comp_term, evolving):
         to_mol = 1e-6 / M_S
         cap = math.inf
         if math.isfinite(ctx[_C_SCSS_A]):
-            cap = math.exp(ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P]) * to_mol / (1.0 - x6)
+            water, _d = scss_water_term(ctx, 0.5 * ctx[_C_NH])  # all the H2O dissolved
+            cap = (math.exp(ctx[_C_SCSS_A] + ctx[_C_SCSS_B] / t + ctx[_C_SCSS_P] + water) * to_mol
+                   / (1.0 - x6))
         scas = math.inf
         if math.isfinite(ctx[_C_SCAS_A]) and x6 > 0.0:
             scas = math.exp(ctx[_C_SCAS_A] + ctx[_C_SCAS_B] / t) * to_mol / x6
@@ -150,7 +154,8 @@ def _slope(ctx, z, x, mg):
 def _implicit_slope(ctx, h_law, h_par, c_law, c_par, z, mg, work, ln_k, e_here):
     """dE/d dFMQ along the equilibrium: the closed-system residuals at dFMQ + h with the
     same z, one linear solve with their Jacobian for dz (implicit function theorem),
-    E at the moved state. Two residual evaluations, no iteration; NaN if it fails."""
+    E at the moved state. Two residual evaluations, no iteration; NaN if it fails.
+    Leaves ctx at dFMQ + h: the caller moves it on (a restore here cost ~0.1 us a step)."""
     d = ctx[_C_DFMQ]
     rt = work[_W_RT:_W_RT + 4]
     jt = work[_W_JACT:_W_JACT + 16]
@@ -170,7 +175,6 @@ def _implicit_slope(ctx, h_law, h_par, c_law, c_par, z, mg, work, ln_k, e_here):
         merit = _evaluate(trial, ctx, h_law, h_par, c_law, c_par, xt, mgt, rt, jt, False)
         if math.isfinite(merit):
             slope = (magma_electrons(ctx, trial, xt, mgt) - e_here) / SLOPE_STEP
-    _set_dfmq(ctx, d, ln_k)
     return slope
 
 
@@ -179,6 +183,15 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
     """Closed-system equilibrium at ctx's T and P; with evolving redox also the dFMQ
     (left in ctx) at which melt + gas hold the redox budget ctx[_C_E0]."""
     st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work)
+    if ctx[_C_REDOX] != 0.0 and st == STATUS_NO_GAS:
+        # Gas or not is decided at the melt's own dFMQ at this pressure (melt and sulfur
+        # phase holding the whole budget, gas_free_dfmq), not at the start value: near
+        # saturation the sulfur gas species tip the balance, and the start value depends
+        # on the caller (the saturation search starts from its last solve)
+        d_free = gas_free_dfmq(ctx, ln_k)
+        if not math.isfinite(d_free):
+            return STATUS_FAILED
+        st = solve_closed(ctx, h_law, h_par, c_law, c_par, z, x, mg, True, work)
     if ctx[_C_REDOX] == 0.0 or st != STATUS_GAS:
         return st
     tol = REDOX_TOL * ctx[_C_NFE]
@@ -186,13 +199,23 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
     res = magma_electrons(ctx, z, x, mg) - ctx[_C_E0]
     d_prev = d
     res_prev = res
+    # E rises with dFMQ: the root stays bracketed by the iterates on either side. Where
+    # a sulfur phase appears or vanishes E(dFMQ) has a kink, and Newton steps from its
+    # two sides can cycle; a step leaving the bracket is replaced by its midpoint.
+    lo = -math.inf
+    hi = math.inf
     for it in range(MAX_REDOX_STEPS):
         if abs(res) <= tol:
             return STATUS_GAS
+        if res < 0.0:
+            lo = max(lo, d)
+        else:
+            hi = min(hi, d)
         slope = _implicit_slope(ctx, h_law, h_par, c_law, c_par, z, mg, work, ln_k,
                                 res + ctx[_C_E0])
         implicit = slope > 0.0
         if not implicit:  # NaN or a non-physical sign: secant, or the pair estimate
+            _set_dfmq(ctx, d, ln_k)
             slope = _slope(ctx, z, x, mg)
             if it > 0 and d != d_prev:
                 secant = (res - res_prev) / (d - d_prev)
@@ -200,6 +223,9 @@ def solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, use_guess, work,
                     slope = secant
         step = -res / slope
         step = max(-MAX_DFMQ_STEP, min(MAX_DFMQ_STEP, step))
+        if not (lo < d + step < hi) and math.isfinite(lo) and math.isfinite(hi):
+            step = 0.5 * (lo + hi) - d
+            implicit = False  # no predictor for a bisection step
         d_prev = d
         res_prev = res
         d = d + step

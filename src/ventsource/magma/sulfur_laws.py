@@ -18,7 +18,8 @@ import math
 import numpy as np
 
 from ventsource.magma.melt import (
-    CATIONS_PER_OXIDE, anhydrous_mole_fractions, cation_fractions, mean_molar_mass_g_mol,
+    CATIONS_PER_OXIDE, H2O_MOLAR_MASS_G_MOL, anhydrous_mole_fractions, cation_fractions,
+    mean_molar_mass_g_mol,
 )
 
 M_S_G_MOL = 32.06
@@ -41,12 +42,15 @@ ONEILL2021_CS = {"const": 8.77, "inv_t": -23590.0, "t_ref_k": 1673.0, "NaK": 6.7
 # Li and Ripley (2009), Econ. Geol. 104:405-412, SCSS of mafic melts (their eq. with
 # the pressure term): ln X_S = -1.76 - 4740/T - 0.021 P(kbar) + 5.559 X_FeO
 #   + 2.565 X_TiO2 + 2.709 X_CaO - 3.192 X_SiO2 - 3.049 X_H2O,
-# X mole fractions of the oxides. From memory. The H2O term is left out (the melt's
-# H2O changes along a path); with 3-5 wt% H2O it would lower SCSS by ~25-35 %.
+# X mole fractions of the oxides in the hydrous melt. From memory. The H2O term acts
+# through the melt's own H2O at each state (the kernels move the cap with it):
+# X_i = X_i,dry (1 - phi) with phi = X_H2O, so ln X_S = (dry law) - phi (sum_i k_i
+# X_i,dry + 3.049), and ppm = 1e6 X_S M_S / M_melt with the hydrous mean molar mass
+# (scss_water_term). With 3-5 wt% H2O in a basalt it lowers SCSS by 13-21 % (MORB below).
 # Calibration (from memory): basaltic to andesitic melts, 1 bar to ~9 GPa,
 # 1200-1800 C; stated fit error about 20-30 % relative (from memory).
 LI_RIPLEY2009_SCSS = {"const": -1.76, "inv_t": -4740.0, "per_kbar": -0.021, "FeOt": 5.559,
-                      "TiO2": 2.565, "CaO": 2.709, "SiO2": -3.192}
+                      "TiO2": 2.565, "CaO": 2.709, "SiO2": -3.192, "H2O": -3.049}
 
 # Anhydrite saturation: no published SCAS law's coefficients could be verified here
 # (Chowdhury and Dasgupta 2019, Chem. Geol. 522:162, and Zajacz and Tsay 2019,
@@ -85,26 +89,51 @@ def sulfide_capacity_oneill2021(melt_oxides_wt):
     return a_ppm - LN_PPM_PER_WT_PERCENT, b
 
 
-def scss_li_ripley2009(melt_oxides_wt):
-    """(A, B, C) with ln SCSS (ppm) = A + B/T(K) + C P(bar); Li and Ripley (2009), see above."""
+def _dry_terms(melt_oxides_wt):
     k = LI_RIPLEY2009_SCSS
     x = anhydrous_mole_fractions(melt_oxides_wt)
-    comp = sum(k[name] * x.get(name, 0.0) for name in ("FeOt", "TiO2", "CaO", "SiO2"))
+    return sum(k[name] * x.get(name, 0.0) for name in ("FeOt", "TiO2", "CaO", "SiO2"))
+
+
+def scss_li_ripley2009(melt_oxides_wt):
+    """(A, B, C) with ln SCSS (ppm) = A + B/T(K) + C P(bar) of the dry melt; Li and
+    Ripley (2009), see above (the H2O term: scss_water_term)."""
+    k = LI_RIPLEY2009_SCSS
+    comp = _dry_terms(melt_oxides_wt)
     # X_S is a mole fraction among the oxide units: ppm = 1e6 X_S M_S / M_melt (X_S << 1)
     to_ppm = math.log(1.0e6 * M_S_G_MOL / mean_molar_mass_g_mol(melt_oxides_wt))
     return k["const"] + comp + to_ppm, k["inv_t"], k["per_kbar"] / 1000.0
 
 
+def scss_water_coefficient(melt_oxides_wt):
+    """(W, dry mean molar mass g/mol): ln SCSS falls by W phi for an H2O mole fraction
+    phi, besides the dilution of ppm by the lighter H2O units (scss_water_term)."""
+    return (_dry_terms(melt_oxides_wt) - LI_RIPLEY2009_SCSS["H2O"],
+            mean_molar_mass_g_mol(melt_oxides_wt))
+
+
+def scss_water_term(melt_oxides_wt, h2o_wt):
+    """ln SCSS(hydrous) - ln SCSS(dry) for a melt with h2o_wt wt% H2O (array)."""
+    w, m_dry = scss_water_coefficient(melt_oxides_wt)
+    h = np.asarray(h2o_wt, float) / 100.0
+    n_w = h / H2O_MOLAR_MASS_G_MOL
+    phi = n_w / (n_w + (1.0 - h) / m_dry)
+    return -phi * w - np.log(1.0 - phi + phi * H2O_MOLAR_MASS_G_MOL / m_dry)
+
+
 def prepare_sulfur_caps(melt_oxides_wt):
-    """The five cap terms the kernels read: SCSS (A, B, C per bar), SCAS (A, B)."""
+    """The seven cap terms the kernels read: SCSS (A, B, C per bar), SCAS (A, B), the
+    SCSS H2O coefficient W and the dry melt's mean molar mass."""
     a, b, c = scss_li_ripley2009(melt_oxides_wt)
-    return np.array([a, b, c, SCAS_A, SCAS_B_K], dtype=np.float64)
+    w, m_dry = scss_water_coefficient(melt_oxides_wt)
+    return np.array([a, b, c, SCAS_A, SCAS_B_K, w, m_dry], dtype=np.float64)
 
 
-def scss_ppm(melt_oxides_wt, temperature_k, pressure_bar):
-    """SCSS (ppm) as array over temperature and pressure."""
+def scss_ppm(melt_oxides_wt, temperature_k, pressure_bar, h2o_wt=0.0):
+    """SCSS (ppm) as array over temperature, pressure and the melt's H2O (wt%)."""
     a, b, c = scss_li_ripley2009(melt_oxides_wt)
-    return np.exp(a + b / np.asarray(temperature_k, float) + c * np.asarray(pressure_bar, float))
+    return np.exp(a + b / np.asarray(temperature_k, float) + c * np.asarray(pressure_bar, float)
+                  + scss_water_term(melt_oxides_wt, h2o_wt))
 
 
 def scas_ppm(temperature_k):
@@ -118,5 +147,5 @@ def sulfide_capacity_wt(melt_oxides_wt, temperature_k):
     return np.exp(a + b / np.asarray(temperature_k, float))
 
 
-__all__ = ["CATIONS_PER_OXIDE", "prepare_sulfur_caps", "scas_ppm", "scss_ppm",
+__all__ = ["CATIONS_PER_OXIDE", "prepare_sulfur_caps", "scas_ppm", "scss_ppm", "scss_water_term",
            "sulfide_capacity_oneill2021", "sulfide_capacity_wt", "scss_li_ripley2009"]

@@ -48,10 +48,10 @@ WINDOWS = (("period 1", 0.0), ("period 2", 20 / 60), ("period 3", 32 / 60), ("pe
 # docs/models.md). The recharge brings twice the CO2 and half the sulfur, degassing deeper.
 SOURCES = {
     "steady": dict(temperature_c=1080.0, quench_temperature_c=880.0, dfmq=1.0, h2o_wt=4.0,
-                   co2_ppm=1500.0, s_ppm=1500.0, s_partition=80.0, scrubbed_h2s=0.0, exsolved_gas_wt=0.0, pressure=150.0,
+                   co2_ppm=1500.0, s_ppm=1500.0, scrubbed_h2s=0.0, exsolved_gas_wt=0.0, pressure=150.0,
                    co2_flux=1500.0),
     "fresh": dict(temperature_c=1080.0, quench_temperature_c=880.0, dfmq=1.0, h2o_wt=4.0,
-                  co2_ppm=3000.0, s_ppm=750.0, s_partition=80.0, scrubbed_h2s=0.0, exsolved_gas_wt=0.0, pressure=450.0,
+                  co2_ppm=3000.0, s_ppm=750.0, scrubbed_h2s=0.0, exsolved_gas_wt=0.0, pressure=450.0,
                   co2_flux=3000.0),
 }
 

@@ -7,7 +7,11 @@ def plain_number(value, _pos=None):
     """Tick text in plain decimals (0.2, 0.5, 1, 2, 300), never powers of ten."""
     if not np.isfinite(value) or value <= 0:
         return ""
-    return f"{value:.6g}" if 1e-4 <= value < 1e6 else f"{value:.0e}"
+    if 1e-4 <= value < 1e6:
+        return f"{value:.6g}"
+    if 1e-9 <= value < 1e-4:  # 0.00001 rather than 1e-05 (ratio planes reach that far)
+        return np.format_float_positional(float(f"{value:.6g}"), trim="-")
+    return f"{value:.0e}"
 
 
 def _plain_at(leads):

@@ -16,7 +16,7 @@ import pandas as pd
 
 CO2_FLUX_TPD = 1500.0       # invented mean CO2 output of the fictional volcano
 SOURCE = dict(temperature_c=1080.0, quench_temperature_c=880.0, dfmq=1.0, h2o_wt=4.0, co2_ppm=1500.0, s_ppm=1500.0,
-              s_partition=80.0, scrubbed_h2s=0.0, exsolved_gas_wt=0.0)
+              scrubbed_h2s=0.0, exsolved_gas_wt=0.0)
 
 
 def sulfur_truth(n_rows=36, start="2025-03-01", step_days=7, phases=(0.25, 0.85)):

@@ -194,7 +194,10 @@ def _to_idata(run: ModelRun, lik: Likelihood, measurement: Measurement, rng, n_p
     ss = idata.sample_stats
     ss["lp"].attrs["units"] = "log density"
     for k, v in s.stats.items():
-        ss.attrs[k] = int(v) if isinstance(v, (bool, np.bool_)) else v
+        # netCDF attributes hold numbers, strings and flat arrays: a table (the melt at
+        # the degassing pressure, sulfur_flags) is kept as its JSON text, like the prior
+        ss.attrs[k] = (int(v) if isinstance(v, (bool, np.bool_))
+                       else json.dumps(v) if isinstance(v, dict) else v)
     ss.attrs["tau"] = np.asarray(s.tau, dtype=float)
     ss.attrs["acceptance_fraction"] = np.asarray(s.acceptance_fraction, dtype=float)
     ss.attrs["log_evidence"] = float(run.log_z)
