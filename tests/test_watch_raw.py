@@ -145,3 +145,27 @@ def test_bad_raw_options_are_refused_before_anything_is_written(tmp_path):
     with pytest.raises(InputError, match="do not apply"):
         make_context(str(tmp_path / "raw"), str(PRIOR), str(tmp_path / "out"), raw_options="--figures x")
     assert not (tmp_path / "out").exists()
+
+
+def test_a_stop_in_the_middle_of_an_append_is_finished_on_restart(tmp_path, monkeypatch):
+    from ventsource.workflow.watch import raw_folder
+    raw, out = tmp_path / "raw", tmp_path / "out"
+    raw.mkdir()
+    _drop(raw, "a.csv", 0, 1)
+    _watch(raw, out)
+    finish = raw_folder.RawFolder._finish_append
+
+    def cut(self, state):   # half the recorded text written, then the process stops
+        with open(self.measurement_path, "w") as fh:
+            fh.write(state["pending"]["text"][:len(state["pending"]["text"]) // 2])
+        raise KeyboardInterrupt
+    monkeypatch.setattr(raw_folder.RawFolder, "_finish_append", cut)
+    with pytest.raises(KeyboardInterrupt):
+        _watch(raw, out)
+    assert _state(out)["raw"]["pending"] is not None
+    monkeypatch.setattr(raw_folder.RawFolder, "_finish_append", finish)
+    _watch(raw, out)
+    settings, kw = parse_raw_options(OPTIONS)
+    run_ratios(str(raw / "a.csv"), str(tmp_path / "ref.csv"), settings, **kw)
+    assert _rows(out / MEASUREMENT_NAME) == _rows(tmp_path / "ref.csv")
+    assert [r["id"] for r in _rows(out / "summary.csv")] == [r["id"] for r in _rows(tmp_path / "ref.csv")]
