@@ -47,7 +47,7 @@ class Watcher:
         self.answered_at = {}   # row id -> wall-clock time (s) its answer was written
         self.pending = deque()  # (line, text, byte offset after it, NewRow or None) read, not yet taken
         self._answered, self._lz_cache, self.version, self._moves = set(), {}, None, 0
-        self.raw, self.once, self._raw_looked = None, False, False
+        self.raw, self.once, self._raw_looked, self._raw_look_t, self.poll_s = None, False, False, -math.inf, 1.0
 
     def log(self, text):
         stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
@@ -98,8 +98,9 @@ class Watcher:
         arrived meanwhile are answered at once. Returns how many lines were read (and raw files
         decided, watching a raw folder: looked at once per run with --once)."""
         n = 0
-        if self.raw is not None and not (self.once and self._raw_looked):
-            self._raw_looked = True
+        now = time.monotonic()   # looks at the raw folder at least poll_s apart (once per run with --once)
+        if self.raw is not None and not (self.once and self._raw_looked) and now - self._raw_look_t >= self.poll_s:
+            self._raw_looked, self._raw_look_t = True, now
             n += self.raw.step(self.state, self._save)
         n += self._read()
         while self.pending:
@@ -340,7 +341,7 @@ class Watcher:
 
     def run(self, once=False, poll_s=1.0, stop=None):
         """Follow the file until stopped (Ctrl-C, stop() true) or, with once, until no new line."""
-        self.once = once
+        self.once, self.poll_s = once, poll_s
         self.start()
         while True:
             n = self.poll()
