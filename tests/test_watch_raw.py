@@ -18,7 +18,8 @@ import pytest
 from ventsource.common.errors import InputError
 from ventsource.workflow.plume.pipeline import run_ratios
 from ventsource.workflow.plume.synthetic import write_synthetic_csv
-from ventsource.workflow.watch.raw_folder import MEASUREMENT_NAME, parse_raw_options
+from ventsource.cli.ratios_command import parse_ratio_options
+from ventsource.workflow.watch.raw_folder import MEASUREMENT_NAME, RawOptions
 from ventsource.workflow.watch.session import make_context, run_watch
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -29,7 +30,7 @@ OPTIONS = "--window 30min --ratios SO2/CO2,H2S/SO2,H2O/CO2"
 
 def _watch(folder, out):
     ctx = make_context(str(folder), str(PRIOR), str(out), seed=2, window="30d", figures=False,
-                       n_particles=60, n_runs=2, check_every=0, raw_options=OPTIONS)
+                       n_particles=60, n_runs=2, check_every=0, raw_options=RawOptions(OPTIONS, *parse_ratio_options(OPTIONS)))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         return run_watch(ctx, once=True, stream=open("/dev/null", "w"))
@@ -61,7 +62,7 @@ def test_dropped_files_give_the_rows_of_ventsource_ratios_and_a_restart_repeats_
     # the rows are those `ventsource ratios` writes for each file, in time order
     expected = []
     for name in ("a.csv", "b.csv"):
-        settings, kw = parse_raw_options(OPTIONS)
+        settings, kw = parse_ratio_options(OPTIONS)
         run_ratios(str(raw / name), str(tmp_path / f"ref-{name}"), settings, **kw)
         expected += _rows(tmp_path / f"ref-{name}")
     got = _rows(out / MEASUREMENT_NAME)
@@ -140,10 +141,12 @@ def test_a_corrupt_file_and_a_copy_are_skipped_with_one_log_line_each(tmp_path):
 
 def test_bad_raw_options_are_refused_before_anything_is_written(tmp_path):
     (tmp_path / "raw").mkdir()
-    with pytest.raises(InputError, match="--raw-options"):
-        make_context(str(tmp_path / "raw"), str(PRIOR), str(tmp_path / "out"), raw_options="--method nope")
+    with pytest.raises(InputError, match="--raw-options: argument --method"):
+        parse_ratio_options("--method nope")
     with pytest.raises(InputError, match="do not apply"):
-        make_context(str(tmp_path / "raw"), str(PRIOR), str(tmp_path / "out"), raw_options="--figures x")
+        parse_ratio_options("--figures x")
+    with pytest.raises(InputError, match="raw sensor files needs"):
+        make_context(str(tmp_path / "raw"), str(PRIOR), str(tmp_path / "out"))
     assert not (tmp_path / "out").exists()
 
 
@@ -165,7 +168,7 @@ def test_a_stop_in_the_middle_of_an_append_is_finished_on_restart(tmp_path, monk
     assert _state(out)["raw"]["pending"] is not None
     monkeypatch.setattr(raw_folder.RawFolder, "_finish_append", finish)
     _watch(raw, out)
-    settings, kw = parse_raw_options(OPTIONS)
+    settings, kw = parse_ratio_options(OPTIONS)
     run_ratios(str(raw / "a.csv"), str(tmp_path / "ref.csv"), settings, **kw)
     assert _rows(out / MEASUREMENT_NAME) == _rows(tmp_path / "ref.csv")
     assert [r["id"] for r in _rows(out / "summary.csv")] == [r["id"] for r in _rows(tmp_path / "ref.csv")]

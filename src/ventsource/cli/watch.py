@@ -41,9 +41,16 @@ def cmd_watch(args):
         return _replay(args)
     if not args.data or not args.prior:
         raise InputError("watch: give DATA and --prior (or --replay-demo)")
+    raw = None
+    if os.path.isdir(args.data):
+        from ventsource.cli.ratios_command import parse_ratio_options
+        from ventsource.workflow.watch.raw_folder import RawOptions
+        raw = RawOptions(args.raw_options, *parse_ratio_options(args.raw_options))
+    elif args.raw_options:
+        raise InputError("--raw-options: DATA must then be a folder of raw sensor files")
     ctx = make_context(args.data, args.prior, args.out, seed=args.seed, window=args.window, sigma=args.sigma,
                        alerts_path=args.alerts, figures=not args.no_figures, n_particles=args.particles,
-                       check_every=args.check_every, raw_options=args.raw_options)
+                       check_every=args.check_every, raw_options=raw)
     print(f"watching {args.data} into {args.out}/ (Ctrl-C stops; the same command resumes)")
     print(f"Caution: {CAUTION}")
     run_watch(ctx, once=args.once, poll_s=args.poll)

@@ -18,9 +18,11 @@ was cut short, so a stop at any moment neither loses nor repeats rows.
 """
 from __future__ import annotations
 
+import copy
 import csv
 import io
 import os
+from dataclasses import dataclass, field
 
 from ventsource.common.errors import InputError
 
@@ -29,28 +31,13 @@ RAW_DIR = "raw"      # OUT/raw/NAME/: the ratios step's measurement file, window
 IGNORED_SUFFIXES = (".part", ".tmp", ".partial")
 
 
-def parse_raw_options(text):
-    """(RatioSettings, run_ratios keyword arguments) from the options of `ventsource ratios`."""
-    import argparse
-    import shlex
-    from ventsource.cli.ratios_command import _units, add_parser, settings_from_args
-
-    class _Parser(argparse.ArgumentParser):
-        def error(self, message):
-            raise InputError(f"--raw-options: {message}")
-
-    sub = _Parser(prog="ventsource watch --raw-options").add_subparsers()
-    parser = add_parser(sub)
-    parser.__class__ = _Parser
-    try:
-        words = shlex.split(text or "")
-    except ValueError as exc:
-        raise InputError(f"--raw-options: {exc}") from None
-    if any(w.split("=")[0] in ("--out", "--figures", "--window-figures") for w in words):
-        raise InputError("--raw-options: --out, --figures and --window-figures do not apply to watch")
-    args = parser.parse_args(["RAW", "--out", "OUT.csv", *words])
-    return settings_from_args(args), dict(unit_overrides=_units(args.units), chunk_rows=args.chunk_rows,
-                                          assume_utc=args.assume_utc)
+@dataclass
+class RawOptions:
+    """The options of the raw-data step: as given (recorded in the watch settings) and parsed by
+    the `ventsource ratios` parser (cli/ratios_command.parse_ratio_options)."""
+    text: str
+    settings: object          # plume.settings.RatioSettings; copied for each file (run_ratios fills it in)
+    run_kwargs: dict = field(default_factory=dict)
 
 
 class RawFolder:
@@ -58,7 +45,6 @@ class RawFolder:
 
     def __init__(self, folder, out_dir, raw_options, log):
         self.folder, self.out_dir, self.raw_options, self.log = str(folder), str(out_dir), raw_options, log
-        parse_raw_options(raw_options)   # bad options: refused before the watch starts
         self.measurement_path = os.path.join(self.out_dir, MEASUREMENT_NAME)
 
     def step(self, state, save):
@@ -97,16 +83,17 @@ class RawFolder:
         from ventsource.workflow.series import file_sha256
         path = os.path.join(self.folder, name)
         sha = file_sha256(path)
-        copy = next((f["name"] for f in raw["files"] if f.get("sha256") == sha), None)
+        twin = next((f["name"] for f in raw["files"] if f.get("sha256") == sha), None)
         entry = {"name": name, "sha256": sha}
         raw["files"].append(entry)
-        if copy is not None:
-            return self._skip(entry, f"same content as {copy}, already taken")
+        if twin is not None:
+            return self._skip(entry, f"same content as {twin}, already read")
         work = os.path.join(self.out_dir, RAW_DIR, name)
         os.makedirs(work, exist_ok=True)
-        settings, kwargs = parse_raw_options(self.raw_options)
+        settings = copy.deepcopy(self.raw_options.settings)
         try:
-            run_ratios(path, os.path.join(work, "ratios.csv"), settings, hash_input=False, **kwargs)
+            run_ratios(path, os.path.join(work, "ratios.csv"), settings, hash_input=False,
+                       **self.raw_options.run_kwargs)
             with open(os.path.join(work, "ratios.csv"), encoding="utf-8", newline="") as fh:
                 table = list(csv.DictReader(fh))
         except InputError as exc:
