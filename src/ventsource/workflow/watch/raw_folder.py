@@ -56,12 +56,24 @@ class RawFolder:
             save()
         decided = {f["name"] for f in raw["files"]}
         seen_now, ready = {}, []
-        for name in sorted(os.listdir(self.folder)):
+        try:
+            names = sorted(os.listdir(self.folder))
+        except OSError as exc:   # the folder gone or unreadable for a moment: the next look tries again
+            names, logged = [], getattr(self, "_list_failed", False)
+            self._list_failed = True
+            if not logged:   # once per outage, not once per poll
+                self.log(f"raw folder {self.folder}: cannot be listed ({exc}); looking again")
+        else:
+            self._list_failed = False
+        for name in names:
             path = os.path.join(self.folder, name)
             if name in decided or name.startswith(".") or name.lower().endswith(IGNORED_SUFFIXES) \
                     or not os.path.isfile(path):
                 continue
-            st = os.stat(path)
+            try:
+                st = os.stat(path)
+            except FileNotFoundError:   # removed since the listing
+                continue
             seen_now[name] = [st.st_size, st.st_mtime_ns]
             if st.st_size > 0 and raw["seen"].get(name) == seen_now[name]:
                 ready.append(name)
@@ -82,7 +94,12 @@ class RawFolder:
         from ventsource.workflow.plume.pipeline import run_ratios
         from ventsource.workflow.series import file_sha256
         path = os.path.join(self.folder, name)
-        sha = file_sha256(path)
+        try:
+            sha = file_sha256(path)
+        except OSError as exc:
+            entry = {"name": name, "sha256": None}
+            raw["files"].append(entry)
+            return self._skip(entry, f"{path}: cannot be read ({exc})")
         twin = next((f["name"] for f in raw["files"] if f.get("sha256") == sha), None)
         entry = {"name": name, "sha256": sha}
         raw["files"].append(entry)
