@@ -172,3 +172,14 @@ def test_a_stop_in_the_middle_of_an_append_is_finished_on_restart(tmp_path, monk
     run_ratios(str(raw / "a.csv"), str(tmp_path / "ref.csv"), settings, **kw)
     assert _rows(out / MEASUREMENT_NAME) == _rows(tmp_path / "ref.csv")
     assert [r["id"] for r in _rows(out / "summary.csv")] == [r["id"] for r in _rows(tmp_path / "ref.csv")]
+
+
+def test_the_command_refuses_bad_raw_options_with_one_line_and_status_2(tmp_path, capsys):
+    """Bad input: one line naming the option, exit status 2, nothing written (common practice, no source)."""
+    from ventsource.cli.main import main
+    (tmp_path / "raw").mkdir()
+    code = main(["watch", str(tmp_path / "raw"), "--prior", str(PRIOR), "--out", str(tmp_path / "out"),
+                 "--raw-options", "--window ten"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1 and "--window" in err[0]
+    assert not (tmp_path / "out").exists()
