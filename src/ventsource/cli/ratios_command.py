@@ -154,3 +154,25 @@ def run(args):
         print(f"overview figure: {f}")
     print(f"Caution: {CAUTION}")
     return 0
+
+
+def parse_ratio_options(text, where="--raw-options"):
+    """(RatioSettings, run_ratios keyword arguments) from options of this command in one string
+    (`ventsource watch FOLDER --raw-options`): the same parser and checks as the command."""
+    import shlex
+
+    class _Parser(argparse.ArgumentParser):
+        def error(self, message):
+            raise InputError(f"{where}: {message}")
+
+    parser = add_parser(_Parser(prog=f"ventsource watch {where}").add_subparsers())
+    parser.__class__ = _Parser
+    try:
+        words = shlex.split(text or "")
+    except ValueError as exc:
+        raise InputError(f"{where}: {exc}") from None
+    if any(w.split("=")[0] in ("--out", "--figures", "--window-figures") for w in words):
+        raise InputError(f"{where}: --out, --figures and --window-figures do not apply to watch")
+    args = parser.parse_args(["RAW", "--out", "OUT.csv", *words])
+    return settings_from_args(args), dict(unit_overrides=_units(args.units), chunk_rows=args.chunk_rows,
+                                          assume_utc=args.assume_utc)

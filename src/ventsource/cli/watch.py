@@ -10,7 +10,8 @@ from ventsource.common.errors import InputError
 def add_parser(sub):
     wp = sub.add_parser("watch", help="follow a growing measurement file: each new row answered "
                                       "at once, its window updated, alerts")
-    wp.add_argument("data", nargs="?", help="measurement CSV that a station appends to (docs/measurements.md)")
+    wp.add_argument("data", nargs="?", help="measurement CSV that a station appends to (docs/measurements.md), "
+                    "or a folder into which raw sensor files appear (the files `ventsource ratios` reads)")
     wp.add_argument("--prior", help="prior file (TOML) or a shipped prior's name")
     wp.add_argument("--out", required=True, metavar="FOLDER", help="output folder (state kept there; "
                     "the same command again resumes)")
@@ -18,6 +19,8 @@ def add_parser(sub):
                     "2w) or 'column' (the file's window column)")
     wp.add_argument("--seed", type=int, default=0, help="run seed")
     wp.add_argument("--sigma", type=float, default=None, help="relative 1-sigma of cells without their own")
+    wp.add_argument("--raw-options", metavar="'OPTIONS'", default="", help="DATA a raw folder: options of "
+                    "`ventsource ratios` for its files, in one quoted string, e.g. '--window 10min --method ols'")
     wp.add_argument("--alerts", metavar="TOML", help="alert thresholds (docs/running.md, 'Alerts')")
     wp.add_argument("--once", action="store_true", help="take the lines there now, then exit")
     wp.add_argument("--poll", type=float, default=1.0, help="seconds between looks at the file")
@@ -38,9 +41,16 @@ def cmd_watch(args):
         return _replay(args)
     if not args.data or not args.prior:
         raise InputError("watch: give DATA and --prior (or --replay-demo)")
+    raw = None
+    if os.path.isdir(args.data):
+        from ventsource.cli.ratios_command import parse_ratio_options
+        from ventsource.workflow.watch.raw_folder import RawOptions
+        raw = RawOptions(args.raw_options, *parse_ratio_options(args.raw_options))
+    elif args.raw_options:
+        raise InputError("--raw-options: DATA must then be a folder of raw sensor files")
     ctx = make_context(args.data, args.prior, args.out, seed=args.seed, window=args.window, sigma=args.sigma,
                        alerts_path=args.alerts, figures=not args.no_figures, n_particles=args.particles,
-                       check_every=args.check_every)
+                       check_every=args.check_every, raw_options=raw)
     print(f"watching {args.data} into {args.out}/ (Ctrl-C stops; the same command resumes)")
     print(f"Caution: {CAUTION}")
     run_watch(ctx, once=args.once, poll_s=args.poll)

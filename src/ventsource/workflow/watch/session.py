@@ -29,10 +29,12 @@ class WatchContext:
     argv: list | None = None
     settings: dict = field(default_factory=dict)
     clock_check: bool = True   # skip rows dated more than a day after this computer's clock
+    raw_folder: str | None = None   # raw sensor files appear here (watch/raw_folder.py); data is then
+    raw_options: object = None      # OUT/ratios-from-raw.csv, made from them with these (RawOptions)
 
 
 def make_context(data, prior_path, out_dir, seed=0, window="30d", sigma=None, alerts_path=None,
-                 figures=True, synthetic=False, **options):
+                 figures=True, synthetic=False, raw_options=None, **options):
     from ventsource import __version__
     from ventsource.inference.priors import PriorFileError, load_prior_file
     from ventsource.inference.priors.shipped import resolve_prior
@@ -57,14 +59,33 @@ def make_context(data, prior_path, out_dir, seed=0, window="30d", sigma=None, al
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise InputError(f"seed must be a whole number >= 0, got {seed!r}")
     sigma = float(spec.likelihood.get("relative_sigma", 0.15)) if sigma is None else sigma
+    raw_folder, data = _raw_folder(data, out_dir, raw_options)
     alerts = read_alert_rules(alerts_path) if alerts_path else {"rules": [], "argv": None}
     settings = {"data": os.path.abspath(data), "prior_sha256": prior_content_sha256(prior_path),
                 "seed": int(seed), "window": win, "sigma": sigma, "package_version": __version__,
-                "options": {k: opts[k] for k in ("n_particles", "n_runs", "check_every")}}
+                "options": {k: opts[k] for k in ("n_particles", "n_runs", "check_every")},
+                "raw": None if raw_folder is None else {"folder": raw_folder, "options": raw_options.text}}
     return WatchContext(str(data), str(prior_path), spec, str(out_dir), int(seed), win, sigma,
                         float(spec.p_magmatic), opts["n_particles"], opts["n_runs"], opts["check_every"],
                         opts["figures_every"], figures, bool(synthetic or getattr(spec, "fictional", False)),
-                        alerts["rules"], alerts["argv"], settings)
+                        alerts["rules"], alerts["argv"], settings, raw_folder=raw_folder,
+                        raw_options=raw_options)
+
+
+def _raw_folder(data, out_dir, raw_options):
+    """(raw folder or None, the measurement file followed): a folder DATA holds raw sensor files,
+    taken with raw_options (watch/raw_folder.RawOptions; the CLI makes it from --raw-options)."""
+    from ventsource.workflow.watch.raw_folder import MEASUREMENT_NAME
+    if not os.path.isdir(data):
+        if raw_options is not None and raw_options.text:
+            raise InputError("--raw-options: DATA must then be a folder of raw sensor files")
+        return None, data
+    if os.path.abspath(data) == os.path.abspath(out_dir):
+        raise InputError(f"{data}: the raw folder cannot be the --out folder")
+    if raw_options is None:
+        raise InputError(f"{data}: a folder of raw sensor files needs the raw-data step's options "
+                         "(RawOptions; the command line makes them from --raw-options)")
+    return os.path.abspath(data), os.path.join(str(out_dir), MEASUREMENT_NAME)
 
 
 def run_watch(ctx, once=False, poll_s=1.0, stream=None, stop=None):

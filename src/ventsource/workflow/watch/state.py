@@ -26,7 +26,7 @@ from ventsource.workflow.run_folder import _atomic, _write_json
 STATE_DIR = "state"
 STATE_NAME = "watch.json"
 # entries of watch.json that change a number; a restart refuses a change in any
-SETTINGS_KEYS = ("prior_sha256", "seed", "window", "options", "sigma", "package_version", "data")
+SETTINGS_KEYS = ("prior_sha256", "seed", "window", "options", "sigma", "package_version", "data", "raw")
 
 
 def state_dir(out_dir):

@@ -47,6 +47,7 @@ class Watcher:
         self.answered_at = {}   # row id -> wall-clock time (s) its answer was written
         self.pending = deque()  # (line, text, byte offset after it, NewRow or None) read, not yet taken
         self._answered, self._lz_cache, self.version, self._moves = set(), {}, None, 0
+        self.raw, self.once, self._raw_looked, self._raw_look_t, self.poll_s = None, False, False, -math.inf, 1.0
 
     def log(self, text):
         stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
@@ -66,6 +67,9 @@ class Watcher:
         else:
             check_settings(c.out_dir, state.get("settings") or {}, c.settings)
         self.state = state
+        if c.raw_folder:
+            from ventsource.workflow.watch.raw_folder import RawFolder
+            self.raw = RawFolder(c.raw_folder, c.out_dir, c.raw_options, self.log)
         self.file = FollowedFile(c.data, state["offset"], state["line"], state["header"])
         self.pop = WindowPopulation.from_arrays(arrays) if arrays is not None else None
         self.window_rows = [self._reparse(r) for r in (state["window"] or {}).get("rows", [])]
@@ -91,16 +95,25 @@ class Watcher:
 
     def poll(self):
         """Take every line completed so far, one row at a time; between rows, lines that
-        arrived meanwhile are answered at once. Returns how many lines were read."""
-        n = self._read()
+        arrived meanwhile are answered at once. Returns how many lines were read (and raw files
+        decided, watching a raw folder: looked at once per run with --once)."""
+        n = 0
+        now = time.monotonic()   # looks at the raw folder at least poll_s apart (once per run with --once)
+        if self.raw is not None and not (self.once and self._raw_looked) and now - self._raw_look_t >= self.poll_s:
+            self._raw_looked, self._raw_look_t = True, now
+            n += self.raw.step(self.state, self._save)
+        n += self._read()
         while self.pending:
             line, text, end, row = self.pending.popleft()
             if row is not None:
                 self._take(row, text, last=not self.pending)
             self.state.update(offset=end, line=line, header=self.file.header)
-            save_state(self.ctx.out_dir, self.state, None if self.pop is None else self.pop.arrays())
+            self._save()
             n += self._read()
         return n
+
+    def _save(self):
+        save_state(self.ctx.out_dir, self.state, None if self.pop is None else self.pop.arrays())
 
     def _skip(self, line, row_id, reason):
         if any(s["line"] == line for s in self.state["skipped"]):
@@ -328,6 +341,7 @@ class Watcher:
 
     def run(self, once=False, poll_s=1.0, stop=None):
         """Follow the file until stopped (Ctrl-C, stop() true) or, with once, until no new line."""
+        self.once, self.poll_s = once, poll_s
         self.start()
         while True:
             n = self.poll()
