@@ -65,8 +65,8 @@ def synthetic_window(spec, forward, n_rows, scrubbed, seed=5, change_source=Fals
 
 @pytest.mark.parametrize("quench,redox,n_solve,max_limit,p95_limit,resp_limit",
                          [("none", "buffered", 48, 1.0, 0.1, 0.03),
-                          ("gas_buffered", "buffered", 48, 1.5, 0.3, 0.08),
-                          ("gas_buffered", "evolving", 48, 1.5, 0.3, 0.08)])
+                          ("gas_buffered", "buffered", 48, 2.0, 0.3, 0.08),
+                          ("gas_buffered", "evolving", 48, 2.0, 0.3, 0.08)])
 def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, redox, n_solve, max_limit, p95_limit,
                                                        resp_limit):
     """Row evidences on the default grid (48 solves, 2 quadrature points per interval)
@@ -88,8 +88,10 @@ def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, redox, n_
     point's exact copula mass) the shipped prior (quench, H2 burnt, evolving redox) is
     checked on the default 48: measured M0 0.19 nats at most, 95th percentile 0.05, M1
     0.93 and 0.08, responsibilities within 0.007 (the reference: 400 solves on the same
-    ranges, which agrees with 400 on the whole range to 0.002 / 0.04 nats). The limits
-    below are set for these measurements."""
+    ranges, which agrees with 400 on the whole range to 0.002 / 0.04 nats). With the SCSS
+    H2O term (also 0.4.0) one edge draw's M1 error grew to 1.82 nats (95th percentile 0.12-0.13,
+    measured for both gas-buffered cases), hence the limit 2.0 there. The limits below are
+    set for these measurements."""
     spec, forward = basalt
     if (quench, redox) != (spec.models["quench"], spec.models.get("redox", "buffered")):
         spec = _with_models(spec, quench, redox)
