@@ -264,10 +264,16 @@ def _split_source_log10_bf(prior, forward, liks, seed, opt, on_stage=None):
                   zip((liks[:c], liks[c:]), seeds[1 + 2 * k:3 + 2 * k])] for k, c in enumerate(cuts)]
     except WindowError:   # the check failed, not the window: flagged, the rows stand
         return np.nan, np.nan
+    return split_log10_bf(lz_one, err_one, parts)
+
+
+def split_log10_bf(lz_one, err_one, parts):
+    """(log10 BF one source vs a change at one of the cuts (uniform over them), its error)
+    from the window's (log Z, error) and each cut's two sides' (log Z, error)."""
     lz_split = np.array([a[0] + b[0] for a, b in parts])
     var_split = np.array([np.nan_to_num(a[1]) ** 2 + np.nan_to_num(b[1]) ** 2 for a, b in parts])
     weight = np.exp(lz_split - special.logsumexp(lz_split))
-    lz_change = special.logsumexp(lz_split) - np.log(len(cuts))
+    lz_change = special.logsumexp(lz_split) - np.log(len(parts))
     var = np.nan_to_num(err_one) ** 2 + float(np.sum(weight ** 2 * var_split))
     return float((lz_one - lz_change) / np.log(10.0)), float(np.sqrt(var) / np.log(10.0))
 

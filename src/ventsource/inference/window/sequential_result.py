@@ -12,9 +12,9 @@ from types import SimpleNamespace
 import numpy as np
 
 from ventsource.inference.engines.run_rhat import between_run_rhat
-from scipy import special
 
 from ventsource.inference.window.sampling import (WINDOW_DEFAULTS, WindowError, WindowResult, _likelihoods,
+                                                  split_log10_bf,
                                                   _log_evidence, _row_results, _shared_information,
                                                   _shared_source_log10_bf, _window_flags, split_points)
 from ventsource.inference.window.target import WindowTarget
@@ -58,12 +58,7 @@ def _split_check(prior, forward, liks, seed, opt, between):
             parts.append(pair)
     except WindowError:
         return np.nan, np.nan
-    lz_split = np.array([a[0] + b[0] for a, b in parts])
-    var_split = np.array([np.nan_to_num(a[1]) ** 2 + np.nan_to_num(b[1]) ** 2 for a, b in parts])
-    weight = np.exp(lz_split - special.logsumexp(lz_split))
-    lz_change = special.logsumexp(lz_split) - np.log(len(cuts))
-    var = np.nan_to_num(err_one) ** 2 + float(np.sum(weight ** 2 * var_split))
-    return float((lz_one - lz_change) / np.log(10.0)), float(np.sqrt(var) / np.log(10.0))
+    return split_log10_bf(lz_one, err_one, parts)
 
 
 def window_result(pop, prior, forward, measurements, likelihoods, pi0, seed, checks=None, **options):
