@@ -22,7 +22,7 @@ vent"):
   but the magmatic rows' P(M0) moves steeply with the magma's dFMQ (higher dFMQ reads a
   magmatic row's H2S/SO2 as scrubbing): a noise realisation that pulls dFMQ up pulls the
   magmatic rows' P(M0) down with it (data seed 11: dFMQ 1.03-1.25, mean 0.734);
-* the band sits above the truth in every seed (medians 1.08-1.16) because the quench
+* the band sits above the truth in every seed (medians 1.075-1.16) because the quench
   temperature is not identified by these three ratios (posterior = prior, 600-1100 C,
   median near 870 C), trades off against dFMQ, and the truth (1000 C) sits high in its
   prior; pinned at 1000 C the noise-free median falls from 1.085 to 1.029, and with
