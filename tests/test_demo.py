@@ -80,3 +80,30 @@ def test_truth_budget_is_the_trapezoid_of_the_rate(demo_files):
 def test_few_rows_still_make_a_series():
     t = truth_table(3)
     assert t["id"].tolist() == ["KRW-001", "KRW-002", "KRW-003"] and t["window"].notna().all()
+
+
+def test_run_both_runs_side_by_side_and_raises_after_both_end():
+    """The demo's two runs go side by side (threading.Barrier: each call waits for the
+    other, so a one-after-the-other schedule would time out), results come back in call
+    order, and an error is raised only once every run has ended."""
+    import threading
+
+    from ventsource.common.errors import InputError
+    from ventsource.workflow.demo import run_both
+
+    barrier = threading.Barrier(2, timeout=20)
+    ended = []
+
+    def run(name, fail=False):
+        barrier.wait()  # raises BrokenBarrierError if the other call is not running too
+        if fail:
+            raise InputError(f"{name} failed")
+        ended.append(name)
+        return name
+
+    assert run_both(run, [dict(name="windows"), dict(name="rows")]) == ["windows", "rows"]
+    barrier.reset()
+    ended.clear()
+    with pytest.raises(InputError, match="windows failed"):
+        run_both(run, [dict(name="windows", fail=True), dict(name="rows")])
+    assert ended == ["rows"]  # the other run was not abandoned half-written

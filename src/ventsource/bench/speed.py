@@ -114,6 +114,7 @@ def bench_forward(cantera_per_state, quick=False):
             line += (f" -> {cantera_per_state / per_state:.1f}x Cantera's per-state time "
                      f"(target >= {target}x)")
         print(line)
+    bench_sweep(model, spec, theta[:100 if quick else 400])
     from ventsource.bench.quench import bench_quench
     bench_quench(spec, theta, _best_of, batches=(32, big))
     bench_open_style(model, spec, theta[:300 if quick else 2000])
@@ -136,6 +137,22 @@ def partition_buffered_spec(prior_path):
     data["parameters"]["s_partition"] = {"distribution": "loguniform", "min": 10.0, "max": 500.0,
                                          "source": "the earlier shipped range"}
     return parse_prior(data, file=str(prior_path))
+
+
+def bench_sweep(model, spec, draws, n_pressures=48):
+    """A window-style pressure sweep (48 pressures per draw, log-spaced over one decade,
+    as the window model solves each draw) against the same states in shuffled order,
+    where every state starts cold: the saving of starting from the neighbour's solution."""
+    j_p = list(spec.parameter_names).index("pressure_bar")
+    rep = np.repeat(draws, n_pressures, axis=0)
+    lo = np.log(draws[:, j_p] / 3.0)
+    rep[:, j_p] = np.exp((lo[:, None] + np.linspace(0.0, np.log(10.0), n_pressures)).ravel())
+    shuffled = rep[np.random.default_rng(3).permutation(rep.shape[0])]
+    sweep = _best_of(lambda: model.ratios(rep)) / rep.shape[0]
+    cold = _best_of(lambda: model.ratios(shuffled)) / rep.shape[0]
+    print(f"[forward] pressure sweep, {draws.shape[0]} draws x {n_pressures} pressures: "
+          f"{sweep * 1e6:.2f} us/evaluation against {cold * 1e6:.2f} for the same states each "
+          f"started cold ({cold / sweep:.2f}x)")
 
 
 def bench_open_style(model, spec, theta):

@@ -21,6 +21,7 @@ import numpy as np
 from numba import njit
 
 from ventsource.magma.redox_balance import gas_free_dfmq, set_redox_reference, solve_with_redox
+from ventsource.magma.degassing_context import _set_dfmq
 from ventsource.magma.degassing_context import (  # noqa: F401  (re-exported for callers)
     _C_CAPKIND, _C_CSA, _C_CSB, _C_DFMQ, _C_LNRMAX, _C_MDRY, _C_NH, _C_SCSS_A, _C_SCSS_W, _C_SK,
     _caps_at_water, CTX_SIZE, M_CO2, M_H2O,
@@ -95,6 +96,30 @@ def _store_state(j, st, z, mg, ctx, h2o_wt, co2_ppm_bulk, s_ppm, x_out, melt_out
     return z[3] if st == STATUS_GAS else 0.0
 
 
+@_kernel
+def _same_magma(j, temperature_k, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s):
+    """State j is the magma of state j - 1 (at another pressure): a pressure sweep."""
+    i = j - 1
+    return (temperature_k[j] == temperature_k[i] and dfmq[j] == dfmq[i] and h2o_wt[j] == h2o_wt[i]
+            and co2_ppm_bulk[j] == co2_ppm_bulk[i] and s_ppm[j] == s_ppm[i]
+            and (d_s[j] == d_s[i] or (math.isnan(d_s[j]) and math.isnan(d_s[i]))))
+
+
+@_kernel
+def _warm_sweep_step(ctx, dfmq_prev, h_law, h_par, c_law, c_par, ln_k, z, x, mg, work):
+    """Closed-system, evolving-redox state started from the solution of the same magma at a
+    neighbouring pressure (z still holds it): its gas and its final dFMQ. A pressure
+    sweep (the window model's 48 solves per draw) otherwise starts every state from the
+    prior's dFMQ and spends about half its time on redox steps back to where the last
+    state ended (measured: 6.3 us per state against 3.4 buffered). Only a gas state is
+    taken; anything else is solved again from the cold start by the caller, so gas or no
+    gas is always decided as before. The root is the same (the Jacobian's law
+    elasticities only steer the iteration); it differs from the cold start's by the
+    solver tolerances."""
+    _set_dfmq(ctx, dfmq_prev, ln_k)
+    return solve_with_redox(ctx, h_law, h_par, c_law, c_par, z, x, mg, False, work, ln_k)
+
+
 @njit(cache=True, error_model='numpy')
 def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s, open_system,
                  n_open_steps, want_psat, ideal, h_law, h_par, c_law, c_par, ln_cs_a, ln_cs_b_k,
@@ -121,8 +146,18 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
             psat = saturation_pressure(ctx, h_law, h_par, c_law, c_par, ideal, ln_k, ln_phi, work)
         psat_out[j] = psat
         cap_out[j] = open_system and math.isinf(psat)
-        st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
-                          c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
+        st = STATUS_FAILED
+        warm = (j > 0 and not open_system and redox_par[0] > 0.5 and status_out[j - 1] == STATUS_GAS
+                and _same_magma(j, temperature_k, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s))
+        if warm:
+            st = _warm_sweep_step(ctx, dfmq_out[j - 1], h_law, h_par, c_law, c_par, ln_k, z,
+                                  x_out[j], mg, work)
+            if st != STATUS_GAS:  # the cold start decides, as for any other state
+                _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
+                                   co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par)
+        if st != STATUS_GAS:
+            st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
+                              c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
         status_out[j] = st
         g_out[j] = _store_state(j, st, z, mg, ctx, h2o_wt[j], co2_ppm_bulk[j], s_ppm[j], x_out,
                                 melt_out, phase_out)
