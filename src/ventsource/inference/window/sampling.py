@@ -73,6 +73,7 @@ class RowResult:
     hypotheses: dict | None = None      # with a release prior: P(M0), P(M1), P(M2) and errors
     budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor
     pressure_if_scrubbed: tuple = (np.nan,) * 3   # (q05, median, q95) of the M1 draws
+    pressure_draws: np.ndarray | None = None      # one per shared draw, with budget_draws["model"]
 
 
 @dataclass
@@ -373,7 +374,8 @@ def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
         averaged = tuple(model_averaged_quantiles(p, s1))
     return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
                      hypotheses=hyp, budget_draws=draws["budget"],
-                     pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]))
+                     pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]),
+                     pressure_draws=draws["pressure"])
 
 
 def _shared_source_log10_bf(target, log_z_window, rng, n):
