@@ -277,7 +277,7 @@ def test_window_rows_if_scrubbed_columns_from_the_draws(one_pressure):
         s = 1.0 - r.budget_draws["so2_factor"][m1]
         assert row["p_scrubbed_below_epsilon"] == pytest.approx(np.mean(s < per.epsilon), abs=1e-12)
         assert row["p_scrubbed_below_epsilon_error"] is None or 0.0 <= row["p_scrubbed_below_epsilon_error"] < 0.5
-        post = {"scrubbed_so2": s, "pressure_bar": np.log10(r.pressure_draws[m1])}
+        post = {"scrubbed_so2": s, "pressure_bar": np.log10(r.budget_draws["pressure_bar"][m1])}
         for j, name in enumerate(res.shared_names):
             if name not in per.free_names:
                 assert f"{name}_if_scrubbed_median" not in row   # pooling hyperparameters: .nc only

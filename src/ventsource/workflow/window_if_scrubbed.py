@@ -39,8 +39,8 @@ def prior_draws(spec, seed):
 def if_scrubbed_fields(row, shared_names, shared_draws, spec, prior):
     """Summary fields of one window row under M1 (None where they cannot be computed).
 
-    row: the window's RowResult (budget_draws["model"], budget_draws["so2_factor"] and
-    pressure_draws per shared draw, in the order of shared_draws reshaped to (runs x
+    row: the window's RowResult (budget_draws "model", "so2_factor" (1 - s under M1) and
+    "pressure_bar", one per shared draw in the order of shared_draws reshaped to (runs x
     particles, shared)); prior: prior_draws(spec, seed)."""
     draws = row.budget_draws
     if draws is None:
@@ -58,8 +58,8 @@ def if_scrubbed_fields(row, shared_names, shared_draws, spec, prior):
             post[name] = psi[:, j]
             out.update(_quantiles(f"{name}_if_scrubbed", psi[:, j]))
     post["scrubbed_so2"] = scrubbed
-    if row.pressure_draws is not None and "pressure_bar" in spec.free_names and "pressure_bar" not in post:
-        post["pressure_bar"] = np.asarray(row.pressure_draws, float)[m1]
+    if "pressure_bar" in draws and "pressure_bar" in spec.free_names and "pressure_bar" not in post:
+        post["pressure_bar"] = np.asarray(draws["pressure_bar"], float)[m1]   # the row's own
     p, err = _below_epsilon(scrubbed, m1.reshape(runs, n), spec.epsilon)
     out["p_scrubbed_below_epsilon"], out["p_scrubbed_below_epsilon_error"] = p, err
     out.update(_contractions(post, prior))

@@ -71,9 +71,8 @@ class RowResult:
     predictive: dict                    # ratio -> (q05, median, q95)
     flags: list
     hypotheses: dict | None = None      # with a release prior: P(M0), P(M1), P(M2) and errors
-    budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor
+    budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor, pressure
     pressure_if_scrubbed: tuple = (np.nan,) * 3   # (q05, median, q95) of the M1 draws
-    pressure_draws: np.ndarray | None = None      # one per shared draw, with budget_draws["model"]
 
 
 @dataclass
@@ -344,8 +343,8 @@ def _row_draws(target, i, grid, lls, resp, rng, psi):
     pred[~ok] = np.nan
     with np.errstate(divide="ignore", invalid="ignore"):
         so2_co2 = np.where(ok, g[:, _SO2] / g[:, _CO2], np.nan)
-    return {"magmatic": magmatic, "model": model, "pressure": pressure, "s": s, "pred": pred,
-            "ok": ok, "budget": {"model": model, "so2_co2_magmatic": so2_co2, "so2_factor": factor}}
+    return {"magmatic": magmatic, "model": model, "pressure": pressure, "s": s, "pred": pred, "ok": ok,
+            "budget": {"model": model, "so2_co2_magmatic": so2_co2, "so2_factor": factor, "pressure_bar": pressure}}
 
 
 def _q(x):
@@ -374,8 +373,7 @@ def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
         averaged = tuple(model_averaged_quantiles(p, s1))
     return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
                      hypotheses=hyp, budget_draws=draws["budget"],
-                     pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]),
-                     pressure_draws=draws["pressure"])
+                     pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]))
 
 
 def _shared_source_log10_bf(target, log_z_window, rng, n):
