@@ -166,7 +166,14 @@ def test_row_by_row_and_window_tables_have_one_shape(window_run, data_file, tmp_
         assert np.all(np.isfinite(table["dfmq_rhat"])) and np.all(table["dfmq_ess_bulk"] > 0)
     # what does not apply is present and empty
     assert by_rows["window"].isna().all() and by_rows["source_check"].isna().all()
-    assert by_windows["p_scrubbed_below_epsilon"].isna().all() and by_windows["dfmq_if_scrubbed_median"].isna().all()
+    # a window row's posterior if scrubbed (the window's draws holding that row M1;
+    # test_window_table.py checks the numbers): filled where the row has M1 draws
+    m1 = by_windows["p_magmatic"] < 0.9
+    assert m1.any()
+    for col in ("p_scrubbed_below_epsilon", "dfmq_if_scrubbed_median", "dfmq_contraction",
+                "scrubbed_so2_contraction", "pressure_bar_contraction"):
+        assert np.all(np.isfinite(by_windows.loc[m1, col].to_numpy(float))), col
+    assert by_windows["p_scrubbed_below_epsilon"].dropna().between(0.0, 1.0).all()
     assert by_windows["pressure_bar_rhat"].isna().all()      # integrated out in a window, not sampled
     # a window repeats its shared magma's quantiles on each of its rows
     assert by_windows.groupby("window")["dfmq_avg_median"].nunique().eq(1).all()

@@ -244,3 +244,50 @@ def test_pressure_rows_default_choice_and_bad_value():
         with_window({"pressure_rows": "together"})
     msg = str(info.value)
     assert "\n" not in msg and "w.toml" in msg and "window.pressure_rows" in msg and "pooled" in msg
+
+
+# --------------------------------------------------------------------------- "if scrubbed" columns
+
+def _log10_uniform_var(lo, hi):
+    return np.log10(hi / lo) ** 2 / 12.0   # variance of a uniform in log10 (scipy.stats.uniform(0, w).var())
+
+
+def test_window_rows_if_scrubbed_columns_from_the_draws(one_pressure):
+    """A window row's posterior if scrubbed: the shared parameters' quantiles, P(s < epsilon)
+    and the contractions equal a direct computation from the window's draws in which that
+    row is M1 (budget_draws["model"] == 1); the contractions' prior variances against
+    scipy.stats (log-uniform CO2 and pressure in log10 units: a uniform's; dFMQ the truncated
+    normal's, scipy.stats.truncnorm; scrubbed fraction beta(1, 1), scipy.stats.beta)."""
+    from scipy import stats
+    from ventsource.workflow.windows import _window_fields, window_row_summary
+    per, _, fwd, meas = one_pressure
+    res = infer_window(meas, per, forward=fwd, seed=5, split_check=False, **SMALL)
+    shared = _window_fields("w", [f"2026-01-0{i + 1}T00:00:00Z" for i in range(4)], res, per)
+    psi = res.shared_draws.reshape(-1, len(res.shared_names))
+    prior_var = {"co2_ppm": _log10_uniform_var(300.0, 6000.0), "pressure_bar": _log10_uniform_var(5.0, 2500.0),
+                 "dfmq": stats.truncnorm(-3.0, 3.0, loc=1.0, scale=0.5).var(),
+                 "scrubbed_so2": stats.beta(1.0, 1.0).var()}
+    checked = 0
+    for i, r in enumerate(res.rows):
+        row = window_row_summary(f"r{i}", "2026-01-01T00:00:00Z", r, res, 5, per, shared)
+        m1 = np.asarray(r.budget_draws["model"]) == 1
+        if m1.sum() < 50:   # a row the window holds magmatic: few M1 draws, nothing to compare
+            continue
+        checked += 1
+        s = 1.0 - r.budget_draws["so2_factor"][m1]
+        assert row["p_scrubbed_below_epsilon"] == pytest.approx(np.mean(s < per.epsilon), abs=1e-12)
+        assert row["p_scrubbed_below_epsilon_error"] is None or 0.0 <= row["p_scrubbed_below_epsilon_error"] < 0.5
+        post = {"scrubbed_so2": s, "pressure_bar": np.log10(r.budget_draws["pressure_bar"][m1])}
+        for j, name in enumerate(res.shared_names):
+            if name not in per.free_names:
+                assert f"{name}_if_scrubbed_median" not in row   # pooling hyperparameters: .nc only
+                continue
+            q = np.quantile(psi[m1, j], [0.05, 0.5, 0.95])
+            got = [row[f"{name}_if_scrubbed_{k}"] for k in ("q05", "median", "q95")]
+            np.testing.assert_allclose(got, q, rtol=1e-12)
+            post[name] = np.log10(psi[m1, j]) if name in ("co2_ppm",) else psi[m1, j]
+        for name, v0 in prior_var.items():
+            expect = 1.0 - np.var(post[name], ddof=1) / v0
+            # the code's prior variance is from 4000 prior draws (sd of a variance ~2.2 %)
+            assert row[f"{name}_contraction"] == pytest.approx(expect, abs=0.08 * (1.0 - expect) + 1e-9), name
+    assert checked >= 2   # the two scrubbed rows (60 %, 80 %)

@@ -126,7 +126,7 @@ def _hazard_row(r, flags):
     out = {"id": r["id"], "time": r["time"], "window": r.get("window"),
            "p_magmatic": p, "p_magmatic_error": p_err,
            "p_magmatic_text": probability_text(r.get("p_magmatic"), r.get("p_magmatic_error"))}
-    if "p_scrubbed_below_epsilon" in r:  # row by row only (the window model does not give it)
+    if "p_scrubbed_below_epsilon" in r:  # row by row and window rows (workflow/window_if_scrubbed.py)
         out.update({"p_scrubbed_below_epsilon_if_scrubbed": pb,
                     "p_scrubbed_below_epsilon_if_scrubbed_error": pb_err})
     out["scrubbed_so2_model_averaged"] = {q: round_fraction(r.get(f"scrubbed_so2_avg_{q}"))

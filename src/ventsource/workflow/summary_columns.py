@@ -6,10 +6,13 @@ apply to a run is present and empty, so a script reads either table. Per paramet
 mixed by P(M0), inference/row/averaged.py; in a window: the window's shared posterior,
 whose rows' hypotheses are integrated out, repeated on each of its rows, or the row's own
 model-averaged draws for a per-row parameter), `NAME_if_scrubbed_*` the posterior under
-M1 (row by row every parameter; in a window the per-row ones), `NAME_rhat` and
+M1 (row by row every parameter from the M1 runs; in a window every parameter from the
+window's draws in which that row is M1, workflow/window_if_scrubbed.py), `NAME_rhat` and
 `NAME_ess_bulk` the convergence of the sampler runs that drew NAME (row by row: the M1
 runs; in a window: the shared parameters across the window's runs; empty for what a
-window integrates out), `NAME_contraction` 1 - var_post/var_prior under M1 (row by row).
+window integrates out), `NAME_contraction` 1 - var_post/var_prior under M1 (both: of the
+draws `NAME_if_scrubbed_*` is taken from), `p_scrubbed_below_epsilon` P(s < epsilon | M1)
+(the same draws).
 """
 QUANTILES = ("q05", "median", "q95")
 WINDOW_COLUMNS = ["window", "window_first_time", "window_last_time", "window_span_days",

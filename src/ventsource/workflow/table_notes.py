@@ -27,7 +27,7 @@ GLOSSARY = [
     "a conditional quantity.",
     "NAME_avg_*: a parameter averaged over the hypotheses (in a window: the magma's shared "
     "posterior, repeated on each of its rows; pressure per row); NAME_if_scrubbed_*: under M1 "
-    "(row by row every parameter, in a window the pressure); NAME_rhat, NAME_ess_bulk: "
+    "(every parameter; in a window from the draws that hold that row scrubbed); NAME_rhat, NAME_ess_bulk: "
     "agreement of the sampler runs and effective draws (a window: its shared parameters); "
     "units: pressure_bar bar, temperature_c C, dfmq log units, *_ppm ppm by mass.",
     "window, window_first_time, window_last_time, window_span_days (days from the first to the "

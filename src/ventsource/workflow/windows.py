@@ -21,6 +21,7 @@ from ventsource.common.errors import InputError
 from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.workflow.netcdf_bytes import write_netcdf
 from ventsource.workflow.summary_columns import complete, has_columns, quantile_columns, summary_columns
+from ventsource.workflow.window_if_scrubbed import if_scrubbed_fields, prior_draws
 
 _UNITS_S = {"s": 1, "min": 60, "h": 3600, "d": 86400, "w": 7 * 86400}
 
@@ -117,9 +118,10 @@ def invert_window(args):
     _atomic(nc, partial(write_netcdf, idata))
     nc_sha = file_sha256(nc)
     shared = _window_fields(label, times, res, spec)
+    prior = prior_draws(spec, seed)
     rows = []
     for rid, t, r in zip(ids, times, res.rows):
-        row = window_row_summary(rid, t, r, res, seed, spec, shared)
+        row = window_row_summary(rid, t, r, res, seed, spec, shared, prior)
         row["nc_sha256"], row["prior_sha256"] = nc_sha, prior_ref["sha256"]
         _atomic(os.path.join(out_dir, "rows", f"{row_key(rid)}.json"), lambda part: _dump_json(part, row, None))
         rows.append(row)
@@ -159,10 +161,15 @@ def _ess_bulk(x):
     return _finite_or_none(float(az.ess(x, method="bulk")))
 
 
-def window_row_summary(rid, time_text, r, res, seed, spec, shared):
+def window_row_summary(rid, time_text, r, res, seed, spec, shared, prior=None):
+    """One row's summary fields; prior: window_if_scrubbed.prior_draws(spec, seed), drawn
+    once per window (made here when not given)."""
     from ventsource.workflow.hypothesis_rows import DRAWS_KEY, compact_draws, hypothesis_fields
     row = dict(shared, id=rid, time=time_text, p_magmatic=r.p_magmatic,
                p_magmatic_error=r.p_magmatic_error, flags=";".join(r.flags + res.flags), seed=int(seed))
+    # the row's posterior if scrubbed: shared quantiles, P(s < epsilon), contractions
+    fields = if_scrubbed_fields(r, res.shared_names, res.shared_draws, spec, prior or prior_draws(spec, seed))
+    row.update({k: _finite_or_none(v) for k, v in fields.items()})
     if res.pi0 is not None and np.isfinite(r.p_magmatic):
         row["p_magmatic_shift"] = float(r.p_magmatic - res.pi0)
     if res.information is not None:

@@ -71,7 +71,7 @@ class RowResult:
     predictive: dict                    # ratio -> (q05, median, q95)
     flags: list
     hypotheses: dict | None = None      # with a release prior: P(M0), P(M1), P(M2) and errors
-    budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor
+    budget_draws: dict | None = None    # per draw: hypothesis, magmatic SO2/CO2, SO2 factor, pressure
     pressure_if_scrubbed: tuple = (np.nan,) * 3   # (q05, median, q95) of the M1 draws
 
 
@@ -343,8 +343,8 @@ def _row_draws(target, i, grid, lls, resp, rng, psi):
     pred[~ok] = np.nan
     with np.errstate(divide="ignore", invalid="ignore"):
         so2_co2 = np.where(ok, g[:, _SO2] / g[:, _CO2], np.nan)
-    return {"magmatic": magmatic, "model": model, "pressure": pressure, "s": s, "pred": pred,
-            "ok": ok, "budget": {"model": model, "so2_co2_magmatic": so2_co2, "so2_factor": factor}}
+    return {"magmatic": magmatic, "model": model, "pressure": pressure, "s": s, "pred": pred, "ok": ok,
+            "budget": {"model": model, "so2_co2_magmatic": so2_co2, "so2_factor": factor, "pressure_bar": pressure}}
 
 
 def _q(x):
