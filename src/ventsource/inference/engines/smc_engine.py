@@ -195,11 +195,13 @@ def stage_record(active, beta, kish, parents, origin, moves, R, N):
     squared jump in units of the stage-start covariance (Mahalanobis; a fresh independent
     draw from the same distribution lies 2 d away on average)."""
     rec = {k: np.full(R, np.nan) for k in ("beta", "kish_ess", "parents", "ancestors", "n_moves",
-                                           "acceptance", "sq_jump")}
+                                           "acceptance", "sq_jump", "acc_independent", "acc_rw", "acc_de")}
     for r in active:
         rec["beta"][r], rec["kish_ess"][r], rec["parents"][r] = beta[r], kish[r], parents[r]
         rec["ancestors"][r] = np.unique(origin[r * N:(r + 1) * N]).size
-        rec["n_moves"][r], rec["acceptance"][r], rec["sq_jump"][r] = moves[r]
+        rec["n_moves"][r], rec["acceptance"][r], rec["sq_jump"][r], kinds = moves[r]
+        for kind, rate in kinds.items():
+            rec["acc_" + kind][r] = rate
     return rec
 
 
@@ -223,6 +225,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     fits = {r: (frozen[r].mean(axis=0), chol[r]) for r in active}
     n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
     rates = {r: [] for r in active}
+    by_kind = {r: {} for r in active}
     jump = {r: np.zeros(N) for r in active}
     k = 0
     while True:
@@ -250,6 +253,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         for j, r in enumerate(moving):
             sl = slice(j * N, (j + 1) * N)
             rates[r].append(float(accept[sl].mean()))
+            by_kind[r].setdefault(kind, []).append(rates[r][-1])
             step = np.linalg.solve(chol[r], (sub.u[sl] - old_u[sl]).T)
             jump[r] += np.sum(step * step, axis=0)
             if kind == "rw":  # adapt the random-walk scale toward 0.25 acceptance
@@ -258,7 +262,8 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         for r in moving:
             n_moves[r] = _moves_wanted(move_rule, k, n_moves[r], rates[r], jump[r], pop.u.shape[1],
                                        min_moves, max_moves)
-    moves = {r: (len(rates[r]), float(np.mean(rates[r])), float(jump[r].mean())) for r in active}
+    moves = {r: (len(rates[r]), float(np.mean(rates[r])), float(jump[r].mean()),
+                 {kind: float(np.mean(v)) for kind, v in by_kind[r].items()}) for r in active}
     return float(np.mean([rates[r][-1] for r in active])), moves
 
 
