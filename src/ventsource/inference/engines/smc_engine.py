@@ -56,6 +56,17 @@ class SMCResult:
         sd = float(np.std(self.log_z, ddof=1)) if r > 1 else float("nan")
         return float(np.mean(self.log_z)), sd / np.sqrt(r)
 
+    def move_summary(self):
+        """Per stage, averaged over the runs that moved: MCMC moves, their acceptance and
+        the particles' summed squared jump (stage-start covariance units); the stage-0
+        ancestors left at the end (fewest over runs). Plain lists, for diagnostics."""
+        if not self.stage_log:
+            return {}
+        out = {k: [round(float(np.nanmean(rec[k])), 3) for rec in self.stage_log]
+               for k in ("n_moves", "acceptance", "sq_jump")}
+        out["ancestors_last"] = int(np.nanmin(self.stage_log[-1]["ancestors"]))
+        return out
+
 
 def _next_beta(beta, log_like, target):
     """Largest beta' in (beta, 1] whose incremental weights keep ESS >= target * N."""

@@ -168,7 +168,8 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
-            "per_row": list(target.per_row), "source_check_cpu_s": check_cpu}
+            "per_row": list(target.per_row), "source_check_cpu_s": check_cpu,
+            "moves": res.move_summary()}
     out = WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
                        flags, diag, split_bf, split_err, prior_p0,
                        _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed),
@@ -236,7 +237,10 @@ def split_points(n_rows):
 def _log_evidence(prior, forward, liks, seed, opt, on_stage=None):
     """(log Z, error) of the window model with every row's SO2 free."""
     target = So2FreeWindowTarget(prior, forward, liks, n_solve=SPLIT_SOLVES)
-    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], opt, on_stage).log_z_mean_error
+    # the evidences come from the tempering weights; the check keeps the moves its
+    # thresholds and the segment choice were measured with (the "acceptance" rule)
+    check = dict(opt, move_rule="acceptance")
+    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], check, on_stage).log_z_mean_error
 
 
 def _split_source_log10_bf(prior, forward, liks, seed, opt, on_stage=None):
