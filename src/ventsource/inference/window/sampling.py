@@ -181,9 +181,7 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
 def _source_check_state(split_ran, split_bf):
     """The change-of-source check: "run", "failed" (its SMC runs failed) or "not_run"
     (fewer rows than split_min_rows, or split_check off; flag source_check_not_run)."""
-    if not split_ran:
-        return "not_run"
-    return "run" if np.isfinite(split_bf) else "failed"
+    return "not_run" if not split_ran else ("run" if np.isfinite(split_bf) else "failed")
 
 
 def _shared_information(shared_prior, theta, rows, pi0, seed):
@@ -237,9 +235,7 @@ def split_points(n_rows):
 def _log_evidence(prior, forward, liks, seed, opt, on_stage=None):
     """(log Z, error) of the window model with every row's SO2 free."""
     target = So2FreeWindowTarget(prior, forward, liks, n_solve=SPLIT_SOLVES)
-    # the evidences come from the tempering weights; the check keeps the moves its
-    # thresholds and the segment choice were measured with (the "acceptance" rule)
-    check = dict(opt, move_rule="acceptance")
+    check = dict(opt, move_rule="acceptance")   # the moves its thresholds were measured with
     return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], check, on_stage).log_z_mean_error
 
 
@@ -394,8 +390,7 @@ def _window_flags(res, rhat_max, bf, split_bf, opt, split_ran=False):
     flags = []
     if split_ran and not np.isfinite(split_bf):
         flags.append("source_check_failed")
-    if not split_ran:
-        flags.append("source_check_not_run")
+    flags += [] if split_ran else ["source_check_not_run"]
     if bf < 0.0 or split_bf < opt["split_flag_below"]:
         flags.append("mixed_sources")
     if rhat_max > opt["smc_rhat_max"]:
