@@ -169,3 +169,9 @@ def test_independence_proposal_density_ratio_matches_scipy_multivariate_t():
     # the proposals are draws of that t: their covariance is df / (df - 2) times the shape
     # (scipy.stats.multivariate_t); 400 draws, a loose 3-sigma-ish bound on the diagonal
     np.testing.assert_allclose(np.cov(prop, rowvar=False).diagonal(), NU / (NU - 2) * cov.diagonal(), rtol=0.35)
+
+
+def test_unknown_move_rule_is_refused_before_sampling():
+    from ventsource.inference.engines.smc_engine import SMCError
+    with pytest.raises(SMCError, match="move_rule"):
+        tempered_smc(*_toy(), n_particles=50, n_runs=2, seed=0, move_rule="leap")

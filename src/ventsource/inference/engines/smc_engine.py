@@ -150,6 +150,8 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     progress reports only (it gets copies; the runs' numbers do not depend on it).
     Returns SMCResult.
     """
+    if move_rule not in _MOVE_CYCLE:
+        raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
     R, N = int(n_runs), int(n_particles)
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(R)]
     theta0 = np.concatenate([sample_prior(rng, N) for rng in rngs])
