@@ -10,8 +10,10 @@ rejuvenates with Metropolis moves in the unbounded space of the prior's support
 walk with the particles' covariance, its scale adapted toward 0.25 acceptance,
 alternating with differential-evolution moves drawn from the population frozen
 at the start of the stage (ter Braak 2006, Statistics and Computing 16:239).
-The number of moves per stage is ceil(log 0.05 / log(1 - acceptance)), capped,
-so that about 95 % of the particles move at least once.
+With move_rule "acceptance" the number of moves per stage is
+ceil(log 0.05 / log(1 - acceptance)), capped, so that about 95 % of the particles move
+at least once; with "jump", independence moves from a t fitted to the population join
+them and the stage moves until the particles have decorrelated (_rejuvenate).
 
 log Z is the sum over stages of the log mean incremental weight. The runs are
 independent (own seeds, own temperature ladders) but advance in lockstep so that
