@@ -230,8 +230,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     random-walk and DE moves alternate, ceil(log 0.05 / log(1 - acceptance)) of them (the
     acceptance of the first two), so that about 95 % of the particles move at least once
     (Drovandi and Pettitt 2011, Biometrics 67:225; from memory). "jump": independence,
-    random-walk, independence, DE moves, then the kind that has jumped furthest
-    (_next_kind), until DECORRELATED of the run's particles
+    random-walk, independence, DE moves in turn until DECORRELATED of the run's particles
     have jumped, summed over the stage's moves, a squared Mahalanobis distance of d (in
     the stage-start covariance; two independent draws lie 2 d apart on average): the
     expected squared jump distance as the measure of a kernel's mixing follows Fearnhead
@@ -253,13 +252,8 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         run_of = np.repeat(moving, N)
         b = beta[run_of]
         sub = pop.take(rows)
-        kinds = {r: _next_kind(move_rule, k, by_kind[r]) for r in moving}
-        prop_u, log_corr = np.empty_like(sub.u), np.zeros(rows.size)
-        for kind in dict.fromkeys(kinds.values()):   # runs grouped by their move's kind
-            group = [r for r in moving if kinds[r] == kind]
-            sel = np.isin(run_of, group)
-            prop_u[sel], log_corr[sel] = _propose(kind, sub.u[sel], run_of[sel], group, N, frozen, chol,
-                                                  fits, scale, rngs)
+        kind = _MOVE_CYCLE[move_rule][k % len(_MOVE_CYCLE[move_rule])]
+        prop_u, log_corr = _propose(kind, sub.u, run_of, moving, N, frozen, chol, fits, scale, rngs)
         prop = evaluate(prop_u)
         log_ratio = (prop.log_prior + b * _finite(prop.log_like)) - (sub.log_prior + b * _finite(sub.log_like))
         log_ratio = np.where(np.isfinite(prop.log_prior) & (np.isfinite(prop.log_like) | (b == 0)),
@@ -275,34 +269,22 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         for j, r in enumerate(moving):
             sl = slice(j * N, (j + 1) * N)
             rates[r].append(float(accept[sl].mean()))
+            by_kind[r].setdefault(kind, []).append(rates[r][-1])
             step = np.linalg.solve(chol[r], (sub.u[sl] - old_u[sl]).T)
             jump[r] += np.sum(step * step, axis=0)
-            by_kind[r].setdefault(kinds[r], []).append((rates[r][-1], float(np.mean(np.sum(step * step, axis=0)))))
-            if kinds[r] == "rw":  # adapt the random-walk scale toward 0.25 acceptance
+            if kind == "rw":  # adapt the random-walk scale toward 0.25 acceptance
                 scale[r] *= np.exp(rates[r][-1] - 0.25)
         k += 1
         for r in moving:
             n_moves[r] = _moves_wanted(move_rule, k, n_moves[r], rates[r], jump[r], pop.u.shape[1],
                                        min_moves, max_moves)
     moves = {r: (len(rates[r]), float(np.mean(rates[r])), float(jump[r].mean()),
-                 {kind: float(np.mean([a for a, _ in v])) for kind, v in by_kind[r].items()}) for r in active}
+                 {kind: float(np.mean(v)) for kind, v in by_kind[r].items()}) for r in active}
     return float(np.mean([rates[r][-1] for r in active])), moves
 
 
 _MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
 DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
-
-
-def _next_kind(move_rule, k, done):
-    """The kind of a run's k-th move: the rule's cycle; with "jump", once the cycle has run,
-    the kind whose moves went furthest so far in this stage (mean squared Mahalanobis jump
-    per move: the expected squared jump distance by which Fearnhead and Taylor 2013,
-    Bayesian Analysis 8:411, choose among kernels; from memory). done: kind -> [(acceptance,
-    mean squared jump)] of the stage's moves."""
-    cycle = _MOVE_CYCLE[move_rule]
-    if move_rule != "jump" or k < len(cycle):
-        return cycle[k % len(cycle)]
-    return max(dict.fromkeys(cycle), key=lambda kind: np.mean([j for _, j in done[kind]]))
 
 
 def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):
