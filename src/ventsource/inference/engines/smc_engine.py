@@ -150,8 +150,7 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    move_rule: "acceptance" or "jump", how long each stage moves its particles (_rejuvenate).
-    Returns SMCResult.
+    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate). -> SMCResult.
     """
     if move_rule not in _MOVE_CYCLE:
         raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
