@@ -58,7 +58,9 @@ def _timed(spec, forward, n, repeats):
           f"{res.diagnostics['n_forward_evals']:,} shared draws x {res.diagnostics['n_solve_pressures']} "
           f"pressures, stages {res.diagnostics['stages']}, R-hat {res.diagnostics['rhat_max']:.3f}, "
           f"P(M0) magmatic rows mean {p[:n // 2].mean():.3f} (min {p[:n // 2].min():.3f}), scrubbed rows "
-          f"max {p[n // 2:].max():.3f}, flags {res.flags or 'none'}, process peak RSS {rss:.2f} GiB")
+          f"max {p[n // 2:].max():.3f}, flags {res.flags or 'none'}, process peak RSS {rss:.2f} GiB; "
+          f"stage-0 ancestors left {res.diagnostics['moves'].get('ancestors_last')}, MCMC moves per stage "
+          f"{res.diagnostics['moves'].get('n_moves')}")
     return cost, res.diagnostics["n_forward_evals"]
 
 

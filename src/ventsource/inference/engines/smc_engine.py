@@ -10,8 +10,10 @@ rejuvenates with Metropolis moves in the unbounded space of the prior's support
 walk with the particles' covariance, its scale adapted toward 0.25 acceptance,
 alternating with differential-evolution moves drawn from the population frozen
 at the start of the stage (ter Braak 2006, Statistics and Computing 16:239).
-The number of moves per stage is ceil(log 0.05 / log(1 - acceptance)), capped,
-so that about 95 % of the particles move at least once.
+With move_rule "acceptance" the number of moves per stage is
+ceil(log 0.05 / log(1 - acceptance)), capped, so that about 95 % of the particles move
+at least once; with "jump", independence moves from a t fitted to the population join
+them and the stage moves until the particles have decorrelated (_rejuvenate).
 
 log Z is the sum over stages of the log mean incremental weight. The runs are
 independent (own seeds, own temperature ladders) but advance in lockstep so that
@@ -25,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ventsource.inference.engines.de_move import propose_de
+from ventsource.inference.engines.independence_move import propose_independent
 from ventsource.inference.engines.random_walk_move import propose_random_walk
 
 __all__ = ["SMCResult", "SMCError", "tempered_smc"]
@@ -46,6 +49,7 @@ class SMCResult:
     n_evals: int
     n_failed: int
     acceptance: list = field(default_factory=list)  # mean acceptance per stage
+    stage_log: list = field(default_factory=list)   # per stage: dict of (R,) diagnostics (stage_record)
 
     @property
     def log_z_mean_error(self):
@@ -53,6 +57,17 @@ class SMCResult:
         r = self.log_z.size
         sd = float(np.std(self.log_z, ddof=1)) if r > 1 else float("nan")
         return float(np.mean(self.log_z)), sd / np.sqrt(r)
+
+    def move_summary(self):
+        """Per stage, averaged over the runs that moved: MCMC moves, their acceptance and
+        the particles' summed squared jump (stage-start covariance units); the stage-0
+        ancestors left at the end (fewest over runs). Plain lists, for diagnostics."""
+        if not self.stage_log:
+            return {}
+        out = {k: [round(float(np.nanmean(rec[k])), 3) for rec in self.stage_log]
+               for k in ("n_moves", "acceptance", "sq_jump")}
+        out["ancestors_last"] = int(np.nanmin(self.stage_log[-1]["ancestors"]))
+        return out
 
 
 def _next_beta(beta, log_like, target):
@@ -127,15 +142,18 @@ class _Evaluator:
 
 
 def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
-                 seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None):
+                 seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None,
+                 move_rule="acceptance"):
     """Run n_runs independent tempered SMC samplers in lockstep.
 
     log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    Returns SMCResult.
+    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate). -> SMCResult.
     """
+    if move_rule not in _MOVE_CYCLE:
+        raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
     R, N = int(n_runs), int(n_particles)
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(R)]
     theta0 = np.concatenate([sample_prior(rng, N) for rng in rngs])
@@ -148,7 +166,8 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     stages = np.zeros(R, dtype=int)
     kish = np.full(R, float(N))
     scale = np.full(R, 2.38 / np.sqrt(pop.u.shape[1]))
-    acc_hist = []
+    acc_hist, stage_log = [], []
+    origin = np.arange(R * N)   # each particle's stage-0 ancestor (genealogy diagnostics)
     while np.any(beta < 1.0):
         active = np.flatnonzero(beta < 1.0)
         if stages.max() >= max_stages:
@@ -166,9 +185,13 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
             idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
             beta[r] = new
             stages[r] += 1
+        parents = np.array([np.unique(idx[r * N:(r + 1) * N]).size for r in range(R)])
+        origin = origin[idx]
         pop = pop.take(idx)
-        acc = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves)
+        acc, moves = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves,
+                                 move_rule)
         acc_hist.append(acc)
+        stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
     shape = (R, N)
@@ -176,18 +199,49 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
                      aux={k: v.reshape(shape + v.shape[1:]) for k, v in pop.aux.items()},
                      log_z=log_z, n_stages=stages, kish_ess_last=kish, distinct=distinct,
-                     n_evals=evaluate.n_evals, n_failed=evaluate.n_failed, acceptance=acc_hist)
+                     n_evals=evaluate.n_evals, n_failed=evaluate.n_failed, acceptance=acc_hist,
+                     stage_log=stage_log)
 
 
-def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves):
-    """Metropolis moves of the active runs' particles; returns the mean acceptance.
+def stage_record(active, beta, kish, parents, origin, moves, R, N):
+    """One stage's diagnostics, (R,) arrays (NaN for runs that had finished): beta, the
+    Kish ESS of the incremental weights, distinct parents kept by the resampling, distinct
+    stage-0 ancestors, the number of moves, their mean acceptance and the particles' summed
+    squared jump in units of the stage-start covariance (Mahalanobis; a fresh independent
+    draw from the same distribution lies 2 d away on average)."""
+    rec = {k: np.full(R, np.nan) for k in ("beta", "kish_ess", "parents", "ancestors", "n_moves",
+                                           "acceptance", "sq_jump", "acc_independent", "acc_rw", "acc_de")}
+    for r in active:
+        rec["beta"][r], rec["kish_ess"][r], rec["parents"][r] = beta[r], kish[r], parents[r]
+        rec["ancestors"][r] = np.unique(origin[r * N:(r + 1) * N]).size
+        rec["n_moves"][r], rec["acceptance"][r], rec["sq_jump"][r], kinds = moves[r]
+        for kind, rate in kinds.items():
+            rec["acc_" + kind][r] = rate
+    return rec
 
-    Each run sets its own number of moves from its own acceptance, so a run's numbers do
-    not depend on the other runs (nor on how many there are)."""
+
+def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves, move_rule="acceptance"):
+    """Metropolis moves of the active runs' particles; returns (the mean acceptance, per run
+    (moves, mean acceptance, mean summed squared Mahalanobis jump per particle)).
+
+    Each run sets its own number of moves from its own particles, so a run's numbers do
+    not depend on the other runs (nor on how many there are). move_rule "acceptance":
+    random-walk and DE moves alternate, ceil(log 0.05 / log(1 - acceptance)) of them (the
+    acceptance of the first two), so that about 95 % of the particles move at least once
+    (Drovandi and Pettitt 2011, Biometrics 67:225; from memory). "jump": independence,
+    random-walk, independence, DE moves in turn until DECORRELATED of the run's particles
+    have jumped, summed over the stage's moves, a squared Mahalanobis distance of d (in
+    the stage-start covariance; two independent draws lie 2 d apart on average): the
+    expected squared jump distance as the measure of a kernel's mixing follows Fearnhead
+    and Taylor (2013, Bayesian Analysis 8:411; from memory), the per-particle target is
+    ours. Measured in docs/running.md."""
     frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
     chol = {r: _scaled_cholesky(frozen[r]) for r in active}
-    n_moves = {r: min_moves for r in active}
-    last_rate = {}
+    fits = {r: (frozen[r].mean(axis=0), chol[r]) for r in active}
+    n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
+    rates = {r: [] for r in active}
+    by_kind = {r: {} for r in active}
+    jump = {r: np.zeros(N) for r in active}
     k = 0
     while True:
         moving = [r for r in active if k < n_moves[r]]
@@ -197,31 +251,59 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         run_of = np.repeat(moving, N)
         b = beta[run_of]
         sub = pop.take(rows)
-        if k % 2 == 0:
-            prop_u = propose_random_walk(sub.u, run_of, {r: chol[r] for r in moving}, scale, rngs)
-        else:
-            prop_u = propose_de(sub.u, run_of, np.concatenate([frozen[r] for r in moving]), moving, N, rngs)
+        kind = _MOVE_CYCLE[move_rule][k % len(_MOVE_CYCLE[move_rule])]
+        prop_u, log_corr = _propose(kind, sub.u, run_of, moving, N, frozen, chol, fits, scale, rngs)
         prop = evaluate(prop_u)
         log_ratio = (prop.log_prior + b * _finite(prop.log_like)) - (sub.log_prior + b * _finite(sub.log_like))
         log_ratio = np.where(np.isfinite(prop.log_prior) & (np.isfinite(prop.log_like) | (b == 0)),
-                             log_ratio, -np.inf)
+                             log_ratio + log_corr, -np.inf)
         draws = np.concatenate([rngs[r].random(N) for r in moving])
         accept = np.log(draws) < log_ratio
+        old_u = sub.u.copy()
         sub.put(accept, prop)
         for name in ("u", "theta", "log_prior", "log_like"):
             getattr(pop, name)[rows] = getattr(sub, name)
         for key in pop.aux:
             pop.aux[key][rows] = sub.aux[key]
-        for r in moving:
-            last_rate[r] = float(accept[run_of == r].mean())
-            if k % 2 == 0:  # adapt the random-walk scale toward 0.25 acceptance
-                scale[r] *= np.exp(last_rate[r] - 0.25)
+        for j, r in enumerate(moving):
+            sl = slice(j * N, (j + 1) * N)
+            rates[r].append(float(accept[sl].mean()))
+            by_kind[r].setdefault(kind, []).append(rates[r][-1])
+            step = np.linalg.solve(chol[r], (sub.u[sl] - old_u[sl]).T)
+            jump[r] += np.sum(step * step, axis=0)
+            if kind == "rw":  # adapt the random-walk scale toward 0.25 acceptance
+                scale[r] *= np.exp(rates[r][-1] - 0.25)
         k += 1
-        if k == 2:
-            for r in moving:
-                a = max(min(last_rate[r], 0.99), 1e-3)
-                n_moves[r] = int(min(max_moves, max(min_moves, np.ceil(np.log(0.05) / np.log1p(-a)))))
-    return float(np.mean([last_rate[r] for r in active]))
+        for r in moving:
+            n_moves[r] = _moves_wanted(move_rule, k, n_moves[r], rates[r], jump[r], pop.u.shape[1],
+                                       min_moves, max_moves)
+    moves = {r: (len(rates[r]), float(np.mean(rates[r])), float(jump[r].mean()),
+                 {kind: float(np.mean(v)) for kind, v in by_kind[r].items()}) for r in active}
+    return float(np.mean([rates[r][-1] for r in active])), moves
+
+
+_MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
+DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
+
+
+def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):
+    """(proposals, log proposal-density correction) of one move of the given kind."""
+    if kind == "independent":
+        return propose_independent(u, run_of, {r: fits[r] for r in moving}, rngs)
+    if kind == "rw":
+        return propose_random_walk(u, run_of, {r: chol[r] for r in moving}, scale, rngs), 0.0
+    return propose_de(u, run_of, np.concatenate([frozen[r] for r in moving]), moving, N, rngs), 0.0
+
+
+def _moves_wanted(move_rule, k, current, rates, jump, d, min_moves, max_moves):
+    """The run's number of moves this stage, revised after its k-th move."""
+    if move_rule == "jump":
+        done = k >= min_moves and np.mean(jump >= d) >= DECORRELATED
+        return k if done else max_moves
+    if k != 2:
+        return current
+    a = max(min(rates[-1], 0.99), 1e-3)
+    return int(min(max_moves, max(min_moves, np.ceil(np.log(0.05) / np.log1p(-a)))))
 
 
 def _finite(x):

@@ -50,7 +50,7 @@ SPLIT_MIN_SIDE = 2                    # rows on each side of a split
 # the error of a window's log Z had an sd of 0.33-0.38 nats with 24, and 1.0-2.3 with 12.
 SPLIT_SOLVES = 24
 
-WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=20, alpha=0.01,
+WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=20, move_rule="jump", alpha=0.01,
                        n_source_check=2000, pi0=None, kind=None, dof=None, smc_rhat_max=1.02,
                        max_error_p=0.05, split_check=True, split_particles=100, split_runs=2,
                        split_min_rows=2 * SPLIT_MIN_SIDE, split_flag_below=-2.0)
@@ -168,7 +168,8 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
             "distinct_particles": res.distinct.tolist(), "kish_ess_last_stage": res.kish_ess_last.tolist(),
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
-            "per_row": list(target.per_row), "source_check_cpu_s": check_cpu}
+            "per_row": list(target.per_row), "source_check_cpu_s": check_cpu,
+            "moves": res.move_summary()}
     out = WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
                        flags, diag, split_bf, split_err, prior_p0,
                        _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed),
@@ -180,9 +181,7 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
 def _source_check_state(split_ran, split_bf):
     """The change-of-source check: "run", "failed" (its SMC runs failed) or "not_run"
     (fewer rows than split_min_rows, or split_check off; flag source_check_not_run)."""
-    if not split_ran:
-        return "not_run"
-    return "run" if np.isfinite(split_bf) else "failed"
+    return "not_run" if not split_ran else ("run" if np.isfinite(split_bf) else "failed")
 
 
 def _shared_information(shared_prior, theta, rows, pi0, seed):
@@ -206,7 +205,8 @@ def _run_smc(target, seed, n_particles, n_runs, opt, on_stage=None):
     try:
         return tempered_smc(sp.log_prob, target, sp.sample, Transform(support_bounds(sp)),
                             n_particles=n_particles, n_runs=n_runs, seed=seed,
-                            ess_target=opt["ess_target"], max_moves=opt["max_moves"], on_stage=on_stage)
+                            ess_target=opt["ess_target"], max_moves=opt["max_moves"], on_stage=on_stage,
+                            move_rule=opt["move_rule"])
     except SMCError as exc:
         raise WindowError(f"window: {exc}") from None
 
@@ -235,7 +235,8 @@ def split_points(n_rows):
 def _log_evidence(prior, forward, liks, seed, opt, on_stage=None):
     """(log Z, error) of the window model with every row's SO2 free."""
     target = So2FreeWindowTarget(prior, forward, liks, n_solve=SPLIT_SOLVES)
-    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], opt, on_stage).log_z_mean_error
+    check = dict(opt, move_rule="acceptance")   # the moves its thresholds were measured with
+    return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], check, on_stage).log_z_mean_error
 
 
 def _split_source_log10_bf(prior, forward, liks, seed, opt, on_stage=None):
@@ -389,8 +390,7 @@ def _window_flags(res, rhat_max, bf, split_bf, opt, split_ran=False):
     flags = []
     if split_ran and not np.isfinite(split_bf):
         flags.append("source_check_failed")
-    if not split_ran:
-        flags.append("source_check_not_run")
+    flags += [] if split_ran else ["source_check_not_run"]
     if bf < 0.0 or split_bf < opt["split_flag_below"]:
         flags.append("mixed_sources")
     if rhat_max > opt["smc_rhat_max"]:
