@@ -44,7 +44,7 @@ def test_weights_at_an_edge_hold_the_prior_mass_below_it():
 def test_edge_found_by_bisection_matches_the_saturation_pressure():
     """The edge of each draw lies within 1/32 of a solve interval (in ln P) below the
     saturation pressure the forward model finds by its own 50-step bisection, and the
-    gas there is the gas of a direct solve at that pressure."""
+    gas there is the gas of a direct solve at that pressure (to the solver's tolerance)."""
     spec = load_prior_file(ROOT / "priors" / "arc_basalt.toml")
     forward = ForwardModel(spec, ratio_names=NAMES)
     lik = Likelihood(Measurement(NAMES, [0.5, 0.1, 30.0], 0.15), prediction_names=NAMES)
@@ -63,7 +63,9 @@ def test_edge_found_by_bisection_matches_the_saturation_pressure():
     full[:, target._j_p] = np.exp(ln_edge)
     direct = forward.state(full, saturation=False)["gas"]
     top = np.argmax(ln_p == ln_edge[:, None], axis=1)   # the first slot at the edge
-    assert np.allclose(gas[e, top], direct, rtol=1e-12, atol=0)
+    # the grid's sweep starts each state from its neighbour's solution, so it agrees with a
+    # cold solve to the speciation solver's tolerance, not bit for bit (measured <= 5e-9)
+    assert np.allclose(gas[e, top], direct, rtol=1e-8, atol=0)
     # no gas above the edge: the last point has none unless the edge lies in the last solve
     # interval (then every point up to the last one is spread below or onto the edge)
     in_last = ln_edge >= np.log(target.p_solve[-2]) - 1e-12

@@ -117,7 +117,8 @@ def one_pressure():
 def test_shared_pressure_equals_the_quadrature_at_its_solved_pressures(one_pressure):
     """At a solved node of the per-row grid no interpolation happens, so the per-row path's
     row log-likelihoods there and the shared path's at that pressure are the same numbers
-    (one batch solve against one solve; equal to 1e-9 nats, common practice, no source)."""
+    (one warm-started sweep against one cold solve: equal to 1e-8 relative, the speciation
+    solver's tolerance; common practice, no source)."""
     per, shared, fwd, meas = one_pressure
     liks = [Likelihood(m, prediction_names=NAMES) for m in meas]
     # the fixed grid (adaptive=False): with pooled pressures (the default) each draw otherwise
@@ -143,7 +144,7 @@ def test_shared_pressure_equals_the_quadrature_at_its_solved_pressures(one_press
             assert np.array_equal(np.isfinite(a), np.isfinite(b))
             fin = np.isfinite(a)
             compared += fin.sum()
-            np.testing.assert_allclose(a[fin], b[fin], rtol=0, atol=1e-9)
+            np.testing.assert_allclose(a[fin], b[fin], rtol=1e-8, atol=1e-9)
     assert compared > 50
 
 
