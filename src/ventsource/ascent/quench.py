@@ -38,6 +38,7 @@ from ventsource.chemistry.thermochemistry import LN10, NASA_COEFFS, NASA_T_MID, 
 QUENCH_MODELS = ("gas_buffered", "rock_buffered", "none")
 N_SP = H_ATOMS.size
 MAX_ITERATIONS = 100
+NEAR = 0.2  # gases this close in ln C/H, ln S/H and excess O start from each other's root
 TOLERANCE = 1e-13
 
 
@@ -304,6 +305,11 @@ def _gas_buffered_batch(temperature_k, pressure_bar, ideal, gas, coeffs, t_mid, 
     buf = np.empty((24, n_sp))
     scratch = np.empty(SCRATCH_SIZE)
     v = np.empty(4)
+    t_last = p_last = math.nan
+    v_prev = np.empty(4)
+    v_warm = np.empty(4)
+    prev = np.empty(3)
+    warm = False
     for j in range(temperature_k.shape[0]):
         t, p = temperature_k[j], pressure_bar[j]
         b_h = b_c = b_o = b_s = 0.0
@@ -315,12 +321,16 @@ def _gas_buffered_batch(temperature_k, pressure_bar, ideal, gas, coeffs, t_mid, 
         q = (b_o - 0.5 * b_h - 2.0 * b_c - 2.0 * b_s) / b_h
         if not (b_h > 0.0 and b_c > 0.0 and b_s > 0.0 and math.isfinite(q) and t > 0.0 and p > 0.0):
             status[j] = STATUS_NOT_CONVERGED
+            warm = False
             for i in range(n_sp):
                 x[j, i] = math.nan
             continue
-        ln_k_kernel(t, coeffs, t_mid, nu, ln_k)
-        if not ideal:
-            log_fugacity_coefficients_kernel(t, p, ln_phi)
+        if t != t_last or p != p_last:  # a batch usually shares one quench state
+            warm = False
+            ln_k_kernel(t, coeffs, t_mid, nu, ln_k)
+            if not ideal:
+                log_fugacity_coefficients_kernel(t, p, ln_phi)
+            t_last, p_last = t, p
         ln_p = math.log(p)
         log_fugacity_offsets(ln_k, 0.0, base)
         for i in range(n_sp):
@@ -335,7 +345,21 @@ def _gas_buffered_batch(temperature_k, pressure_bar, ideal, gas, coeffs, t_mid, 
         ln_s_h = math.log(b_s / b_h)
         for i in range(n_sp):
             cexp[i] = math.exp(base[i])
-        st, iters[j] = _newton4(v, cexp, g_w, ln_c_h, ln_s_h, x[j], buf)
+        st = STATUS_NOT_CONVERGED
+        near = abs(ln_c_h - prev[0]) + abs(ln_s_h - prev[1]) + abs(q - prev[2]) < NEAR
+        if warm and near:  # the previous gas's root: a pressure sweep's neighbour (see below)
+            for k in range(4):
+                v_warm[k] = v_prev[k]
+            st, iters[j] = _newton4(v_warm, cexp, g_w, ln_c_h, ln_s_h, x[j], buf)
+            if st == STATUS_OK:
+                for k in range(4):
+                    v[k] = v_warm[k]
+        if st != STATUS_OK:
+            st, iters[j] = _newton4(v, cexp, g_w, ln_c_h, ln_s_h, x[j], buf)
+        warm = st == STATUS_OK
+        prev[0], prev[1], prev[2] = ln_c_h, ln_s_h, q
+        for k in range(4):
+            v_prev[k] = v[k]
         if st != STATUS_OK:
             iters[j] += 1000  # marks the fallback
             st = _nested(ln_k, ln_phi, ln_p, b_h, b_c, b_s, w0, exps, h_w, c_w, s_w, g_w,

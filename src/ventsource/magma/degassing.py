@@ -36,13 +36,15 @@ M_FEO = 71.844  # g/mol, IUPAC 2013 atomic weights (as melt.py)
 
 @_kernel
 def _fill_bulk_context(ctx, temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s,
-                       ideal, ln_k, ln_phi, redox_par):
+                       ideal, ln_k, ln_phi, redox_par, same_temperature=False):
     """Context of one state from its bulk H2O (wt%), CO2 and S (ppm); redox_par =
-    (evolving 0/1, Kress-Carmichael composition term, FeOt wt% of the dry melt)."""
+    (evolving 0/1, Kress-Carmichael composition term, FeOt wt% of the dry melt);
+    same_temperature: ln_k already holds the values at temperature_k."""
     n_h = 2.0 * h2o_wt / 100.0 / M_H2O
     n_c = co2_ppm_bulk * 1e-6 / M_CO2
     n_s = s_ppm * 1e-6 / M_S
-    _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi)
+    _fill_context(ctx, temperature_k, pressure_bar, dfmq, n_h, n_c, n_s, d_s, ideal, ln_k, ln_phi,
+                  same_temperature)
     dry = 1.0 - h2o_wt / 100.0 - (co2_ppm_bulk + s_ppm) * 1e-6
     n_fe = redox_par[2] / 100.0 / M_FEO * dry
     set_redox_reference(ctx, n_fe, redox_par[1], redox_par[0] > 0.5)
@@ -138,8 +140,10 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
     ctx[_C_SCSS_W] = s_caps[5]  # the SCSS law's H2O term and the dry melt's molar mass
     ctx[_C_MDRY] = s_caps[6]
     for j in range(temperature_k.shape[0]):
+        # a batch's states mostly share one temperature: ln K is then kept from state j - 1
         _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
-                           co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par)
+                           co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par,
+                           j > 0 and temperature_k[j] == temperature_k[j - 1])
         psat = math.nan
         if want_psat or open_system:
             # works on a copy: ctx still describes the state at P afterwards
@@ -154,7 +158,8 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
                                   x_out[j], mg, work)
             if st != STATUS_GAS:  # the cold start decides, as for any other state
                 _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
-                                   co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par)
+                                   co2_ppm_bulk[j], s_ppm[j], d_s[j], ideal, ln_k, ln_phi, redox_par,
+                                   True)
         if st != STATUS_GAS:
             st = _degas_state(ctx, psat, pressure_bar[j], open_system, n_open_steps, h_law, h_par,
                               c_law, c_par, ideal, ln_k, ln_phi, z, x_out[j], mg, work)
