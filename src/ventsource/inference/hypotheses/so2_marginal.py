@@ -41,8 +41,7 @@ WINDOW_CELLS = 6           # the fine grid spans this many coarse cells each sid
 
 def log_ratios_of(gas, top, bottom):
     """ln of molar ratios (n, m) from weight matrices; -inf/NaN where undefined."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.log(gas @ top) - np.log(gas @ bottom)
+    return observables.log_ratios(gas, top, bottom)
 
 
 def _log_diff_ndtr(alpha, beta):
