@@ -154,7 +154,15 @@ def _degas_batch(temperature_k, pressure_bar, dfmq, h2o_wt, co2_ppm_bulk, s_ppm,
         warm = (j > 0 and not open_system and redox_par[0] > 0.5 and status_out[j - 1] == STATUS_GAS
                 and _same_magma(j, temperature_k, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s))
         if warm:
-            st = _warm_sweep_step(ctx, dfmq_out[j - 1], h_law, h_par, c_law, c_par, ln_k, z,
+            d_start = dfmq_out[j - 1]
+            if (j > 1 and status_out[j - 2] == STATUS_GAS and pressure_bar[j - 1] != pressure_bar[j - 2]
+                    and _same_magma(j - 1, temperature_k, dfmq, h2o_wt, co2_ppm_bulk, s_ppm, d_s)):
+                # the sweep's dFMQ extrapolated in ln P from its last two states (a secant
+                # predictor, as in numerical continuation): one redox step fewer, same root
+                d_start += (dfmq_out[j - 1] - dfmq_out[j - 2]) * (
+                    math.log(pressure_bar[j] / pressure_bar[j - 1])
+                    / math.log(pressure_bar[j - 1] / pressure_bar[j - 2]))
+            st = _warm_sweep_step(ctx, d_start, h_law, h_par, c_law, c_par, ln_k, z,
                                   x_out[j], mg, work)
             if st != STATUS_GAS:  # the cold start decides, as for any other state
                 _fill_bulk_context(ctx, temperature_k[j], pressure_bar[j], dfmq[j], h2o_wt[j],
