@@ -167,19 +167,21 @@ def run_demo(out_dir="demo-output", n_rows=DEMO_ROWS, workers=2, seed=1, resume=
     write tables and figures; returns paths. The windows run is the main result (out_dir);
     the row-by-row run (out_dir/row_by_row) is there to compare."""
     from ventsource.workflow.measurements import read_measurements
-    from ventsource.workflow.series import run_series
     data_path = make_demo_data(out_dir, n_rows=n_rows)
     series = read_measurements(data_path, default_sigma=RATIO_SIGMA)
     note = ("synthetic demo at a fictional volcano; demo prior with five free parameters and "
             "the released-sulfur hypothesis")
     by_row = os.path.join(out_dir, "row_by_row")
     runs = ((out_dir, "column", DEMO_WINDOW_OPTIONS, "by windows"), (by_row, "rows", DEMO_OPTIONS, "row by row"))
-    run_both(run_series, [dict(series=series, prior_path=str(DEMO_RELEASE_PRIOR), out_dir=folder,
-                               seed=seed, workers=workers, resume=resume, options=dict(options),
-                               progress_stream=progress_stream, model_note=note, window=window,
-                               synthetic_data=True, progress_label=label)
-                          for folder, window, options, label in runs])
-    figs = _demo_figures(out_dir, by_row, series)
+    row_figures = lambda: _row_figures(out_dir, by_row, series)  # noqa: E731
+    _, (_, figs) = run_both(_run_then_plot, [
+        dict(series=series, prior_path=str(DEMO_RELEASE_PRIOR), out_dir=folder, seed=seed,
+             workers=workers, resume=resume, options=dict(options), progress_stream=progress_stream,
+             model_note=note, window=window, synthetic_data=True, progress_label=label,
+             plot=row_figures if folder == by_row else None)
+        for folder, window, options, label in runs])
+    window_figs = _window_figures(out_dir, by_row, series)   # the comparison figure last
+    figs = window_figs[:-1] + figs + window_figs[-1:]
     from ventsource.workflow.report_html import write_report
     for folder in (out_dir, by_row):
         write_report(folder)  # with the figures embedded
@@ -213,17 +215,36 @@ def run_both(run, calls):
     return [f.result() for f in futures]
 
 
-def _demo_figures(out_dir, by_row, series):
+def _run_then_plot(plot=None, **kwargs):
+    """run_series, then (in the same thread, while the other run may still be going) the
+    run's own figures: (run_series' result, figure paths). Only one thread draws at a time:
+    the windows run draws after both have ended."""
+    from ventsource.workflow.series import run_series
+    result = run_series(**kwargs)
+    return result, (plot() if plot is not None else [])
+
+
+DEMO_TITLE = "Mount Kerrow (fictional volcano), synthetic demo series"
+
+
+def _row_figures(out_dir, by_row, series):
+    from ventsource.inference.priors import load_prior_file
+    from ventsource.workflow.figures import run_figures
+    mid = series.ids[len(series.ids) // 2]
+    return run_figures(by_row, series, load_prior_file(DEMO_RELEASE_PRIOR),
+                       corner_ids=[series.ids[0], mid, series.ids[-1]],
+                       truth_csv=os.path.join(out_dir, "truth.csv"), title=DEMO_TITLE + ", row by row",
+                       n_prior=0)
+
+
+def _window_figures(out_dir, by_row, series):
     from ventsource.inference.priors import load_prior_file
     from ventsource.workflow.figures import plot_rows_vs_windows, prior_p_magmatic, run_figures
     spec = load_prior_file(DEMO_RELEASE_PRIOR)
     truth = os.path.join(out_dir, "truth.csv")
-    title = "Mount Kerrow (fictional volcano), synthetic demo series"
+    title = DEMO_TITLE
     figs = run_figures(out_dir, series, spec, truth_csv=truth, title=title + ", by windows",
                        n_prior=1500)
-    mid = series.ids[len(series.ids) // 2]
-    figs += run_figures(by_row, series, spec, corner_ids=[series.ids[0], mid, series.ids[-1]],
-                        truth_csv=truth, title=title + ", row by row", n_prior=0)
     figs.append(plot_rows_vs_windows(os.path.join(by_row, "summary.csv"),
                                      os.path.join(out_dir, "summary.csv"),
                                      os.path.join(out_dir, "figures", "rows_vs_windows.png"),
