@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ventsource.inference.engines.de_move import propose_de
-from ventsource.inference.engines.independence_move import propose_independent
+from ventsource.inference.engines.independence_move import fit_mixture, propose_independent
 from ventsource.inference.engines.random_walk_move import propose_random_walk
 
 __all__ = ["SMCResult", "SMCError", "tempered_smc"]
@@ -143,14 +143,17 @@ class _Evaluator:
 
 def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
                  seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None,
-                 move_rule="acceptance"):
+                 move_rule="acceptance", proposal_components=1):
     """Run n_runs independent tempered SMC samplers in lockstep.
 
     log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate). -> SMCResult.
+    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate).
+    proposal_components: t components of the "jump" rule's independence proposal (1: one t
+    fitted to the run's particles; more: a mixture over k-means clusters,
+    independence_move.fit_mixture). -> SMCResult.
     """
     if move_rule not in _MOVE_CYCLE:
         raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
@@ -189,7 +192,7 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         origin = origin[idx]
         pop = pop.take(idx)
         acc, moves = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves,
-                                 move_rule)
+                                 move_rule, proposal_components)
         acc_hist.append(acc)
         stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
@@ -220,7 +223,8 @@ def stage_record(active, beta, kish, parents, origin, moves, R, N):
     return rec
 
 
-def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves, move_rule="acceptance"):
+def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves, move_rule="acceptance",
+                components=1):
     """Metropolis moves of the active runs' particles; returns (the mean acceptance, per run
     (moves, mean acceptance, mean summed squared Mahalanobis jump per particle)).
 
@@ -237,7 +241,8 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     ours. Measured in docs/running.md."""
     frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
     chol = {r: _scaled_cholesky(frozen[r]) for r in active}
-    fits = {r: (frozen[r].mean(axis=0), chol[r]) for r in active}
+    fits = {r: fit_mixture(frozen[r], chol[r], components if move_rule == "jump" else 1, rngs[r])
+            for r in active}
     n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
     rates = {r: [] for r in active}
     by_kind = {r: {} for r in active}
