@@ -202,3 +202,27 @@ def test_mixture_proposal_density_ratio_matches_scipy_mixture_of_t():
     one = fit_mixture(u, lower, 1, None)
     np.testing.assert_allclose(one[0], u.mean(axis=0))
     assert one[1] is lower
+
+
+def test_final_sweep_moves_capped_runs_at_beta_one_and_keeps_the_posterior():
+    """final_moves: runs whose last stage hit max_moves (here 2, far too few) move on at
+    beta = 1; the posterior still matches the toy's scipy.stats.truncnorm reference and the
+    runs stay independent of how many there are."""
+    res = tempered_smc(*_toy(), n_particles=1000, n_runs=4, seed=3, move_rule="jump", max_moves=2,
+                       final_moves=40)
+    last = res.stage_log[-1]
+    assert np.all(last["beta"] == 1.0) and np.all(np.isnan(last["kish_ess"]))
+    assert np.all(last["n_moves"] > 2), last["n_moves"]
+    _, mean_ref, sd_ref = _analytic()
+    flat = res.theta.reshape(-1, 3)
+    np.testing.assert_allclose(flat.mean(axis=0), mean_ref, atol=5.0 * sd_ref.max() / np.sqrt(flat.shape[0] / 2))
+    np.testing.assert_allclose(flat.std(axis=0), sd_ref, rtol=0.08)
+    a = tempered_smc(*_toy(), n_particles=200, n_runs=2, seed=5, move_rule="jump", max_moves=2, final_moves=10)
+    b = tempered_smc(*_toy(), n_particles=200, n_runs=5, seed=5, move_rule="jump", max_moves=2, final_moves=10)
+    np.testing.assert_array_equal(a.theta, b.theta[:2])
+    # no run capped (max_moves 30 on the toy): no sweep, the same numbers as without it
+    c = tempered_smc(*_toy(), n_particles=200, n_runs=2, seed=5, move_rule="jump")
+    d = tempered_smc(*_toy(), n_particles=200, n_runs=2, seed=5, move_rule="jump", final_moves=10)
+    assert all(np.nanmax(rec["n_moves"]) < 30 for rec in c.stage_log)
+    np.testing.assert_array_equal(c.theta, d.theta)
+    assert len(c.stage_log) == len(d.stage_log)

@@ -143,7 +143,7 @@ class _Evaluator:
 
 def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
                  seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None,
-                 move_rule="acceptance", proposal_components=1):
+                 move_rule="acceptance", proposal_components=1, final_moves=0):
     """Run n_runs independent tempered SMC samplers in lockstep.
 
     log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
@@ -153,7 +153,9 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate).
     proposal_components: t components of the "jump" rule's independence proposal (1: one t
     fitted to the run's particles; more: a mixture over k-means clusters,
-    independence_move.fit_mixture). -> SMCResult.
+    independence_move.fit_mixture). final_moves: with "jump", a run whose last stage stopped
+    at max_moves before its particles decorrelated moves on at beta = 1, up to final_moves
+    more (_final_sweep). -> SMCResult.
     """
     if move_rule not in _MOVE_CYCLE:
         raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
@@ -197,6 +199,11 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
+    if final_moves and move_rule == "jump":
+        rec = _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
+                           proposal_components, origin)
+        if rec is not None:
+            stage_log.append(rec)
     shape = (R, N)
     distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
@@ -204,6 +211,26 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
                      log_z=log_z, n_stages=stages, kish_ess_last=kish, distinct=distinct,
                      n_evals=evaluate.n_evals, n_failed=evaluate.n_failed, acceptance=acc_hist,
                      stage_log=stage_log)
+
+
+def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves, components,
+                 origin):
+    """More moves at beta = 1 for the runs whose last tempering stage hit max_moves (their
+    particles had not jumped d each; the jump rule's test, _moves_wanted), up to final_moves,
+    stopping when they have. Each run decides from its own last stage, so a run's numbers
+    do not depend on the others. MCMC at the target after the last reweighting keeps it
+    invariant (Del Moral, Doucet and Jasra 2006: any number of moves may follow a stage).
+    -> the sweep's stage record (beta 1, no resampling), or None when no run needed it."""
+    R = len(rngs)
+    last = np.full(R, np.nan)
+    for rec in stage_log:   # each run's own last stage (runs end at different stages)
+        last = np.where(np.isfinite(rec["n_moves"]), rec["n_moves"], last)
+    capped = np.flatnonzero(last >= max_moves)
+    if capped.size == 0:
+        return None
+    beta = np.ones(R)
+    _, moves = _rejuvenate(pop, capped, beta, N, scale, rngs, evaluate, final_moves, min_moves, "jump", components)
+    return stage_record(capped, beta, np.full(R, np.nan), np.full(R, float(N)), origin, moves, R, N)
 
 
 def stage_record(active, beta, kish, parents, origin, moves, R, N):
