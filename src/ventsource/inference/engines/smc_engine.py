@@ -151,8 +151,9 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
     move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate).
-    proposal_components: t components of the "jump" rule's independence proposal (1: one t
-    fitted to the run's particles; more: a mixture over k-means clusters,
+    proposal_components: t components of the "jump" rule's independence proposal once a
+    run's independence moves accepted less than MIX_BELOW in a stage (before that, and with
+    1, one t fitted to the run's particles; a mixture over k-means clusters:
     independence_move.fit_mixture). final_moves: with "jump", a run whose last stage stopped
     at max_moves before its particles decorrelated moves on at beta = 1, up to final_moves
     more (_final_sweep). -> SMCResult.
@@ -173,6 +174,7 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     scale = np.full(R, 2.38 / np.sqrt(pop.u.shape[1]))
     acc_hist, stage_log = [], []
     origin = np.arange(R * N)   # each particle's stage-0 ancestor (genealogy diagnostics)
+    mixed = np.zeros(R, dtype=bool)   # runs whose independence proposal is the mixture
     while np.any(beta < 1.0):
         active = np.flatnonzero(beta < 1.0)
         if stages.max() >= max_stages:
@@ -193,15 +195,18 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         parents = np.array([np.unique(idx[r * N:(r + 1) * N]).size for r in range(R)])
         origin = origin[idx]
         pop = pop.take(idx)
+        comps = {r: proposal_components if mixed[r] else 1 for r in active}
         acc, moves = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves,
-                                 move_rule, proposal_components)
+                                 move_rule, comps)
+        for r in active:   # each run from its own moves only
+            mixed[r] |= moves[r][3].get("independent", 1.0) < MIX_BELOW
         acc_hist.append(acc)
         stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
     if final_moves and move_rule == "jump":
         rec = _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
-                           proposal_components, origin)
+                           {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin)
         if rec is not None:
             stage_log.append(rec)
     shape = (R, N)
@@ -268,7 +273,8 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     ours. Measured in docs/running.md."""
     frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
     chol = {r: _scaled_cholesky(frozen[r]) for r in active}
-    fits = {r: fit_mixture(frozen[r], chol[r], components if move_rule == "jump" else 1, rngs[r])
+    comps = components if isinstance(components, dict) else dict.fromkeys(active, components)
+    fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
             for r in active}
     n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
     rates = {r: [] for r in active}
@@ -316,6 +322,10 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
 
 _MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
 DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
+# a run's independence proposal becomes the mixture (proposal_components) once one t fitted to
+# its particles had its proposals accepted less often than this in a stage: one t then
+# covers a curved posterior with a much wider ellipsoid (measured in DEVELOPERS.md)
+MIX_BELOW = 0.05
 
 
 def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):
