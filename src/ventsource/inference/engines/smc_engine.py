@@ -105,6 +105,13 @@ class _Population:
         return _Population(self.u[idx], self.theta[idx], self.log_prior[idx], self.log_like[idx],
                            {k: v[idx] for k, v in self.aux.items()})
 
+    def set_rows(self, rows, other):
+        """Rows `rows` of every array from other (a population of len(rows) particles)."""
+        for name in ("u", "theta", "log_prior", "log_like"):
+            getattr(self, name)[rows] = getattr(other, name)
+        for key in self.aux:
+            self.aux[key][rows] = other.aux[key]
+
     def put(self, mask, other):
         for name in ("u", "theta", "log_prior", "log_like"):
             getattr(self, name)[mask] = getattr(other, name)[mask]
@@ -167,10 +174,7 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     pop = evaluate(transform.forward(theta0))
     if not np.isfinite(pop.log_like).any():
         raise SMCError("no prior draw gives a finite likelihood (the model releases no usable gas)")
-    beta = np.zeros(R)
-    log_z = np.zeros(R)
-    stages = np.zeros(R, dtype=int)
-    kish = np.full(R, float(N))
+    beta, log_z, kish, stages = np.zeros(R), np.zeros(R), np.full(R, float(N)), np.zeros(R, dtype=int)
     scale = np.full(R, 2.38 / np.sqrt(pop.u.shape[1]))
     acc_hist, stage_log = [], []
     origin = np.arange(R * N)   # each particle's stage-0 ancestor (genealogy diagnostics)
@@ -179,19 +183,8 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         active = np.flatnonzero(beta < 1.0)
         if stages.max() >= max_stages:
             raise SMCError(f"tempering did not reach beta = 1 in {max_stages} stages")
-        idx = np.arange(R * N)
-        for r in active:
-            sl = slice(r * N, (r + 1) * N)
-            ll = pop.log_like[sl]
-            new = _next_beta(beta[r], ll, ess_target)
-            lw = np.where(np.isfinite(ll), (new - beta[r]) * ll, -np.inf)
-            top = lw.max()
-            w = np.exp(lw - top)
-            log_z[r] += top + np.log(w.mean())
-            kish[r] = w.sum() ** 2 / (w * w).sum()
-            idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
-            beta[r] = new
-            stages[r] += 1
+        idx = _reweight(pop.log_like, active, beta, log_z, kish, ess_target, rngs, N)
+        stages[active] += 1
         parents = np.array([np.unique(idx[r * N:(r + 1) * N]).size for r in range(R)])
         origin = origin[idx]
         pop = pop.take(idx)
@@ -205,10 +198,8 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
     if final_moves and move_rule == "jump":
-        rec = _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
-                           {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin)
-        if rec is not None:
-            stage_log.append(rec)
+        stage_log += _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
+                                  {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin)
     shape = (R, N)
     distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
@@ -218,6 +209,24 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
                      stage_log=stage_log)
 
 
+def _reweight(log_like, active, beta, log_z, kish, ess_target, rngs, N):
+    """Each active run's next temperature, its log Z increment and Kish ESS (updating beta,
+    log_z and kish in place); -> the resampled particle indices (others keep their own)."""
+    idx = np.arange(log_like.size)
+    for r in active:
+        sl = slice(r * N, (r + 1) * N)
+        ll = log_like[sl]
+        new = _next_beta(beta[r], ll, ess_target)
+        lw = np.where(np.isfinite(ll), (new - beta[r]) * ll, -np.inf)
+        top = lw.max()
+        w = np.exp(lw - top)
+        log_z[r] += top + np.log(w.mean())
+        kish[r] = w.sum() ** 2 / (w * w).sum()
+        idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
+        beta[r] = new
+    return idx
+
+
 def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves, components,
                  origin):
     """More moves at beta = 1 for the runs whose last tempering stage hit max_moves (their
@@ -225,17 +234,17 @@ def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_move
     stopping when they have. Each run decides from its own last stage, so a run's numbers
     do not depend on the others. MCMC at the target after the last reweighting keeps it
     invariant (Del Moral, Doucet and Jasra 2006: any number of moves may follow a stage).
-    -> the sweep's stage record (beta 1, no resampling), or None when no run needed it."""
+    -> [the sweep's stage record (beta 1, no resampling)], or [] when no run needed it."""
     R = len(rngs)
     last = np.full(R, np.nan)
     for rec in stage_log:   # each run's own last stage (runs end at different stages)
         last = np.where(np.isfinite(rec["n_moves"]), rec["n_moves"], last)
     capped = np.flatnonzero(last >= max_moves)
     if capped.size == 0:
-        return None
+        return []
     beta = np.ones(R)
     _, moves = _rejuvenate(pop, capped, beta, N, scale, rngs, evaluate, final_moves, min_moves, "jump", components)
-    return stage_record(capped, beta, np.full(R, np.nan), np.full(R, float(N)), origin, moves, R, N)
+    return [stage_record(capped, beta, np.full(R, np.nan), np.full(R, float(N)), origin, moves, R, N)]
 
 
 def stage_record(active, beta, kish, parents, origin, moves, R, N):
@@ -271,11 +280,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     expected squared jump distance as the measure of a kernel's mixing follows Fearnhead
     and Taylor (2013, Bayesian Analysis 8:411; from memory), the per-particle target is
     ours. Measured in docs/running.md."""
-    frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
-    chol = {r: _scaled_cholesky(frozen[r]) for r in active}
-    comps = components if isinstance(components, dict) else dict.fromkeys(active, components)
-    fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
-            for r in active}
+    frozen, chol, fits = _stage_fits(pop, active, N, move_rule, components, rngs)
     n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
     rates = {r: [] for r in active}
     by_kind = {r: {} for r in active}
@@ -299,10 +304,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         accept = np.log(draws) < log_ratio
         old_u = sub.u.copy()
         sub.put(accept, prop)
-        for name in ("u", "theta", "log_prior", "log_like"):
-            getattr(pop, name)[rows] = getattr(sub, name)
-        for key in pop.aux:
-            pop.aux[key][rows] = sub.aux[key]
+        pop.set_rows(rows, sub)
         for j, r in enumerate(moving):
             sl = slice(j * N, (j + 1) * N)
             rates[r].append(float(accept[sl].mean()))
@@ -318,6 +320,17 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     moves = {r: (len(rates[r]), float(np.mean(rates[r])), float(jump[r].mean()),
                  {kind: float(np.mean(v)) for kind, v in by_kind[r].items()}) for r in active}
     return float(np.mean([rates[r][-1] for r in active])), moves
+
+
+def _stage_fits(pop, active, N, move_rule, components, rngs):
+    """Per active run: its stage-start particles, their scaled Cholesky factor and the
+    independence proposal's fit (the mixture only for "jump" runs given K > 1)."""
+    frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
+    chol = {r: _scaled_cholesky(frozen[r]) for r in active}
+    comps = components if isinstance(components, dict) else dict.fromkeys(active, components)
+    fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
+            for r in active}
+    return frozen, chol, fits
 
 
 _MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
