@@ -254,7 +254,13 @@ def test_acceptance_recharge_found_and_scrubbing_not_taken_for_a_change(basalt, 
     recharge to source B with twice the CO2 and half the S (27-39), as
     `ventsource bench --only window` makes it. The recharge is found within 2 rows and no
     change is put at or inside the scrubbing stretch (rows 14-26): every change found is
-    the recharge (the issue's acceptance)."""
+    the recharge (the issue's acceptance). Measured on the merged pooled-pressure code, seed 1:
+    segments 0-26 and 27-39, p_change_before 0.9999973 at row 27 and <= 2.5e-6 elsewhere,
+    294 CPU-s to choose; each segment then inverted as a window (seed 1): P(M0) of A's
+    magmatic rows 0.70-0.94, A's scrubbed rows 0.000, B 0.38-0.92 (>= 0.7 not met for every
+    B row); 90 % bands hold the truth in both (H2O 3.30-5.13 and 2.82-5.81 wt% against
+    3.92; CO2 571-1018 and 713-2067 ppm against 779 and 1557; S 2399-3696 and 956-2121 ppm
+    against 3071 and 1536); segment A flagged rhat_high (1.048)."""
     from ventsource.bench.segments import story
     from ventsource.inference.segments.search import segment_series
     spec, forward = basalt

@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ventsource.inference.engines.de_move import propose_de
-from ventsource.inference.engines.independence_move import propose_independent
+from ventsource.inference.engines.independence_move import fit_mixture, propose_independent
 from ventsource.inference.engines.random_walk_move import propose_random_walk
 
 __all__ = ["SMCResult", "SMCError", "tempered_smc"]
@@ -105,6 +105,13 @@ class _Population:
         return _Population(self.u[idx], self.theta[idx], self.log_prior[idx], self.log_like[idx],
                            {k: v[idx] for k, v in self.aux.items()})
 
+    def set_rows(self, rows, other):
+        """Rows `rows` of every array from other (a population of len(rows) particles)."""
+        for name in ("u", "theta", "log_prior", "log_like"):
+            getattr(self, name)[rows] = getattr(other, name)
+        for key in self.aux:
+            self.aux[key][rows] = other.aux[key]
+
     def put(self, mask, other):
         for name in ("u", "theta", "log_prior", "log_like"):
             getattr(self, name)[mask] = getattr(other, name)[mask]
@@ -143,14 +150,20 @@ class _Evaluator:
 
 def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, n_runs=4,
                  seed=0, ess_target=0.5, max_moves=30, min_moves=2, max_stages=200, on_stage=None,
-                 move_rule="acceptance"):
+                 move_rule="acceptance", proposal_components=1, final_moves=0):
     """Run n_runs independent tempered SMC samplers in lockstep.
 
     log_prior(theta) -> (n,); log_like(theta) -> ((n,), {name: (n, ...)}); sample_prior(rng,
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate). -> SMCResult.
+    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate).
+    proposal_components: t components of the "jump" rule's independence proposal once a
+    run's independence moves accepted less than MIX_BELOW in a stage (before that, and with
+    1, one t fitted to the run's particles; a mixture over k-means clusters:
+    independence_move.fit_mixture). final_moves: with "jump", a run whose last stage stopped
+    at max_moves before its particles decorrelated moves on at beta = 1, up to final_moves
+    more (_final_sweep). -> SMCResult.
     """
     if move_rule not in _MOVE_CYCLE:
         raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
@@ -161,39 +174,32 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     pop = evaluate(transform.forward(theta0))
     if not np.isfinite(pop.log_like).any():
         raise SMCError("no prior draw gives a finite likelihood (the model releases no usable gas)")
-    beta = np.zeros(R)
-    log_z = np.zeros(R)
-    stages = np.zeros(R, dtype=int)
-    kish = np.full(R, float(N))
+    beta, log_z, kish, stages = np.zeros(R), np.zeros(R), np.full(R, float(N)), np.zeros(R, dtype=int)
     scale = np.full(R, 2.38 / np.sqrt(pop.u.shape[1]))
     acc_hist, stage_log = [], []
     origin = np.arange(R * N)   # each particle's stage-0 ancestor (genealogy diagnostics)
+    mixed = np.zeros(R, dtype=bool)   # runs whose independence proposal is the mixture
     while np.any(beta < 1.0):
         active = np.flatnonzero(beta < 1.0)
         if stages.max() >= max_stages:
             raise SMCError(f"tempering did not reach beta = 1 in {max_stages} stages")
-        idx = np.arange(R * N)
-        for r in active:
-            sl = slice(r * N, (r + 1) * N)
-            ll = pop.log_like[sl]
-            new = _next_beta(beta[r], ll, ess_target)
-            lw = np.where(np.isfinite(ll), (new - beta[r]) * ll, -np.inf)
-            top = lw.max()
-            w = np.exp(lw - top)
-            log_z[r] += top + np.log(w.mean())
-            kish[r] = w.sum() ** 2 / (w * w).sum()
-            idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
-            beta[r] = new
-            stages[r] += 1
+        idx = _reweight(pop.log_like, active, beta, log_z, kish, ess_target, rngs, N)
+        stages[active] += 1
         parents = np.array([np.unique(idx[r * N:(r + 1) * N]).size for r in range(R)])
         origin = origin[idx]
         pop = pop.take(idx)
+        comps = {r: proposal_components if mixed[r] else 1 for r in active}
         acc, moves = _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves,
-                                 move_rule)
+                                 move_rule, comps)
+        for r in active:   # each run from its own moves only
+            mixed[r] |= moves[r][3].get("independent", 1.0) < MIX_BELOW
         acc_hist.append(acc)
         stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
+    if final_moves and move_rule == "jump":
+        stage_log += _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
+                                  {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin)
     shape = (R, N)
     distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
@@ -201,6 +207,44 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
                      log_z=log_z, n_stages=stages, kish_ess_last=kish, distinct=distinct,
                      n_evals=evaluate.n_evals, n_failed=evaluate.n_failed, acceptance=acc_hist,
                      stage_log=stage_log)
+
+
+def _reweight(log_like, active, beta, log_z, kish, ess_target, rngs, N):
+    """Each active run's next temperature, its log Z increment and Kish ESS (updating beta,
+    log_z and kish in place); -> the resampled particle indices (others keep their own)."""
+    idx = np.arange(log_like.size)
+    for r in active:
+        sl = slice(r * N, (r + 1) * N)
+        ll = log_like[sl]
+        new = _next_beta(beta[r], ll, ess_target)
+        lw = np.where(np.isfinite(ll), (new - beta[r]) * ll, -np.inf)
+        top = lw.max()
+        w = np.exp(lw - top)
+        log_z[r] += top + np.log(w.mean())
+        kish[r] = w.sum() ** 2 / (w * w).sum()
+        idx[sl] = r * N + _systematic(w / w.sum(), rngs[r])
+        beta[r] = new
+    return idx
+
+
+def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves, components,
+                 origin):
+    """More moves at beta = 1 for the runs whose last tempering stage hit max_moves (their
+    particles had not jumped d each; the jump rule's test, _moves_wanted), up to final_moves,
+    stopping when they have. Each run decides from its own last stage, so a run's numbers
+    do not depend on the others. MCMC at the target after the last reweighting keeps it
+    invariant (Del Moral, Doucet and Jasra 2006: any number of moves may follow a stage).
+    -> [the sweep's stage record (beta 1, no resampling)], or [] when no run needed it."""
+    R = len(rngs)
+    last = np.full(R, np.nan)
+    for rec in stage_log:   # each run's own last stage (runs end at different stages)
+        last = np.where(np.isfinite(rec["n_moves"]), rec["n_moves"], last)
+    capped = np.flatnonzero(last >= max_moves)
+    if capped.size == 0:
+        return []
+    beta = np.ones(R)
+    _, moves = _rejuvenate(pop, capped, beta, N, scale, rngs, evaluate, final_moves, min_moves, "jump", components)
+    return [stage_record(capped, beta, np.full(R, np.nan), np.full(R, float(N)), origin, moves, R, N)]
 
 
 def stage_record(active, beta, kish, parents, origin, moves, R, N):
@@ -220,7 +264,8 @@ def stage_record(active, beta, kish, parents, origin, moves, R, N):
     return rec
 
 
-def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves, move_rule="acceptance"):
+def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_moves, move_rule="acceptance",
+                components=1):
     """Metropolis moves of the active runs' particles; returns (the mean acceptance, per run
     (moves, mean acceptance, mean summed squared Mahalanobis jump per particle)).
 
@@ -235,9 +280,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     expected squared jump distance as the measure of a kernel's mixing follows Fearnhead
     and Taylor (2013, Bayesian Analysis 8:411; from memory), the per-particle target is
     ours. Measured in docs/running.md."""
-    frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
-    chol = {r: _scaled_cholesky(frozen[r]) for r in active}
-    fits = {r: (frozen[r].mean(axis=0), chol[r]) for r in active}
+    frozen, chol, fits = _stage_fits(pop, active, N, move_rule, components, rngs)
     n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
     rates = {r: [] for r in active}
     by_kind = {r: {} for r in active}
@@ -261,10 +304,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
         accept = np.log(draws) < log_ratio
         old_u = sub.u.copy()
         sub.put(accept, prop)
-        for name in ("u", "theta", "log_prior", "log_like"):
-            getattr(pop, name)[rows] = getattr(sub, name)
-        for key in pop.aux:
-            pop.aux[key][rows] = sub.aux[key]
+        pop.set_rows(rows, sub)
         for j, r in enumerate(moving):
             sl = slice(j * N, (j + 1) * N)
             rates[r].append(float(accept[sl].mean()))
@@ -282,8 +322,23 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     return float(np.mean([rates[r][-1] for r in active])), moves
 
 
+def _stage_fits(pop, active, N, move_rule, components, rngs):
+    """Per active run: its stage-start particles, their scaled Cholesky factor and the
+    independence proposal's fit (the mixture only for "jump" runs given K > 1)."""
+    frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
+    chol = {r: _scaled_cholesky(frozen[r]) for r in active}
+    comps = components if isinstance(components, dict) else dict.fromkeys(active, components)
+    fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
+            for r in active}
+    return frozen, chol, fits
+
+
 _MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
 DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
+# a run's independence proposal becomes the mixture (proposal_components) once one t fitted to
+# its particles had its proposals accepted less often than this in a stage: one t then
+# covers a curved posterior with a much wider ellipsoid (measured in DEVELOPERS.md)
+MIX_BELOW = 0.05
 
 
 def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):

@@ -53,7 +53,8 @@ SPLIT_SOLVES = 24
 WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=20, move_rule="jump", alpha=0.01,
                        n_source_check=2000, pi0=None, kind=None, dof=None, smc_rhat_max=1.02,
                        max_error_p=0.05, split_check=True, split_particles=100, split_runs=2,
-                       split_min_rows=2 * SPLIT_MIN_SIDE, split_flag_below=-2.0)
+                       split_min_rows=2 * SPLIT_MIN_SIDE, split_flag_below=-2.0, proposal_components=1, final_moves=0)
+_ENGINE_KEYS = ("ess_target", "max_moves", "move_rule", "proposal_components", "final_moves")  # tempered_smc's
 
 
 class WindowError(ValueError):
@@ -205,8 +206,7 @@ def _run_smc(target, seed, n_particles, n_runs, opt, on_stage=None):
     try:
         return tempered_smc(sp.log_prob, target, sp.sample, Transform(support_bounds(sp)),
                             n_particles=n_particles, n_runs=n_runs, seed=seed,
-                            ess_target=opt["ess_target"], max_moves=opt["max_moves"], on_stage=on_stage,
-                            move_rule=opt["move_rule"])
+                            on_stage=on_stage, **{k: opt[k] for k in _ENGINE_KEYS})
     except SMCError as exc:
         raise WindowError(f"window: {exc}") from None
 
