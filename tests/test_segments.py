@@ -234,7 +234,8 @@ def test_known_change_points_are_found_within_two_rows(basalt, n_rows, changes, 
 @pytest.mark.slow
 def test_no_spurious_change_in_one_source_series(basalt, capsys):
     """One source, 40 rows, a random half of them scrubbed 30-90 %: no change found in at
-    least 9 of 10 seeds (the issue's level)."""
+    least 9 of 10 seeds (the issue's level). Measured on 0.4.1 (seeds 0-9, one at a time):
+    no change found in any of the 10, 238-375 CPU-s each on a loaded machine."""
     from ventsource.inference.segments.search import segment_series
     spec, forward = basalt
     found = []
