@@ -130,9 +130,10 @@ def test_valid_engine_options_pass_the_check():
 
 # ---- the "jump" move rule: independence moves, moved until decorrelated ---------------
 
-def test_jump_rule_evidence_and_posterior_match_analytic():
+@pytest.mark.parametrize("rule", ["jump", "ridge"])
+def test_jump_rule_evidence_and_posterior_match_analytic(rule):
     # same toy and reference (scipy.stats.norm / truncnorm) as the default rule above
-    res = tempered_smc(*_toy(), n_particles=1000, n_runs=4, seed=3, move_rule="jump")
+    res = tempered_smc(*_toy(), n_particles=1000, n_runs=4, seed=3, move_rule=rule)
     log_z_ref, mean_ref, sd_ref = _analytic()
     log_z, err = res.log_z_mean_error
     assert abs(log_z - log_z_ref) < 4.0 * err + 0.02, (log_z, err, log_z_ref)
@@ -259,3 +260,43 @@ def test_mixture_proposal_on_a_curved_posterior_keeps_evidence_and_moments():
     flat = mix.theta.reshape(-1, 3)
     assert abs(flat[:, 0].mean()) < 1.5 and abs(flat[:, 1].mean()) < 3.0, flat.mean(axis=0)
     assert flat[:, 0].var() == pytest.approx(100.0, rel=0.2)
+
+
+# ---- the "ridge" move rule: moves in coordinates that straighten a bent ridge ----------
+
+def test_ridge_map_is_a_unit_jacobian_bijection_that_straightens_the_twist():
+    """Exact draws of the twisted Gaussian (_banana's closed form, bend 0.1): the twist
+    x2 -> x2 + bend (x1^2 - 100) has unit Jacobian, so straightened the covariance is
+    diag(100, 1, 0.25), log det = ln 25 = 3.22, against ln(100 x 201 x 0.25) = 8.52
+    twisted (Var x2 = 1 + bend^2 Var x1^2 = 1 + 0.01 x 2 x 10^4)."""
+    from ventsource.inference.engines.ridge_move import RidgeMap
+    rng = np.random.default_rng(8)
+    x1 = rng.normal(0.0, 10.0, 4000)
+    u = np.column_stack([x1, rng.normal(size=4000) - 0.1 * (x1 ** 2 - 100.0), rng.normal(0.0, 0.5, 4000)])
+    ridge = RidgeMap(u)
+    y = ridge.to_y(u)
+    np.testing.assert_allclose(ridge.from_y(y), u, atol=1e-10)
+    assert np.linalg.slogdet(np.cov(u, rowvar=False))[1] == pytest.approx(np.log(100 * 201 * 0.25), abs=0.15)
+    assert np.linalg.slogdet(np.cov(y, rowvar=False))[1] == pytest.approx(np.log(25.0), abs=0.1)
+    eps = 1e-6
+    jac = np.array([(ridge.to_y(u[:1] + eps * e) - ridge.to_y(u[:1] - eps * e))[0] / (2 * eps) for e in np.eye(3)])
+    assert abs(np.linalg.det(jac)) == pytest.approx(1.0, abs=1e-6)
+
+
+def test_ridge_rule_on_a_curved_posterior_keeps_evidence_and_moments_and_moves_further():
+    """move_rule "ridge" on the twisted Gaussian: evidence and moments match the closed
+    form (_banana), and in the last stage its independence proposals are accepted more
+    often than the straight t of the "jump" rule (measured 0.24 against 0.07)."""
+    args, log_z_ref = _banana()
+    jump = tempered_smc(*args, n_particles=500, n_runs=4, seed=1, move_rule="jump")
+    ridge = tempered_smc(*args, n_particles=500, n_runs=4, seed=1, move_rule="ridge")
+    last = ridge.stage_log[-1]
+    assert np.nanmean(last["acc_ridge_independent"]) > 2.0 * np.nanmean(jump.stage_log[-1]["acc_independent"])
+    log_z, err = ridge.log_z_mean_error
+    assert abs(log_z - log_z_ref) < 4.0 * err + 0.05, (log_z, err, log_z_ref)
+    flat = ridge.theta.reshape(-1, 3)
+    assert abs(flat[:, 0].mean()) < 1.5 and abs(flat[:, 1].mean()) < 3.0, flat.mean(axis=0)
+    assert flat[:, 0].var() == pytest.approx(100.0, rel=0.2)
+    a = tempered_smc(*args, n_particles=200, n_runs=2, seed=5, move_rule="ridge")
+    b = tempered_smc(*args, n_particles=200, n_runs=3, seed=5, move_rule="ridge")
+    np.testing.assert_array_equal(a.theta, b.theta[:2])   # seeded, runs independent of their number

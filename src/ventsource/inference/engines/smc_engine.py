@@ -13,7 +13,8 @@ at the start of the stage (ter Braak 2006, Statistics and Computing 16:239).
 With move_rule "acceptance" the number of moves per stage is
 ceil(log 0.05 / log(1 - acceptance)), capped, so that about 95 % of the particles move
 at least once; with "jump", independence moves from a t fitted to the population join
-them and the stage moves until the particles have decorrelated (_rejuvenate).
+them and the stage moves until the particles have decorrelated (_rejuvenate); "ridge"
+does the same in coordinates fitted to straighten a bent posterior (ridge_move.py).
 
 log Z is the sum over stages of the log mean incremental weight. The runs are
 independent (own seeds, own temperature ladders) but advance in lockstep so that
@@ -29,6 +30,7 @@ import numpy as np
 from ventsource.inference.engines.de_move import propose_de
 from ventsource.inference.engines.independence_move import fit_mixture, propose_independent
 from ventsource.inference.engines.random_walk_move import propose_random_walk
+from ventsource.inference.engines.ridge_move import fit_ridge, propose_ridge_independent, propose_ridge_walk
 
 __all__ = ["SMCResult", "SMCError", "tempered_smc"]
 
@@ -157,7 +159,9 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    move_rule: "acceptance" or "jump", how long each stage moves (_rejuvenate).
+    move_rule: "acceptance", "jump" or "ridge", how long each stage moves and with what
+    (_rejuvenate; "ridge" moves as "jump" does, its random-walk and independence moves in
+    coordinates that straighten the population's bend, ridge_move.py).
     proposal_components: t components of the "jump" rule's independence proposal once a
     run's independence moves accepted less than MIX_BELOW in a stage (before that, and with
     1, one t fitted to the run's particles; a mixture over k-means clusters:
@@ -197,9 +201,9 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
         stage_log.append(stage_record(active, beta, kish, parents, origin, moves, R, N))
         if on_stage is not None:
             on_stage(beta.copy(), stages.copy())
-    if final_moves and move_rule == "jump":
+    if final_moves and move_rule in JUMP_RULES:
         stage_log += _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves,
-                                  {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin)
+                                  {r: proposal_components if mixed[r] else 1 for r in range(R)}, origin, move_rule)
     shape = (R, N)
     distinct = np.array([np.unique(pop.u[r * N:(r + 1) * N], axis=0).shape[0] for r in range(R)])
     return SMCResult(theta=pop.theta.reshape(R, N, -1), log_like=pop.log_like.reshape(shape),
@@ -228,7 +232,7 @@ def _reweight(log_like, active, beta, log_z, kish, ess_target, rngs, N):
 
 
 def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_moves, min_moves, components,
-                 origin):
+                 origin, move_rule="jump"):
     """More moves at beta = 1 for the runs whose last tempering stage hit max_moves (their
     particles had not jumped d each; the jump rule's test, _moves_wanted), up to final_moves,
     stopping when they have. Each run decides from its own last stage, so a run's numbers
@@ -243,7 +247,8 @@ def _final_sweep(pop, stage_log, N, scale, rngs, evaluate, max_moves, final_move
     if capped.size == 0:
         return []
     beta = np.ones(R)
-    _, moves = _rejuvenate(pop, capped, beta, N, scale, rngs, evaluate, final_moves, min_moves, "jump", components)
+    _, moves = _rejuvenate(pop, capped, beta, N, scale, rngs, evaluate, final_moves, min_moves, move_rule,
+                           components)
     return [stage_record(capped, beta, np.full(R, np.nan), np.full(R, float(N)), origin, moves, R, N)]
 
 
@@ -254,7 +259,8 @@ def stage_record(active, beta, kish, parents, origin, moves, R, N):
     squared jump in units of the stage-start covariance (Mahalanobis; a fresh independent
     draw from the same distribution lies 2 d away on average)."""
     rec = {k: np.full(R, np.nan) for k in ("beta", "kish_ess", "parents", "ancestors", "n_moves",
-                                           "acceptance", "sq_jump", "acc_independent", "acc_rw", "acc_de")}
+                                           "acceptance", "sq_jump", "acc_independent", "acc_rw", "acc_de",
+                                           "acc_ridge_independent", "acc_ridge_rw")}
     for r in active:
         rec["beta"][r], rec["kish_ess"][r], rec["parents"][r] = beta[r], kish[r], parents[r]
         rec["ancestors"][r] = np.unique(origin[r * N:(r + 1) * N]).size
@@ -281,7 +287,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
     and Taylor (2013, Bayesian Analysis 8:411; from memory), the per-particle target is
     ours. Measured in docs/running.md."""
     frozen, chol, fits = _stage_fits(pop, active, N, move_rule, components, rngs)
-    n_moves = {r: (max_moves if move_rule == "jump" else min_moves) for r in active}
+    n_moves = {r: (max_moves if move_rule in JUMP_RULES else min_moves) for r in active}
     rates = {r: [] for r in active}
     by_kind = {r: {} for r in active}
     jump = {r: np.zeros(N) for r in active}
@@ -311,7 +317,7 @@ def _rejuvenate(pop, active, beta, N, scale, rngs, evaluate, max_moves, min_move
             by_kind[r].setdefault(kind, []).append(rates[r][-1])
             step = np.linalg.solve(chol[r], (sub.u[sl] - old_u[sl]).T)
             jump[r] += np.sum(step * step, axis=0)
-            if kind == "rw":  # adapt the random-walk scale toward 0.25 acceptance
+            if kind in ("rw", "ridge_rw"):  # adapt the random-walk scale toward 0.25 acceptance
                 scale[r] *= np.exp(rates[r][-1] - 0.25)
         k += 1
         for r in moving:
@@ -328,12 +334,17 @@ def _stage_fits(pop, active, N, move_rule, components, rngs):
     frozen = {r: pop.u[r * N:(r + 1) * N].copy() for r in active}
     chol = {r: _scaled_cholesky(frozen[r]) for r in active}
     comps = components if isinstance(components, dict) else dict.fromkeys(active, components)
-    fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
-            for r in active}
+    if move_rule == "ridge":
+        fits = {r: fit_ridge(frozen[r]) for r in active}
+    else:
+        fits = {r: fit_mixture(frozen[r], chol[r], comps.get(r, 1) if move_rule == "jump" else 1, rngs[r])
+                for r in active}
     return frozen, chol, fits
 
 
-_MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de")}
+_MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de"),
+               "ridge": ("ridge_independent", "ridge_rw", "ridge_independent", "de")}
+JUMP_RULES = ("jump", "ridge")   # rules that move until the particles have decorrelated
 DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
 # a run's independence proposal becomes the mixture (proposal_components) once one t fitted to
 # its particles had its proposals accepted less often than this in a stage: one t then
@@ -345,6 +356,10 @@ def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):
     """(proposals, log proposal-density correction) of one move of the given kind."""
     if kind == "independent":
         return propose_independent(u, run_of, {r: fits[r] for r in moving}, rngs)
+    if kind == "ridge_independent":
+        return propose_ridge_independent(u, run_of, {r: fits[r] for r in moving}, rngs)
+    if kind == "ridge_rw":
+        return propose_ridge_walk(u, run_of, {r: fits[r] for r in moving}, scale, rngs), 0.0
     if kind == "rw":
         return propose_random_walk(u, run_of, {r: chol[r] for r in moving}, scale, rngs), 0.0
     return propose_de(u, run_of, np.concatenate([frozen[r] for r in moving]), moving, N, rngs), 0.0
@@ -352,7 +367,7 @@ def _propose(kind, u, run_of, moving, N, frozen, chol, fits, scale, rngs):
 
 def _moves_wanted(move_rule, k, current, rates, jump, d, min_moves, max_moves):
     """The run's number of moves this stage, revised after its k-th move."""
-    if move_rule == "jump":
+    if move_rule in JUMP_RULES:
         done = k >= min_moves and np.mean(jump >= d) >= DECORRELATED
         return k if done else max_moves
     if k != 2:
