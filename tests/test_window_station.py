@@ -7,6 +7,14 @@ log-normal noise, seeded. Inverted as one window with the default (pooled) press
 the window must not be flagged for convergence (R-hat across the SMC runs, distinct
 particles). Its CPU seconds and peak RSS are printed (resource.getrusage), never
 asserted: speed is measured by `ventsource bench`.
+
+Measured with the window defaults (move_rule "ridge", max_moves 30, final_moves 60; the
+2-core machine running two such jobs at once): seed 1 R-hat 1.010, seed 2 1.011 (largest
+over the 9 shared parameters), no flag, 495-496 CPU-s, peak RSS 0.32 GiB; magmatic rows
+P(M0) mean 0.81, scrubbed rows max 0.000. Before, with the "jump" rule and 20 moves:
+R-hat 1.080 at 438 CPU-s (flagged); "ridge" with 20 moves 1.036 / 1.021 (349-353
+CPU-s), with 30 moves 1.013 / 1.023 (463-466), with 20 moves and 40 final 1.020
+(DEVELOPERS.md, the ridge move).
 """
 import resource
 import time
@@ -44,16 +52,6 @@ def station_week(spec, forward, n_rows=336, seed=3):
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="open item, measured with the window defaults (jump move rule, one t "
-                   "independence proposal; 2-core machine shared with one other job): 438 CPU-s, peak RSS 0.33 "
-                   "GiB, R-hat 1.080 across the four SMC runs: flagged rhat_high. The runs disagree along the "
-                   "magma's overall volatile content (H2O, CO2, S with the pressure pools' spread): 6-10 effective "
-                   "particles per run there against 100-1400 for temperature, quench, H2 and the pools' centre; "
-                   "not a missed mode (log Z within 0.9 nats). Measured on the main run alone: a mixture-of-t "
-                   "independence proposal (proposal_components 8) 1.065 at 296 CPU-s, plus 60 moves at beta = 1 "
-                   "(final_moves) 1.062 at 372, 400 particles x max_moves 10 1.158: none reaches 1.02 "
-                   "(DEVELOPERS.md, the jump rule's independence proposal). Magmatic rows P(M0) mean 0.812, "
-                   "scrubbed rows max 0.000")
 def test_a_week_of_station_ratios_as_one_window_converges(capsys):
     spec = load_prior_file(ROOT / "priors" / "arc_basalt.toml")
     forward = ForwardModel(spec, ratio_names=NAMES)

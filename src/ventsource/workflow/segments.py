@@ -26,7 +26,7 @@ SEGMENTS_CSV = "segments.csv"
 SEGMENT_COLUMNS = ("p_change_before",)
 TABLE_COLUMNS = ("segment", "first_time", "last_time", "n_rows", "first_id", "last_id", "log_z",
                  "log_z_error", "log10_odds_change_inside", "p_change_at_start")
-_EVIDENCE_OPTIONS = ("split_particles", "split_runs", "ess_target", "max_moves", "kind", "dof")
+_EVIDENCE_OPTIONS = ("split_particles", "split_runs", "ess_target", "split_max_moves", "kind", "dof")
 
 
 def segment_settings(segments=None):

@@ -159,16 +159,14 @@ def tempered_smc(log_prior, log_like, sample_prior, transform, n_particles=500, 
     n) -> (n, d) prior draws; transform: ventsource.inference.evidence.bridge.Transform of
     the prior's support. on_stage(beta (R,), stages (R,)): called after each stage, for
     progress reports only (it gets copies; the runs' numbers do not depend on it).
-    move_rule: "acceptance", "jump" or "ridge", how long each stage moves and with what
-    (_rejuvenate; "ridge" moves as "jump" does, its random-walk and independence moves in
-    coordinates that straighten the population's bend, ridge_move.py).
-    proposal_components: t components of the "jump" rule's independence proposal once a
-    run's independence moves accepted less than MIX_BELOW in a stage (before that, and with
-    1, one t fitted to the run's particles; a mixture over k-means clusters:
-    independence_move.fit_mixture). final_moves: with "jump", a run whose last stage stopped
-    at max_moves before its particles decorrelated moves on at beta = 1, up to final_moves
-    more (_final_sweep). -> SMCResult.
-    """
+    move_rule: "acceptance", "jump" or "ridge" (as "jump", in coordinates that straighten
+    the population's bend: ridge_move.py), how long each stage moves and with what
+    (_rejuvenate). proposal_components: t components of the "jump" rule's independence
+    proposal once a run's independence moves accepted less than MIX_BELOW in a stage
+    (before that, and with 1, one t; a mixture over k-means clusters: fit_mixture).
+    final_moves: with "jump" or "ridge", a run whose last stage stopped at max_moves before
+    its particles decorrelated moves on at beta = 1, up to final_moves more (_final_sweep).
+    -> SMCResult."""
     if move_rule not in _MOVE_CYCLE:
         raise SMCError(f"unknown move_rule {move_rule!r}; known: {sorted(_MOVE_CYCLE)}")
     R, N = int(n_runs), int(n_particles)

@@ -18,7 +18,7 @@ class SegmentEvidence:
     """log Z of the SO2-free window model for any stretch of a series, computed once.
 
     likelihoods: one Likelihood per row in time order; opt: the window options
-    (split_particles, split_runs, ess_target, max_moves are used)."""
+    (split_particles, split_runs, ess_target, split_max_moves are used)."""
 
     def __init__(self, prior, forward, likelihoods, seed=0, opt=None):
         self.prior, self.forward, self.liks = prior, forward, list(likelihoods)

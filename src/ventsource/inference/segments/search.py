@@ -62,7 +62,7 @@ def segment_series(measurements, prior, forward=None, seed=0, min_rows=DEFAULT_M
                    change_prior=DEFAULT_CHANGE_PRIOR, options=None):
     """Segments of a series (measurements in time order) that share one magma source.
 
-    options: the window options (split_particles, split_runs, ess_target, max_moves,
+    options: the window options (split_particles, split_runs, ess_target, split_max_moves,
     kind, dof) of each segment's evidence run. Returns a Segmentation."""
     start_cpu = time.process_time()
     kind_value = parse_change_prior(change_prior)

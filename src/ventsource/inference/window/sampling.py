@@ -50,10 +50,10 @@ SPLIT_MIN_SIDE = 2                    # rows on each side of a split
 # the error of a window's log Z had an sd of 0.33-0.38 nats with 24, and 1.0-2.3 with 12.
 SPLIT_SOLVES = 24
 
-WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=20, move_rule="jump", alpha=0.01,
-                       n_source_check=2000, pi0=None, kind=None, dof=None, smc_rhat_max=1.02,
-                       max_error_p=0.05, split_check=True, split_particles=100, split_runs=2,
-                       split_min_rows=2 * SPLIT_MIN_SIDE, split_flag_below=-2.0, proposal_components=1, final_moves=0)
+WINDOW_DEFAULTS = dict(n_particles=200, n_runs=4, ess_target=0.5, max_moves=30, move_rule="ridge", alpha=0.01,
+                       n_source_check=2000, pi0=None, kind=None, dof=None, smc_rhat_max=1.02, max_error_p=0.05,
+                       split_check=True, split_particles=100, split_runs=2, split_min_rows=2 * SPLIT_MIN_SIDE,
+                       split_flag_below=-2.0, proposal_components=1, final_moves=60, split_max_moves=20)
 _ENGINE_KEYS = ("ess_target", "max_moves", "move_rule", "proposal_components", "final_moves")  # tempered_smc's
 
 
@@ -235,7 +235,7 @@ def split_points(n_rows):
 def _log_evidence(prior, forward, liks, seed, opt, on_stage=None):
     """(log Z, error) of the window model with every row's SO2 free."""
     target = So2FreeWindowTarget(prior, forward, liks, n_solve=SPLIT_SOLVES)
-    check = dict(opt, move_rule="acceptance")   # the moves its thresholds were measured with
+    check = dict(opt, move_rule="acceptance", max_moves=opt["split_max_moves"])  # as its thresholds were measured
     return _run_smc(target, seed, opt["split_particles"], opt["split_runs"], check, on_stage).log_z_mean_error
 
 
