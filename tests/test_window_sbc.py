@@ -41,6 +41,15 @@ reliability within 2 sigma in every bin ([0, .2) 0.016 vs 0.026 +- 0.014; [.2, .
 vs 0.243 +- 0.151; [.4, .6) 0.509 vs 0.600 +- 0.141; [.6, .8) 0.712 vs 0.754 +- 0.082;
 [.8, 1] 0.880 vs 0.899 +- 0.038).
 
+Re-measured on 0.4.2 (window main runs move by the ridge rule, 30 moves a stage, 60 more
+at beta = 1 for runs that hit the cap; this slow test, another slow test on the other
+core): 5.1 CPU-s per window (median), 525 in all; rank chi-square p dfmq 0.817, co2_ppm
+0.946, s_partition 0.616, pressure_pool_centre 0.720, pressure_pool_spread 0.616; 90 %
+coverage 0.912 overall (0.88-0.93 per parameter); P(M0) reliability within 2 sigma in
+every bin ([0, .2) 0.015 vs 0.023 +- 0.014; [.2, .4) 0.304 vs 0.308 +- 0.147; [.4, .6)
+0.515 vs 0.600 +- 0.141; [.6, .8) 0.713 vs 0.719 +- 0.082; [.8, 1] 0.880 vs 0.909 +-
+0.038).
+
 Results are model- and prior-dependent: they say the window sampler inverts this model
 honestly; they do not say the model describes any volcano.
 """

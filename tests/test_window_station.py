@@ -11,7 +11,8 @@ asserted: speed is measured by `ventsource bench`.
 Measured with the window defaults (move_rule "ridge", max_moves 30, final_moves 60; the
 2-core machine running two such jobs at once): seed 1 R-hat 1.010, seed 2 1.011 (largest
 over the 9 shared parameters), no flag, 495-496 CPU-s, peak RSS 0.32 GiB; magmatic rows
-P(M0) mean 0.81, scrubbed rows max 0.000. Before, with the "jump" rule and 20 moves:
+P(M0) mean 0.81, scrubbed rows max 0.000. This test on the final code (another slow test
+on the other core): R-hat 1.010, no flag, 498 CPU-s, process peak RSS 0.35 GiB. Before, with the "jump" rule and 20 moves:
 R-hat 1.080 at 438 CPU-s (flagged); "ridge" with 20 moves 1.036 / 1.021 (349-353
 CPU-s), with 30 moves 1.013 / 1.023 (463-466), with 20 moves and 40 final 1.020
 (DEVELOPERS.md, the ridge move).
