@@ -255,15 +255,20 @@ def test_acceptance_recharge_found_and_scrubbing_not_taken_for_a_change(basalt, 
     recharge to source B with twice the CO2 and half the S (27-39), as
     `ventsource bench --only window` makes it. The recharge is found within 2 rows and no
     change is put at or inside the scrubbing stretch (rows 14-26): every change found is
-    the recharge (the issue's acceptance). Measured on the merged pooled-pressure code, seed 1:
-    segments 0-26 and 27-39, p_change_before 0.9999973 at row 27 and <= 2.5e-6 elsewhere,
-    294 CPU-s to choose; each segment then inverted as a window (seed 1): P(M0) of A's
-    magmatic rows 0.70-0.94, A's scrubbed rows 0.000, B 0.38-0.92 (>= 0.7 not met for every
-    B row); 90 % bands hold the truth in both (H2O 3.30-5.13 and 2.82-5.81 wt% against
-    3.92; CO2 571-1018 and 713-2067 ppm against 779 and 1557; S 2399-3696 and 956-2121 ppm
-    against 3071 and 1536); segment A flagged rhat_high (1.048)."""
+    the recharge (the issue's acceptance). Then each segment is inverted as a window, as a
+    run does: every scrubbed row P(M0) <= 0.1, every unscrubbed row of A >= 0.7, no
+    convergence flag, and each segment's 90 % bands hold its source's H2O, CO2, S and dFMQ.
+    Measured on 0.4.2, seed 1: segments 0-26 and 27-39, p_change_before 0.9999973 at row 27
+    and <= 2.5e-6 elsewhere, 245 CPU-s to choose, 415 with the windows; A's unscrubbed rows
+    0.70-0.94, A's scrubbed rows 0.000, B 0.41-0.92 (mean 0.69; not asserted: with the magma
+    held at its truth B's rows read 0.61-0.93, so the issue's >= 0.7 for every magmatic row
+    cannot hold on these data, docs/running.md); R-hat 1.004 and 1.017; bands: H2O
+    3.35-5.16 and 2.98-5.84 wt% against 3.92, CO2 576-1020 and 706-2145 ppm against 779
+    and 1557, S 2402-3717 and 993-2145 against 3071 and 1536, dFMQ 0.03-0.85 and
+    0.06-0.98 against 0.19."""
     from ventsource.bench.segments import story
     from ventsource.inference.segments.search import segment_series
+    from ventsource.inference.window.sampling import infer_window
     spec, forward = basalt
     meas, change, scrub_from = story(spec, forward, 40)
     seg = segment_series(meas, spec, forward=forward, seed=1)
@@ -271,3 +276,21 @@ def test_acceptance_recharge_found_and_scrubbing_not_taken_for_a_change(basalt, 
         print(f"\nsegments start at {seg.starts}; p_change_before {np.round(seg.p_change_before, 3).tolist()}")
     assert any(abs(c - change) <= 2 for c in seg.starts[1:]), seg.starts
     assert all(abs(c - change) <= 2 for c in seg.starts[1:]), (seg.starts, scrub_from)
+    names = list(spec.free_names)
+    truth_a = dict(zip(names, spec.sample(np.random.default_rng(3), 1)[0]))   # story()'s first draw
+    truth_b = dict(truth_a, co2_ppm=2.0 * truth_a["co2_ppm"], s_ppm=0.5 * truth_a["s_ppm"])
+    bounds = list(seg.starts) + [len(meas)]
+    for start, end in zip(bounds[:-1], bounds[1:]):
+        res = infer_window(meas[start:end], spec, forward=forward, seed=1)
+        p = np.array([r.p_magmatic for r in res.rows])
+        rows = np.arange(start, end)
+        with capsys.disabled():
+            print(f"rows {start}-{end - 1}: P(M0) {np.round(p, 3).tolist()}, R-hat {res.diagnostics['rhat_max']:.3f}")
+        assert not {"rhat_high", "few_distinct_particles"} & set(res.flags), res.flags
+        assert np.all(p[(rows >= scrub_from) & (rows < change)] <= 0.1), p
+        assert np.all(p[rows < scrub_from] >= 0.7), p
+        truth = truth_a if start < change else truth_b
+        for j, name in enumerate(res.shared_names):
+            if name in ("h2o_wt", "co2_ppm", "s_ppm", "dfmq"):
+                lo, hi = np.quantile(res.shared_draws[:, :, j], [0.05, 0.95])
+                assert lo <= truth[name] <= hi, (start, name, lo, hi, truth[name])
