@@ -1,8 +1,8 @@
 """Moves in coordinates that straighten a curved posterior ridge (per run).
 
-Fitted to a run's particles at the start of a stage: rotate to the principal axes of
-their covariance, take one principal score t as the ridge's lead, and subtract from
-every other score its least-squares quadratic in t (the ridge's bend). The map
+Fitted to a run's particles at the start of a stage: rotate so that one axis leads (the
+ridge's direction, chosen in RidgeMap), and subtract from every other coordinate its
+least-squares quadratic in the lead coordinate t (the ridge's bend). The map
 u -> y = (t, rest - g(t)) is a rotation followed by a shear, so its Jacobian is 1: a
 symmetric proposal in y is symmetric in u, and an independence density in y is the
 same density in u (change of variables), so the Metropolis-Hastings ratio is the one
@@ -25,10 +25,8 @@ RIDGE = 1e-6       # relative ridge-regression penalty of the quadratic fit
 
 
 def _design(t):
-    """Columns 1, t_i, t_i t_j (i <= j) of the lead scores t (n, k)."""
-    n, k = t.shape
-    quad = [t[:, i] * t[:, j] for i in range(k) for j in range(i, k)]
-    return np.column_stack([np.ones(n), t] + quad)
+    """Columns 1, t, t^2 of the lead coordinate t (n, 1)."""
+    return np.column_stack([np.ones(t.shape[0]), t, t * t])
 
 
 class RidgeMap:
@@ -40,14 +38,15 @@ class RidgeMap:
 
     def __init__(self, u):
         self.mean = u.mean(axis=0)
+        centred = u - self.mean
         d = u.shape[1]
         vals, vecs = np.linalg.eigh(np.atleast_2d(np.cov(u, rowvar=False)))
         leads = list(vecs[:, np.argsort(vals)[::-1][:CANDIDATES]].T) + list(np.eye(d))
-        lead = min(leads, key=lambda v: _volume(u - self.mean, v)[0])
+        lead = min(leads, key=lambda v: _volume(centred, v)[0])
         if d > 1:
-            lead = optimize.minimize(lambda v: _volume(u - self.mean, v)[0], lead, method="Nelder-Mead",
+            lead = optimize.minimize(lambda v: _volume(centred, v)[0], lead, method="Nelder-Mead",
                                      options={"maxfev": REFINE_EVALS, "xatol": 1e-3, "fatol": 1e-4}).x
-        _, self.basis, self.coef = _volume(u - self.mean, lead)
+        _, self.basis, self.coef = _volume(centred, lead)
 
     def to_y(self, u):
         return _straighten((u - self.mean) @ self.basis, self.coef)

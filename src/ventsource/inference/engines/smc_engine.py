@@ -343,7 +343,7 @@ def _stage_fits(pop, active, N, move_rule, components, rngs):
 _MOVE_CYCLE = {"acceptance": ("rw", "de"), "jump": ("independent", "rw", "independent", "de"),
                "ridge": ("ridge_independent", "ridge_rw", "ridge_independent", "de")}
 JUMP_RULES = ("jump", "ridge")   # rules that move until the particles have decorrelated
-DECORRELATED = 0.9   # share of particles that must have jumped d (move_rule "jump")
+DECORRELATED = 0.9   # share of particles that must have jumped d (JUMP_RULES)
 # a run's independence proposal becomes the mixture (proposal_components) once one t fitted to
 # its particles had its proposals accepted less often than this in a stage: one t then
 # covers a curved posterior with a much wider ellipsoid (measured in DEVELOPERS.md)
