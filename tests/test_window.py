@@ -98,8 +98,9 @@ def test_pressure_quadrature_against_a_much_finer_grid(basalt, quench, redox, n_
         forward = ForwardModel(spec, ratio_names=NAMES)
     meas, _ = synthetic_window(spec, forward, 8, np.r_[np.zeros(4), np.linspace(0.5, 0.9, 4)], seed=5)
     liks = [Likelihood(m, prediction_names=NAMES) for m in meas]
-    coarse = WindowTarget(spec, forward, liks, 0.5, n_solve=n_solve)
-    fine = WindowTarget(spec, forward, liks, 0.5, n_solve=400, refine=1)
+    # the rows' hypotheses on their own: the quadrature is the subject, the draws as measured
+    coarse = WindowTarget(spec, forward, liks, 0.5, n_solve=n_solve, persistent=False)
+    fine = WindowTarget(spec, forward, liks, 0.5, n_solve=400, refine=1, persistent=False)
     psi = coarse.shared_prior.sample(np.random.default_rng(1), 3000)
     psi = psi[np.argsort(-np.nan_to_num(coarse(psi)[0], nan=-np.inf))[:60]]
     assert coarse.gas_on_grid(psi)[2] is not None  # some draws' gas ends inside the grid

@@ -247,6 +247,17 @@ def test_pressure_rows_default_choice_and_bad_value():
     assert "\n" not in msg and "w.toml" in msg and "window.pressure_rows" in msg and "pooled" in msg
 
 
+
+def test_hypothesis_rows_default_choice_and_bad_value():
+    assert parse_prior(fast_data(), "w.toml").window_hypothesis_rows == "persistent"   # the default since 0.5.0
+    spec = with_window({"hypothesis_rows": "independent"})
+    assert spec.window_hypothesis_rows == "independent"
+    assert spec.to_dict()["window"]["hypothesis_rows"] == "independent"
+    with pytest.raises(PriorFileError) as info:
+        with_window({"hypothesis_rows": "sticky"})
+    msg = str(info.value)
+    assert "\n" not in msg and "w.toml" in msg and "window.hypothesis_rows" in msg and "persistent" in msg
+
 # --------------------------------------------------------------------------- "if scrubbed" columns
 
 def _log10_uniform_var(lo, hi):

@@ -10,7 +10,9 @@ inference/window/target.py and pooled_pressure.py state it:
   pressure P_i = F^-1(Phi(z_i)), F the prior file's pressure distribution (pooled_pressure.py);
   with independent pressures P_i from F directly;
 * each row's hypothesis: M0 (scrubbed fraction exactly 0) with probability pi0, else M1
-  with its scrubbed fraction from the prior file's scrubbed_so2 distribution;
+  with its scrubbed fraction from the prior file's scrubbed_so2 distribution; with
+  persistent hypotheses (the default) a row keeps the previous row's hypothesis with
+  probability rho (a shared parameter, hypothesis_persistence.py), else draws afresh;
 * the rows' ratios from the package's forward model, with the likelihood's own noise
   model (Likelihood.simulate_log: log-normal with sigma_ln = ln(1 + r)).
 
@@ -75,6 +77,20 @@ def row_pressures(target, dist_p, psi, rng, n_rows):
     return np.asarray(dist_p.ppf(special.ndtr(z)), float)
 
 
+def row_hypotheses(target, psi, rng, n_rows, pi0):
+    """Each row's hypothesis (0: M0, 1: M1): with prior odds pi0 on its own, or with
+    persistent hypotheses (hypothesis_persistence.py) a Markov chain: the first row
+    fresh, each next row keeps the previous row's with probability rho (psi's
+    persistence), else is fresh."""
+    model = (rng.random(n_rows) >= pi0).astype(int)
+    if not target.persistent:
+        return model
+    keep = rng.random(n_rows) < target.persistence(psi[None, :])[0]
+    for i in range(1, n_rows):
+        model[i] = model[i - 1] if keep[i] else model[i]
+    return model
+
+
 def draw_window(spec, forward, target, rng, n_rows=N_ROWS):
     """(psi (shared free values), pressures, scrubbed fractions, hypotheses (0/1), measurements)."""
     sp = target.shared_prior
@@ -86,7 +102,7 @@ def draw_window(spec, forward, target, rng, n_rows=N_ROWS):
     while True:
         psi = sp.sample(rng, 1)[0]
         pressure = row_pressures(target, dist_p, psi, rng, n_rows)
-        model = (rng.random(n_rows) >= pi0).astype(int)        # 1: scrubbed (M1)
+        model = row_hypotheses(target, psi, rng, n_rows, pi0)  # 1: scrubbed (M1)
         scrubbed = np.where(model == 1, dist_s.sample(rng, n_rows), 0.0)
         full = np.repeat(sp.full(psi[None, :]), n_rows, axis=0)
         full[:, j_p], full[:, j_s] = pressure, scrubbed

@@ -11,7 +11,7 @@ from ventsource.inference.priors.distributions import Distribution, Fixed, Unifo
 from ventsource.inference.priors.fields import PriorFileError
 from ventsource.inference.priors.parameter_table import check_physical_range
 from ventsource.inference.priors.schema import SCHEMA_VERSION
-from ventsource.inference.priors.window_table import PER_ROW_DEFAULT, PRESSURE_ROWS_DEFAULT
+from ventsource.inference.priors.window_table import HYPOTHESIS_ROWS_DEFAULT, PER_ROW_DEFAULT, PRESSURE_ROWS_DEFAULT
 
 
 class PriorSpec:
@@ -70,6 +70,12 @@ class PriorSpec:
         """How per-row pressures relate in the window model ([window] pressure_rows)."""
         chosen = None if self.window is None else self.window.pressure_rows
         return PRESSURE_ROWS_DEFAULT if chosen is None else chosen
+
+    @property
+    def window_hypothesis_rows(self) -> str:
+        """How rows' hypotheses relate in the window model ([window] hypothesis_rows)."""
+        chosen = None if self.window is None else self.window.hypothesis_rows
+        return HYPOTHESIS_ROWS_DEFAULT if chosen is None else chosen
 
     # ---- shapes
     @property

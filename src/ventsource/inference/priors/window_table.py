@@ -2,6 +2,8 @@
 
     [window]
     per_row = ["pressure_bar", "scrubbed_so2"]   # the default when the table is absent
+    pressure_rows = "pooled"                     # or "independent"
+    hypothesis_rows = "persistent"               # or "independent"
     source = "why these vary per row"
 
 Every parameter not in per_row is shared by the rows of a window (one magma source).
@@ -25,6 +27,8 @@ PER_ROW_ALLOWED = ("pressure_bar", "scrubbed_so2")
 PER_ROW_REQUIRED = "scrubbed_so2"
 PRESSURE_ROWS = ("pooled", "independent")   # how per-row pressures relate (pooled_pressure.py)
 PRESSURE_ROWS_DEFAULT = "pooled"
+HYPOTHESIS_ROWS = ("persistent", "independent")   # how rows' hypotheses relate (hypothesis_persistence.py)
+HYPOTHESIS_ROWS_DEFAULT = "persistent"
 
 
 @dataclass(frozen=True)
@@ -32,11 +36,14 @@ class WindowTable:
     per_row: tuple
     source: str | None = None
     pressure_rows: str | None = None   # None: the default, PRESSURE_ROWS_DEFAULT
+    hypothesis_rows: str | None = None  # None: the default, HYPOTHESIS_ROWS_DEFAULT
 
     def to_dict(self):
         out = {"per_row": list(self.per_row)}
         if self.pressure_rows is not None:
             out["pressure_rows"] = self.pressure_rows
+        if self.hypothesis_rows is not None:
+            out["hypothesis_rows"] = self.hypothesis_rows
         if self.source is not None:
             out["source"] = self.source
         return out
@@ -47,14 +54,12 @@ def parse_window(file: str, data: Mapping, dists: Mapping) -> WindowTable | None
     table = read_table(file, data, "window", "window", False)
     if table is None:
         return None
-    reject_unknown_keys(file, table, ("per_row", "source", "pressure_rows"), "window")
+    reject_unknown_keys(file, table, ("per_row", "source", "pressure_rows", "hypothesis_rows"), "window")
     source = read_string(file, table, "source", "window.source", False)
-    pressure_rows = read_string(file, table, "pressure_rows", "window.pressure_rows", False)
-    if pressure_rows is not None and pressure_rows not in PRESSURE_ROWS:
-        raise key_error(file, "window.pressure_rows",
-                        f"must be one of {', '.join(PRESSURE_ROWS)}, got {pressure_rows!r}")
+    pressure_rows = _choice(file, table, "pressure_rows", PRESSURE_ROWS)
+    hypothesis_rows = _choice(file, table, "hypothesis_rows", HYPOTHESIS_ROWS)
     if "per_row" not in table:
-        return WindowTable(PER_ROW_DEFAULT, source, pressure_rows)
+        return WindowTable(PER_ROW_DEFAULT, source, pressure_rows, hypothesis_rows)
     names = table["per_row"]
     if not isinstance(names, list):
         raise key_error(file, "window.per_row",
@@ -68,7 +73,14 @@ def parse_window(file: str, data: Mapping, dists: Mapping) -> WindowTable | None
         raise key_error(file, "window.per_row",
                         "must include 'scrubbed_so2' (it carries each row's own scrubbing hypothesis)")
     # file order of the allowed names, so equal sets give equal records
-    return WindowTable(tuple(n for n in PER_ROW_ALLOWED if n in names), source, pressure_rows)
+    return WindowTable(tuple(n for n in PER_ROW_ALLOWED if n in names), source, pressure_rows, hypothesis_rows)
+
+
+def _choice(file: str, table: Mapping, key: str, allowed: tuple):
+    value = read_string(file, table, key, f"window.{key}", False)
+    if value is not None and value not in allowed:
+        raise key_error(file, f"window.{key}", f"must be one of {', '.join(allowed)}, got {value!r}")
+    return value
 
 
 def _check_name(file: str, name, dists: Mapping) -> None:

@@ -21,7 +21,9 @@ CAUTION = ("Model- and prior-dependent; supports, never replaces, the observator
 
 PARAMETER_UNITS = {
     "pressure_bar": "bar", "pressure_pool_centre": "standard normal score (window model)",
-    "pressure_pool_spread": "1 = independent rows (window model)", "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
+    "pressure_pool_spread": "1 = independent rows (window model)",
+    "hypothesis_persistence": "probability that a row keeps the previous row's hypothesis (window model)",
+    "temperature_c": "degC", "dfmq": "log10 units relative to FMQ",
     "scrubbed_so2": "fraction of SO2 removed", "scrubbed_h2s": "fraction of H2S removed",
     "h2s_return": "fraction", "h2o_wt": "wt%", "co2_ppm": "ppm by mass", "s_ppm": "ppm by mass",
     "s_partition": "dimensionless (wt frac S in gas / wt frac S in melt)",

@@ -154,7 +154,10 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
     log_z, log_z_err = res.log_z_mean_error
     bf = np.nan   # one row: "one source against each row its own" compares the row with itself
     if len(measurements) > 1:
-        bf = _shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[2]), opt["n_source_check"])
+        R, N, d = res.theta.shape
+        lz = np.stack([res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)], axis=1)
+        log_z_check = independent_log_z(target, log_z, res.theta.reshape(R * N, d), lz, np.full(R * N, -np.log(R * N)))
+        bf = _shared_source_log10_bf(target, log_z_check, np.random.default_rng(seeds[2]), opt["n_source_check"])
     bar.rows_done()
     split_bf, split_err, check_cpu = np.nan, np.nan, 0.0
     if split_ran:
@@ -285,8 +288,7 @@ def _row_results(target, res, measurements, rng, opt):
     gas, h2s, edges = target.gas_on_grid(psi)
     grid = (gas, h2s, edges, target.log_weights(psi, edges))   # shared by every row
     lz = [res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)]
-    mix = target.row_mixture(*lz)
-    resp = np.stack([np.exp(target.log_pis[k] + lz[k] - mix) for k in range(len(lz))], axis=-1)
+    resp = target.row_states(psi, lz)
     out = []
     for i, meas in enumerate(measurements):
         p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)
@@ -375,6 +377,23 @@ def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
     return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
                      hypotheses=hyp, budget_draws=draws["budget"],
                      pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]))
+
+
+def independent_log_z(target, log_z, theta, lz, log_w):
+    """log Z of the window with each row's hypothesis drawn on its own, from a run with
+    persistent hypotheses: Z_ind = Z E_post[L_ind / L] over the run's weighted draws
+    (importance sampling; the persistence's prior integrates to 1). The check "one source
+    against each row its own" then compares like with like: a lone row has no neighbour
+    to persist with. log_z unchanged for independent hypotheses."""
+    if not target.persistent:
+        return log_z
+    lz_t = tuple(lz[:, k] for k in range(lz.shape[1]))
+    mix = target.row_mixture(*lz_t)
+    l_ind = np.where(np.isnan(mix), -np.inf, mix).sum(axis=1)
+    l_hmm = target.window_log_likelihood(theta, lz_t)
+    with np.errstate(invalid="ignore"):
+        ratio = np.where(np.isfinite(l_hmm), l_ind - l_hmm, -np.inf)
+    return float(log_z + special.logsumexp(ratio + log_w))
 
 
 def _shared_source_log10_bf(target, log_z_window, rng, n):

@@ -36,6 +36,7 @@ from scipy import special
 
 from ventsource.inference.engines.smc_engine import SMCError, _Population, _rejuvenate, _systematic, tempered_smc
 from ventsource.inference.evidence.bridge import Transform, support_bounds
+from ventsource.inference.window import hypothesis_persistence
 from ventsource.inference.window.target import WindowTarget
 
 MIN_DISTINCT_SHARE = 0.25
@@ -110,10 +111,14 @@ def start_population(shared_prior, n_particles, n_runs, seed, n_hypotheses=2):
                             np.full(n_runs, 2.38 / np.sqrt(theta.shape[1])))
 
 
-def _mixture(target, lz):
-    """(n, rows) log sum_k pi_k Z_k per row from lz (n, H, rows); NaN -> -inf."""
-    mix = target.row_mixture(*[lz[:, k] for k in range(lz.shape[1])])
-    return np.where(np.isnan(mix), -np.inf, mix)
+def arrival_log_pis(target, pop, before=None):
+    """(R N, H) log prior hypothesis probabilities of a row that follows the population's
+    rows (its first `before` rows): the prior odds, or with persistent hypotheses
+    (hypothesis_persistence.py) the odds the earlier rows leave for the next row."""
+    lz = pop.lz if before is None else pop.lz[:, :, :before]
+    if not target.persistent:
+        return np.broadcast_to(target.log_pis, (lz.shape[0], target.log_pis.size))
+    return hypothesis_persistence.next_row_log_pis(lz, target.log_pis, target.persistence(pop.theta))
 
 
 def new_row_evidences(prior, forward, likelihoods, pi0, theta):
@@ -125,9 +130,10 @@ def new_row_evidences(prior, forward, likelihoods, pi0, theta):
 
 def row_answer(pop, lz_new, log_pis, row=0):
     """Per-run probabilities (R, H) of each hypothesis for a new row (lz_new[:, :, row]),
-    from the population before it moves: sum_j w_j pi_k Z_k,j / sum_j w_j m_j."""
+    from the population before it moves: sum_j w_j pi_k Z_k,j / sum_j w_j m_j; log_pis
+    (H,) or per particle (R N, H) (arrival_log_pis)."""
     R, N = pop.log_w.shape
-    terms = log_pis[None, :] + lz_new[:, :, row]                       # (RN, H)
+    terms = log_pis + lz_new[:, :, row]                                 # (RN, H)
     terms = np.where(np.isnan(terms), -np.inf, terms)
     lw = pop.log_w.reshape(-1)[:, None] + terms
     per_run = special.logsumexp(lw.reshape(R, N, -1), axis=1)         # (R, H)
@@ -156,9 +162,11 @@ class _SplitEvaluator:
 
 
 def population_view(target, u, theta, lp, lz):
-    mix = _mixture(target, lz)
-    base = lp + mix[:, :-1].sum(axis=1)
-    new = np.where(np.isfinite(lp), mix[:, -1], -np.inf)
+    cum = target.cumulative_log_likelihood(theta, lz)
+    before = cum[:, -2] if cum.shape[1] > 1 else np.zeros(len(lp))
+    base = lp + before
+    with np.errstate(invalid="ignore"):
+        new = np.where(np.isfinite(lp) & np.isfinite(before), cum[:, -1] - before, -np.inf)
     return _Population(u, theta, np.where(np.isfinite(base), base, -np.inf), new, {"lz": lz, "lp0": lp})
 
 
@@ -205,7 +213,7 @@ def add_row(pop, prior, forward, likelihoods, pi0, seed, row_index, ess_target=0
     target = WindowTarget(prior, forward, likelihoods, pi0)
     if lz_new is None:
         lz_new, _ = new_row_evidences(prior, forward, likelihoods[-1:], pi0, pop.theta)
-    p_runs = row_answer(pop, lz_new, target.log_pis)
+    p_runs = row_answer(pop, lz_new, arrival_log_pis(target, pop))
     view = population_view(target, pop.u.copy(), pop.theta.copy(), pop.log_prior.copy(),
                            np.concatenate([pop.lz, lz_new], axis=2))
     rngs = _run_rngs(row_seed_sequence(seed, row_index), R)

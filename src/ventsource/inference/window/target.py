@@ -34,6 +34,8 @@ from ventsource.inference.window.saturation_edge import (bisect_edge, edge_gas, 
                                                   trapezoid_log_weights)
 from ventsource.inference.priors.distributions import LogUniform
 from ventsource.inference.hypotheses.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
+from ventsource.inference.window import hypothesis_persistence
+from ventsource.inference.window.hypothesis_persistence import NAME as PERSISTENCE, PersistentPrior
 from ventsource.inference.window.kernels import RowPack, qualifies
 
 # Forward solves per draw of psi and quadrature points per solved interval. Measured on
@@ -93,7 +95,7 @@ class WindowTarget:
     """log L(psi) of a window and the per-row log Z0_i(psi), log Z1_i(psi)."""
 
     def __init__(self, prior, forward, likelihoods, pi0, n_solve=N_SOLVE, refine=REFINE, per_row=None,
-                 adaptive=True):
+                 adaptive=True, persistent=None):
         self.per_row = tuple(prior.window_per_row if per_row is None else per_row)  # [window] per_row
         if "scrubbed_so2" not in self.per_row or not set(self.per_row) <= {"pressure_bar", "scrubbed_so2"}:
             raise ValueError(f"window model: per_row {self.per_row} must hold scrubbed_so2 and "
@@ -107,6 +109,9 @@ class WindowTarget:
         if self.pressure_per_row:  # a placeholder: gas_on_grid sets the grid's pressures
             shared = shared.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower))
         self.pooled = self.pressure_per_row and prior.window_pressure_rows == "pooled"
+        self.persistent = persistent if persistent is not None else prior.window_hypothesis_rows == "persistent"
+        if self.persistent:   # innermost, so the pooled columns stay last
+            shared = PersistentPrior(shared)
         self.shared_prior = PooledPrior(shared) if self.pooled else shared
         self.forward = forward
         self.pi0 = float(pi0)
@@ -138,6 +143,7 @@ class WindowTarget:
         names = tuple(self.shared_prior.parameter_names)
         self._j_p = names.index("pressure_bar")
         self._j_h = names.index("h2s_return") if "h2s_return" in names else None
+        self._j_rho = tuple(self.shared_prior.free_names).index(PERSISTENCE) if self.persistent else None
 
     def _pack_rows(self):
         """Split the rows into those of the compiled loop and those of the NumPy path."""
@@ -311,10 +317,36 @@ class WindowTarget:
             mix = np.logaddexp(mix, self.log_pis[k] + lz[k])
         return mix
 
+    def persistence(self, psi):
+        """(n,) each draw's hypothesis persistence rho, or zeros (independent rows)."""
+        psi = np.atleast_2d(psi)
+        return psi[:, self._j_rho] if self.persistent else np.zeros(len(psi))
+
+    def window_log_likelihood(self, psi, lz):
+        """(n,) log L of the rows from their evidences lz (tuple of (n, rows) per hypothesis)."""
+        if self.persistent:
+            return hypothesis_persistence.log_likelihood(np.stack(lz, axis=1), self.log_pis, self.persistence(psi))
+        total = self.row_mixture(*lz).sum(axis=1)
+        return np.where(np.isnan(total), -np.inf, total)
+
+    def cumulative_log_likelihood(self, psi, lz):
+        """(n, rows) log L of the first 1, 2, ... rows; lz (n, H, rows)."""
+        if self.persistent:
+            return hypothesis_persistence.filter_rows(lz, self.log_pis, self.persistence(psi))[0]
+        mix = self.row_mixture(*[lz[:, k] for k in range(lz.shape[1])])
+        return np.cumsum(np.where(np.isnan(mix), -np.inf, mix), axis=1)
+
+    def row_states(self, psi, lz):
+        """(n, rows, H) each row's hypothesis probabilities given every row and the draw."""
+        if self.persistent:
+            return hypothesis_persistence.state_probabilities(np.stack(lz, axis=1), self.log_pis,
+                                                              self.persistence(psi))
+        mix = self.row_mixture(*lz)
+        return np.stack([np.exp(self.log_pis[k] + lz[k] - mix) for k in range(len(lz))], axis=-1)
+
     def __call__(self, psi):
         lz = self.row_evidences(psi)
-        mix = self.row_mixture(*lz)
-        total = mix.sum(axis=1)
+        total = self.window_log_likelihood(psi, lz)
         return np.where(np.isnan(total), -np.inf, total), {f"lz{k}": v for k, v in enumerate(lz)}
 
 
@@ -330,7 +362,7 @@ class So2FreeWindowTarget(WindowTarget):
     the "loss" product and for release; other products also move H2S or H2O a little."""
 
     def __init__(self, prior, forward, likelihoods, n_solve=N_SOLVE, refine=REFINE, per_row=None):
-        super().__init__(prior, forward, likelihoods, 0.5, n_solve, refine, per_row)
+        super().__init__(prior, forward, likelihoods, 0.5, n_solve, refine, per_row, persistent=False)
         factor = LogUniform(SO2_FREE_RANGE[0], SO2_FREE_RANGE[1])
         self.marginals = [So2FactorMarginal(lik, forward.ratio_names, forward.product, factor)
                           for lik in likelihoods]

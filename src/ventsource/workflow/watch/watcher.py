@@ -172,13 +172,13 @@ class Watcher:
             self._answer_rows(batch, pop, version, label if before == 0 else cur["label"], before)
 
     def _answer_rows(self, batch, pop, version, label, before):
-        from ventsource.inference.window.sequential import new_row_evidences, row_answer
+        from ventsource.inference.window.sequential import arrival_log_pis, new_row_evidences, row_answer
         liks = self._likelihoods([r.measurement for r in batch])
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             lz, target = new_row_evidences(self.ctx.spec, self.forward, liks, self.ctx.pi0, pop.theta)
         for j, r in enumerate(batch):
-            self._record_answer(r, row_answer(pop, lz, target.log_pis, j), label, before)
+            self._record_answer(r, row_answer(pop, lz, arrival_log_pis(target, pop), j), label, before)
             self._lz_cache[r.row_id] = (version, lz[:, :, [j]])
 
     def _start_pop(self, label):
@@ -226,9 +226,10 @@ class Watcher:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             if row.row_id not in self._answered:
-                from ventsource.inference.window.sequential import new_row_evidences, row_answer
+                from ventsource.inference.window.sequential import arrival_log_pis, new_row_evidences, row_answer
                 lz_new, target = new_row_evidences(c.spec, self.forward, liks[-1:], c.pi0, self.pop.theta)
-                self._record_answer(row, row_answer(self.pop, lz_new, target.log_pis), st["window"]["label"],
+                self._record_answer(row, row_answer(self.pop, lz_new, arrival_log_pis(target, self.pop)),
+                                    st["window"]["label"],
                                     len(self.window_rows))
             self.pop, info = add_row(self.pop, c.spec, self.forward, liks, c.pi0, c.seed, st["rows_taken"],
                                      lz_new=lz_new, between=self._read)
@@ -279,7 +280,8 @@ class Watcher:
         window's summaries (a second batch of forward solves) are drawn when no other row
         waits, on check rows and when the window closes; alerts on probabilities use the
         row's own P(M0) after its update (the same whenever the rows arrived)."""
-        from ventsource.inference.window.sequential import row_answer
+        from ventsource.inference.window.sequential import arrival_log_pis, row_answer
+        from ventsource.inference.window.target import WindowTarget
         c, st = self.ctx, self.state
         checks, events, n = None, (), len(self.window_rows)
         self._read()   # rows that arrived during the update are answered before the slower steps
@@ -287,7 +289,8 @@ class Watcher:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 checks = source_checks(c.spec, self.forward, liks, c.pi0, float(np.mean(self.pop.log_z)),
-                                       [c.seed, st["rows_taken"], 5], between=self._read)
+                                       [c.seed, st["rows_taken"], 5], between=self._read,
+                                       draws=(self.pop.theta, self.pop.lz, self.pop.log_w))
             st["window"]["checks"] = [None if not np.isfinite(x) else float(x) for x in checks[:3]] + [checks[3]]
             if checks[0] < 0.0 or checks[1] < -2.0:   # infer_window's mixed_sources rule
                 events = ("change_of_source",)
@@ -297,7 +300,8 @@ class Watcher:
         fresh = (last and not self.pending) or checks is not None
         if fresh:
             self._summarise()
-        p = row_answer(self.pop, self.pop.lz[:, :, -1:], np.log([c.pi0, 1.0 - c.pi0]))[:, 0]
+        target = WindowTarget(c.spec, self.forward, self._likelihoods([]), c.pi0)
+        p = row_answer(self.pop, self.pop.lz[:, :, -1:], arrival_log_pis(target, self.pop, before=self.pop.n_rows - 1))[:, 0]
         now = {"id": row.row_id, "time": _time_text(row.time_s), "line": row.line,
                "window": st["window"]["label"], "p_magmatic": float(np.mean(p)),
                "p_magmatic_error": float(np.std(p, ddof=1) / np.sqrt(p.size)) if p.size > 1 else None}
