@@ -108,6 +108,23 @@ def test_reliability_band_and_rank_test_match_scipy():
     assert sbc.rank_p_values(ranks)[0] == pytest.approx(stats.chi2(9).sf(chi2))
 
 
+def test_cluster_band_counts_a_window_of_identical_rows_once():
+    """The cluster-robust band (Liang and Zeger 1986): a window whose rows are copies of one
+    row carries one row's information, so copying every row 8 times into its own window
+    leaves the band where the rows stand alone; copies counted as independent rows would
+    shrink it by sqrt(8). With one row per window it is the residuals' own 2 sigma."""
+    rng = np.random.default_rng(8)
+    p = rng.random(300)
+    came = rng.random(300) < p
+    alone = sbc.reliability_table(p, came, groups=np.arange(300))
+    copies = sbc.reliability_table(np.repeat(p, 8), np.repeat(came, 8), groups=np.repeat(np.arange(300), 8))
+    naive = sbc.reliability_table(np.repeat(p, 8), np.repeat(came, 8), groups=np.arange(2400))
+    for a, c, nv in zip(alone, copies, naive):
+        assert c[5] == pytest.approx(a[5]) and nv[5] == pytest.approx(a[5] / np.sqrt(8.0))
+        sel = (p >= a[0]) & ((p < a[1]) if a[1] < 1 else (p <= a[1]))
+        assert a[5] == pytest.approx(2.0 * np.sqrt(np.sum((came[sel] - p[sel]) ** 2)) / sel.sum())
+
+
 def test_a_few_windows_and_an_overconfident_posterior_is_detected(model):
     """Four windows (100 particles x 2 runs, about 30 CPU-s in all): the window's own
     posterior covers its truths and ranks them without a U shape; the same draws shrunk
@@ -133,8 +150,8 @@ def _shrink(model, rec, rng, factor=0.25):
 
 
 def _small_passes(records):
-    # 4 windows x 5 shared parameters = 20 truths: at least 13 inside the 90 % bands
-    # (binomial(20, 0.9) P(X < 13) = 0.0004, scipy.stats.binom) and the pooled ranks'
+    # 4 windows x 6 shared parameters = 24 truths: at least 13 inside the 90 % bands
+    # (binomial(24, 0.9) P(X < 13) < 1e-5, scipy.stats.binom) and the pooled ranks'
     # chi-square p > 0.001 in 5 bins of 10 ranks
     cover = np.concatenate([r["cover90"] for r in records])
     ranks = np.concatenate([r["ranks"] for r in records])

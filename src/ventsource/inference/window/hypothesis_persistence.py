@@ -21,7 +21,10 @@ IEEE 77:257), in log space and normalised row by row.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
+from numba import njit
 
 from ventsource.inference.priors.distributions import Uniform
 
@@ -72,21 +75,48 @@ def _predict(a, log_pis, lr, lq):
 def filter_rows(lz, log_pis, rho):
     """(cumulative log L after each row (n, rows), last normalised log filter (n, H)).
 
-    lz: (n, H, rows) per-row log evidences of each hypothesis (NaN -> -inf)."""
-    lz = np.where(np.isnan(lz), -np.inf, lz)
+    lz: (n, H, rows) per-row log evidences of each hypothesis (NaN -> -inf). Compiled:
+    a loop over rows on NumPy arrays cost 14 ms per 200 draws of a 336-row window, about
+    a fifth of that window's CPU time."""
+    lz = np.ascontiguousarray(np.where(np.isnan(lz), -np.inf, lz), dtype=np.float64)
+    rho = np.clip(np.broadcast_to(np.asarray(rho, float), (lz.shape[0],)), 0.0, 1.0).astype(np.float64)
+    return _filter_kernel(lz, np.asarray(log_pis, np.float64), rho)
+
+
+@njit(cache=True)
+def _filter_kernel(lz, log_pis, rho):
+    """The forward recursion in probabilities, normalised each row: one exp per row and
+    hypothesis, one log per row."""
     n, H, m = lz.shape
-    lr, lq = _logs(rho)
     cum = np.zeros((n, m))
-    a = np.broadcast_to(log_pis, (n, H))
-    total = np.zeros(n)
-    for i in range(m):
-        joint = (a if i == 0 else _predict(a, log_pis, lr, lq)) + lz[:, :, i]
-        step = _lse(joint)
-        total = total + step
-        cum[:, i] = total
-        ok = np.isfinite(step)
-        a = np.where(ok[:, None], joint - np.where(ok, step, 0.0)[:, None], log_pis[None, :])
-    return cum, a
+    last = np.empty((n, H))
+    pis = np.exp(log_pis)
+    a = np.empty(H)
+    w = np.empty(H)
+    for j in range(n):
+        a[:] = pis
+        total = 0.0
+        for i in range(m):
+            top = -math.inf
+            for k in range(H):
+                top = max(top, lz[j, k, i])
+            acc = 0.0
+            if top > -math.inf:
+                for k in range(H):
+                    prior = a[k] if i == 0 else rho[j] * a[k] + (1.0 - rho[j]) * pis[k]
+                    w[k] = prior * math.exp(lz[j, k, i] - top)
+                    acc += w[k]
+            if acc > 0.0:
+                total += top + math.log(acc)
+                for k in range(H):
+                    a[k] = w[k] / acc
+            else:
+                total = -math.inf
+                a[:] = pis
+            cum[j, i] = total
+        for k in range(H):
+            last[j, k] = math.log(a[k]) if a[k] > 0.0 else -math.inf
+    return cum, last
 
 
 def log_likelihood(lz, log_pis, rho):
