@@ -78,27 +78,47 @@ def test_impossible_rows_give_minus_infinity_not_nan():
     assert ll[0] == -np.inf and np.isfinite(ll[1])
 
 
-def test_persistence_prior_column_and_its_bounds():
-    from ventsource.inference.priors.distributions import Uniform
+def test_persistence_integrated_out_matches_scipy_quad():
+    """rho uniform on [0, 1] integrated out on the logit grid: log of the integral of L(rho)
+    against scipy.integrate.quad of the exact forward likelihood, for short random windows
+    and for 60 decisive rows whose states switch 0, 3 and 12 times (a peaked posterior
+    of rho near 1); the prefix likelihoods and the next row's odds from the same grid."""
+    from scipy import integrate
+    rng = np.random.default_rng(6)
+    log_pis = np.log([0.5, 0.5])
+    cases = [2.0 * rng.normal(size=(2, 10)) for _ in range(3)]
+    for switches in (0, 3, 12):
+        state = np.zeros(60, int)
+        for c in np.sort(rng.choice(np.arange(1, 60), switches, replace=False)):
+            state[c:] = 1 - state[c:]
+        lz = np.zeros((2, 60))
+        lz[1 - state, np.arange(60)] = -3.0
+        cases.append(lz)
+    for lz in cases:
+        one = lz[None]
+        top = hp.log_likelihood(one, log_pis, np.array([0.5]))[0]
+        f = lambda r: np.exp(hp.log_likelihood(one, log_pis, np.array([r]))[0] - top)
+        ref = np.log(integrate.quad(f, 0.0, 1.0, limit=200, points=[0.5, 0.9, 0.99])[0]) + top
+        assert hp.marginal_log_likelihood(one, log_pis)[0] == pytest.approx(ref, abs=0.02)
+        cum = hp.marginal_cumulative(one, log_pis)[0]
+        assert cum[-1] == pytest.approx(hp.marginal_log_likelihood(one, log_pis)[0], abs=1e-10)
+        appended = np.concatenate([one, np.zeros((1, 2, 1))], axis=2)
+        np.testing.assert_allclose(np.exp(hp.marginal_next_row_log_pis(one, log_pis))[0],
+                                   hp.marginal_state_probabilities(appended, log_pis)[0, -1], atol=1e-9)
 
-    class Base:
-        free_names = ("a",)
-        parameter_names = ("a",)
-        free_bounds = np.array([[0.0, 2.0]])
 
-        def sample(self, rng, n):
-            return rng.uniform(0, 2, n)[:, None]
-
-        def log_prob(self, theta):
-            return Uniform(0.0, 2.0).log_pdf(theta[:, 0])
-
-        def full(self, theta):
-            return theta
-
-    prior = hp.PersistentPrior(Base())
-    assert prior.free_names == ("a", hp.NAME)
-    x = prior.sample(np.random.default_rng(1), 5)
-    assert x.shape == (5, 2) and np.all((x[:, 1] >= 0) & (x[:, 1] <= 1))
-    assert prior.log_prob(np.array([[1.0, 0.5], [1.0, 1.5]]))[1] == -np.inf
-    assert prior.log_prob(np.array([[1.0, 0.5]]))[0] == pytest.approx(np.log(0.5))
-    np.testing.assert_array_equal(prior.full(x), x[:, :1])
+def test_integrated_state_probabilities_weigh_each_rho_by_its_posterior():
+    """P(h_i | rows) with rho integrated out = the integral of P(h_i | rows, rho) L(rho)
+    over the integral of L(rho) (scipy.integrate.quad, both)."""
+    from scipy import integrate
+    rng = np.random.default_rng(9)
+    lz = 1.5 * rng.normal(size=(1, 2, 7))
+    log_pis = np.log([0.4, 0.6])
+    top = hp.log_likelihood(lz, log_pis, np.array([0.5]))[0]
+    like = lambda r: np.exp(hp.log_likelihood(lz, log_pis, np.array([r]))[0] - top)
+    z = integrate.quad(like, 0.0, 1.0)[0]
+    got = hp.marginal_state_probabilities(lz, log_pis)[0, :, 0]
+    for i in range(7):
+        num = integrate.quad(lambda r: like(r) * hp.state_probabilities(lz, log_pis, np.array([r]))[0, i, 0],
+                             0.0, 1.0)[0]
+        assert got[i] == pytest.approx(num / z, abs=2e-4)

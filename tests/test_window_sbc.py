@@ -50,6 +50,25 @@ every bin ([0, .2) 0.015 vs 0.023 +- 0.014; [.2, .4) 0.304 vs 0.308 +- 0.147; [.
 0.515 vs 0.600 +- 0.141; [.6, .8) 0.713 vs 0.719 +- 0.082; [.8, 1] 0.880 vs 0.909 +-
 0.038).
 
+Since 0.5.0 (persistent hypotheses: each window also samples the persistence rho, and
+the generator draws the rows' hypotheses as its Markov chain, window_sbc_tools.py): rows
+of one window now often share one true state, so the reliability band counts a window
+as one cluster (Liang and Zeger 1986; the binomial band is printed beside it), which
+widens the bands; the calibration runs 200 windows (0-199 of seed 2026) to keep its
+power. Measured (this slow test's windows, run as two background jobs beside other
+work): windows 0-99 alone: 6.8 CPU-s per window (median), rank chi-square p 0.46-0.95
+(hypothesis_persistence 0.946), coverage 0.888, but the [0.4, 0.6) bin read a share
+0.654 from M0 against a mean P(M0) 0.513 +- 0.124 (clusters; +- 0.111 binomial): a
+miss at 2.3 sigma (the same bin leaned the same way on 0.4.1 and 0.4.2, 0.600 against
+0.509 and 0.515, on the same windows). Windows 100-199 alone: every bin within its
+band ([0.4, 0.6): 0.463 against 0.510 +- 0.114), rank p dfmq 0.011 (the lowest seen),
+the rest 0.15-0.78, coverage 0.872. All 200: rank chi-square p dfmq 0.097, co2_ppm
+0.760, s_partition 0.256, hypothesis_persistence 0.367, pressure_pool_centre 0.658,
+pressure_pool_spread 0.504; 90 % coverage 0.880 (dfmq 0.84, the others 0.85-0.91);
+P(M0) reliability within the cluster band in every bin ([0, .2) 0.016 vs 0.019 +- 0.012;
+[.2, .4) 0.305 vs 0.378 +- 0.096; [.4, .6) 0.512 vs 0.568 +- 0.085; [.6, .8) 0.711 vs
+0.705 +- 0.075; [.8, 1] 0.912 vs 0.923 +- 0.027); 1398 CPU-s.
+
 Results are model- and prior-dependent: they say the window sampler inverts this model
 honestly; they do not say the model describes any volcano.
 """
@@ -59,7 +78,7 @@ from scipy import stats
 
 import window_sbc_tools as sbc
 
-N_WINDOWS = 100
+N_WINDOWS = 200   # 100 until 0.4.2; why 200 since 0.5.0: the module's docstring
 
 
 @pytest.fixture(scope="module")
@@ -162,7 +181,7 @@ def _small_passes(records):
 # ---- the calibration (slow) -------------------------------------------------------------------
 
 @pytest.mark.slow
-def test_window_sbc_100_windows(model, capsys):
+def test_window_sbc_200_windows(model, capsys):
     records = [sbc.one_window(model, 2026, k) for k in range(N_WINDOWS)]
     p, cover, table, names = sbc.criteria(records)
     with capsys.disabled():

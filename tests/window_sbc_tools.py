@@ -12,7 +12,8 @@ inference/window/target.py and pooled_pressure.py state it:
 * each row's hypothesis: M0 (scrubbed fraction exactly 0) with probability pi0, else M1
   with its scrubbed fraction from the prior file's scrubbed_so2 distribution; with
   persistent hypotheses (the default) a row keeps the previous row's hypothesis with
-  probability rho (a shared parameter, hypothesis_persistence.py), else draws afresh;
+  probability rho (uniform on [0, 1], drawn per window; the model integrates it out,
+  hypothesis_persistence.py), else draws afresh;
 * the rows' ratios from the package's forward model, with the likelihood's own noise
   model (Likelihood.simulate_log: log-normal with sigma_ln = ln(1 + r)).
 
@@ -80,12 +81,12 @@ def row_pressures(target, dist_p, psi, rng, n_rows):
 def row_hypotheses(target, psi, rng, n_rows, pi0):
     """Each row's hypothesis (0: M0, 1: M1): with prior odds pi0 on its own, or with
     persistent hypotheses (hypothesis_persistence.py) a Markov chain: the first row
-    fresh, each next row keeps the previous row's with probability rho (psi's
-    persistence), else is fresh."""
+    fresh, each next row keeps the previous row's with probability rho (uniform on
+    [0, 1], one per window), else is fresh."""
     model = (rng.random(n_rows) >= pi0).astype(int)
     if not target.persistent:
         return model
-    keep = rng.random(n_rows) < target.persistence(psi[None, :])[0]
+    keep = rng.random(n_rows) < rng.random()   # rho uniform on [0, 1], integrated out by the model
     for i in range(1, n_rows):
         model[i] = model[i - 1] if keep[i] else model[i]
     return model

@@ -173,7 +173,7 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
             "log_z_per_run": res.log_z.tolist(), "rhat_max": rhat_max,
             "n_solve_pressures": target.n_solve, "n_quadrature_pressures": target.p_quad.size,
             "per_row": list(target.per_row), "source_check_cpu_s": check_cpu,
-            "moves": res.move_summary()}
+            "moves": res.move_summary(), "hypothesis_persistence": persistence_summary(target, res)}
     out = WindowResult(rows, tuple(target.shared_prior.free_names), res.theta, log_z, log_z_err, bf,
                        flags, diag, split_bf, split_err, prior_p0,
                        _shared_information(target.shared_prior, res.theta, rows, prior_p0, seed),
@@ -377,6 +377,23 @@ def _summarise_row(meas, target, i, p_runs, draws, rng, opt):
     return RowResult(meas.label, p, err, averaged, _q(s1), _q(draws["pressure"]), pp, flags,
                      hypotheses=hyp, budget_draws=draws["budget"],
                      pressure_if_scrubbed=_q(draws["pressure"][draws["model"] == 1]))
+
+
+def persistence_summary(target, res):
+    """The persistence's posterior (mean, 5 %, median, 95 %), rho integrated out on its
+    grid in every draw, so the quantiles are read from the draws' averaged node weights
+    (interpolated in logit rho); None with independent hypotheses."""
+    if not target.persistent:
+        return None
+    from ventsource.inference.window.hypothesis_persistence import rho_posterior
+    R, N, _ = res.theta.shape
+    lz = np.stack([res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)], axis=1)
+    rho, w = rho_posterior(lz, target.log_pis)
+    w = np.nan_to_num(w).mean(axis=0)
+    cdf = np.cumsum(w) / w.sum()
+    u = special.logit(rho)
+    q = [float(special.expit(np.interp(p, cdf, u))) for p in (0.05, 0.5, 0.95)]
+    return {"mean": float(np.sum(w * rho) / w.sum()), "q05": q[0], "median": q[1], "q95": q[2]}
 
 
 def independent_log_z(target, log_z, theta, lz, log_w):

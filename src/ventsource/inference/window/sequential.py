@@ -118,7 +118,7 @@ def arrival_log_pis(target, pop, before=None):
     lz = pop.lz if before is None else pop.lz[:, :, :before]
     if not target.persistent:
         return np.broadcast_to(target.log_pis, (lz.shape[0], target.log_pis.size))
-    return hypothesis_persistence.next_row_log_pis(lz, target.log_pis, target.persistence(pop.theta))
+    return hypothesis_persistence.marginal_next_row_log_pis(lz, target.log_pis)
 
 
 def new_row_evidences(prior, forward, likelihoods, pi0, theta):

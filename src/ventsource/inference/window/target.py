@@ -35,7 +35,6 @@ from ventsource.inference.window.saturation_edge import (bisect_edge, edge_gas, 
 from ventsource.inference.priors.distributions import LogUniform
 from ventsource.inference.hypotheses.so2_marginal import So2FactorMarginal, ScrubbingMarginal, log_ratios_of
 from ventsource.inference.window import hypothesis_persistence
-from ventsource.inference.window.hypothesis_persistence import NAME as PERSISTENCE, PersistentPrior
 from ventsource.inference.window.kernels import RowPack, qualifies
 
 # Forward solves per draw of psi and quadrature points per solved interval. Measured on
@@ -109,9 +108,8 @@ class WindowTarget:
         if self.pressure_per_row:  # a placeholder: gas_on_grid sets the grid's pressures
             shared = shared.with_fixed("pressure_bar", float(prior.distributions["pressure_bar"].lower))
         self.pooled = self.pressure_per_row and prior.window_pressure_rows == "pooled"
+        # persistent hypotheses: rho integrated out per draw (hypothesis_persistence.py)
         self.persistent = persistent if persistent is not None else prior.window_hypothesis_rows == "persistent"
-        if self.persistent:   # innermost, so the pooled columns stay last
-            shared = PersistentPrior(shared)
         self.shared_prior = PooledPrior(shared) if self.pooled else shared
         self.forward = forward
         self.pi0 = float(pi0)
@@ -143,7 +141,6 @@ class WindowTarget:
         names = tuple(self.shared_prior.parameter_names)
         self._j_p = names.index("pressure_bar")
         self._j_h = names.index("h2s_return") if "h2s_return" in names else None
-        self._j_rho = tuple(self.shared_prior.free_names).index(PERSISTENCE) if self.persistent else None
 
     def _pack_rows(self):
         """Split the rows into those of the compiled loop and those of the NumPy path."""
@@ -317,30 +314,24 @@ class WindowTarget:
             mix = np.logaddexp(mix, self.log_pis[k] + lz[k])
         return mix
 
-    def persistence(self, psi):
-        """(n,) each draw's hypothesis persistence rho, or zeros (independent rows)."""
-        psi = np.atleast_2d(psi)
-        return psi[:, self._j_rho] if self.persistent else np.zeros(len(psi))
-
     def window_log_likelihood(self, psi, lz):
         """(n,) log L of the rows from their evidences lz (tuple of (n, rows) per hypothesis)."""
         if self.persistent:
-            return hypothesis_persistence.log_likelihood(np.stack(lz, axis=1), self.log_pis, self.persistence(psi))
+            return hypothesis_persistence.marginal_log_likelihood(np.stack(lz, axis=1), self.log_pis)
         total = self.row_mixture(*lz).sum(axis=1)
         return np.where(np.isnan(total), -np.inf, total)
 
     def cumulative_log_likelihood(self, psi, lz):
         """(n, rows) log L of the first 1, 2, ... rows; lz (n, H, rows)."""
         if self.persistent:
-            return hypothesis_persistence.filter_rows(lz, self.log_pis, self.persistence(psi))[0]
+            return hypothesis_persistence.marginal_cumulative(lz, self.log_pis)
         mix = self.row_mixture(*[lz[:, k] for k in range(lz.shape[1])])
         return np.cumsum(np.where(np.isnan(mix), -np.inf, mix), axis=1)
 
     def row_states(self, psi, lz):
         """(n, rows, H) each row's hypothesis probabilities given every row and the draw."""
         if self.persistent:
-            return hypothesis_persistence.state_probabilities(np.stack(lz, axis=1), self.log_pis,
-                                                              self.persistence(psi))
+            return hypothesis_persistence.marginal_state_probabilities(np.stack(lz, axis=1), self.log_pis)
         mix = self.row_mixture(*lz)
         return np.stack([np.exp(self.log_pis[k] + lz[k] - mix) for k in range(len(lz))], axis=-1)
 
