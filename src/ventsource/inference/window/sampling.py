@@ -121,6 +121,10 @@ class WindowResult:
         idata.posterior.attrs["caution"] = CAUTION
         idata.posterior.attrs["log10_bayes_factor_one_source"] = self.log10_bf_shared
         idata.posterior.attrs["log10_bayes_factor_one_source_vs_split"] = self.log10_bf_split
+        rho = (self.diagnostics or {}).get("hypothesis_persistence")
+        if rho is not None:   # integrated out in every draw, so a summary rather than draws
+            idata.posterior.attrs["hypothesis_persistence"] = (
+                f"mean {rho['mean']:.3f}, 5 % {rho['q05']:.3f}, median {rho['median']:.3f}, 95 % {rho['q95']:.3f}")
         return idata
 
 
