@@ -16,8 +16,9 @@ on the other core): R-hat 1.010, no flag, 498 CPU-s, process peak RSS 0.35 GiB. 
 R-hat 1.080 at 438 CPU-s (flagged); "ridge" with 20 moves 1.036 / 1.021 (349-353
 CPU-s), with 30 moves 1.013 / 1.023 (463-466), with 20 moves and 40 final 1.020
 (DEVELOPERS.md, the ridge move).
-On 0.5.0 (persistent hypotheses, the persistence integrated out on its grid; three jobs
-on the 2-core machine): R-hat 1.015, no flag, 612 CPU-s, peak RSS 0.33 GiB; magmatic
+On 0.5.0 (persistent hypotheses, the persistence integrated out on its grid): R-hat
+1.015, no flag, 607 CPU-s alone on the 2-core machine (606-612 beside other jobs; over
+the issue's 600, 495-498 on 0.4.2: not yet profiled), peak RSS 0.32-0.33 GiB; magmatic
 rows P(M0) mean 0.793, scrubbed rows max 0.000 (the rows' states are a random half, so
 the persistence is learned low: 0.01-0.23). The main run alone (the SMC, a separate
 script, seeds 1 and 2 with the persistence sampled as a parameter, before it was
