@@ -125,7 +125,7 @@ def test_reliability_band_and_rank_test_match_scipy():
 
 
 def test_cluster_band_counts_a_window_of_identical_rows_once():
-    """The cluster-robust band (Liang and Zeger 1986): a window whose rows are copies of one
+    """The cluster-robust band (Liang and Zeger 1986, from memory): a window whose rows are copies of one
     row carries one row's information, so copying every row 8 times into its own window
     leaves the band where the rows stand alone; copies counted as independent rows would
     shrink it by sqrt(8). With one row per window it is the residuals' own 2 sigma."""

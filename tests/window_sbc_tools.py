@@ -162,7 +162,7 @@ def reliability_table(p_m0, came_from_m0, n_bins=5, groups=None):
 
     groups None: the binomial 2 sigma (rows independent). groups (one label per row, the
     row's window): the cluster-robust 2 sigma, 2 sqrt(sum_g (sum_i in g (y_i - p_i))^2) / n
-    over the bin's rows (Liang and Zeger 1986, Biometrika 73:13): rows of one window
+    over the bin's rows (Liang and Zeger 1986, Biometrika 73:13, from memory): rows of one window
     share a posterior and, with persistent hypotheses, often one true state, so a window
     weighs as one draw rather than as many rows."""
     p_m0, came = np.asarray(p_m0, float), np.asarray(came_from_m0, bool)
