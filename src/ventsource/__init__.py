@@ -20,7 +20,7 @@ NumPy loads).
 ['ForwardModel', 'Measurement', 'compare']
 """
 
-__version__ = "0.5.0"
+__version__ = "0.5.1"
 
 __all__ = ["Measurement", "load_prior", "read_measurements", "infer", "infer_window", "run",
            "compare", "ForwardModel", "plan"]

@@ -20,6 +20,7 @@ import math
 
 import numpy as np
 from numba import njit
+from scipy import special
 
 from ventsource.inference.priors.distributions import Beta, Uniform
 
@@ -44,24 +45,53 @@ def log_ndtr(x):
     return -0.5 * x * x - math.log(-x) - _HALF_LOG_2PI + math.log(series)
 
 
+# log Phi tabulated for the inner loop, with its derivative phi / Phi (scipy.special.log_ndtr,
+# reference library): cubic Hermite between nodes 1/64 apart leaves below 1e-10 nats
+# (measured against scipy over the table), a third of the cost of erfc and log per point.
+_TAB_LO, _TAB_HI, _TAB_STEPS = -20.0, _FAR, 64
+_TAB_X = _TAB_LO + np.arange(int((_TAB_HI - _TAB_LO) * _TAB_STEPS) + 2) / _TAB_STEPS
+_TAB_F = special.log_ndtr(_TAB_X)
+_TAB_D = np.exp(-0.5 * _TAB_X ** 2 - _HALF_LOG_2PI - _TAB_F)
+
+
+@njit(cache=True)
+def log_ndtr_table(x):
+    """log Phi(x) by cubic Hermite interpolation of the table; log_ndtr outside it."""
+    if x < _TAB_LO or x >= _TAB_HI:
+        return log_ndtr(x)
+    s = (x - _TAB_LO) * _TAB_STEPS
+    j = int(s)
+    t = s - j
+    h = 1.0 / _TAB_STEPS
+    t2 = t * t
+    t3 = t2 * t
+    return (_TAB_F[j] * (2.0 * t3 - 3.0 * t2 + 1.0) + _TAB_D[j] * h * (t3 - 2.0 * t2 + t)
+            + _TAB_F[j + 1] * (3.0 * t2 - 2.0 * t3) + _TAB_D[j + 1] * h * (t3 - t2))
+
+
 @njit(cache=True)
 def log_diff_ndtr(alpha, beta):
     """log(Phi(beta) - Phi(alpha)), alpha < beta, on the precise side of the mirror.
 
     A bound beyond 8.6 sigma changes the result by less than Phi(-8.6) = 4e-18 relative
     and is not evaluated: most points of a window have the Gaussian well inside the
-    support or far from one of its ends, and then cost at most one erfc."""
+    support or far from one of its ends, and then cost at most one table lookup. Bounds
+    at least 1 apart read log Phi from the table (absolute error below 1e-10 nats);
+    closer bounds, where the difference magnifies that error, compute it exactly."""
     if not beta > alpha:
         return -np.inf
     if alpha > 0.0:   # mirror: Phi(-alpha) - Phi(-beta)
         alpha, beta = -beta, -alpha
-    if beta > _FAR:
-        hi = 0.0
-    else:
-        hi = log_ndtr(beta)
+    if beta - alpha < 1.0:   # close bounds: the difference would magnify a table's error
+        hi = 0.0 if beta > _FAR else log_ndtr(beta)
+        return hi + math.log1p(-math.exp(log_ndtr(alpha) - hi))
+    hi = 0.0 if beta > _FAR else log_ndtr_table(beta)
     if alpha < -_FAR and hi > -1.0:
         return hi
-    return hi + math.log1p(-math.exp(log_ndtr(alpha) - hi))
+    lo = log_ndtr_table(alpha)
+    if lo - hi < -40.0:      # log1p(-e^-40) is below double precision next to hi
+        return hi
+    return hi + math.log1p(-math.exp(lo - hi))
 
 
 @njit(cache=True)

@@ -293,7 +293,7 @@ def _row_results(target, res, measurements, rng, opt):
     gas, h2s, edges = target.gas_on_grid(psi)
     grid = (gas, h2s, edges, target.log_weights(psi, edges))   # shared by every row
     lz = [res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)]
-    resp = target.row_states(psi, lz)
+    resp = target.row_states(lz)
     out = []
     for i, meas in enumerate(measurements):
         p_runs = np.stack([np.nan_to_num(resp[:, i, k]).reshape(R, N).mean(axis=1)

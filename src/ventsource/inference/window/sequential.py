@@ -162,7 +162,7 @@ class _SplitEvaluator:
 
 
 def population_view(target, u, theta, lp, lz):
-    cum = target.cumulative_log_likelihood(theta, lz)
+    cum = target.cumulative_log_likelihood(lz)
     before = cum[:, -2] if cum.shape[1] > 1 else np.zeros(len(lp))
     base = lp + before
     with np.errstate(invalid="ignore"):

@@ -38,7 +38,7 @@ def independent_log_z(target, log_z, theta, lz, log_w):
     lz_t = tuple(lz[:, k] for k in range(lz.shape[1]))
     mix = target.row_mixture(*lz_t)
     l_ind = np.where(np.isnan(mix), -np.inf, mix).sum(axis=1)
-    l_hmm = target.window_log_likelihood(theta, lz_t)
+    l_hmm = target.window_log_likelihood(lz_t)
     with np.errstate(invalid="ignore"):
         ratio = np.where(np.isfinite(l_hmm), l_ind - l_hmm, -np.inf)
     return float(log_z + special.logsumexp(ratio + log_w))

@@ -314,21 +314,21 @@ class WindowTarget:
             mix = np.logaddexp(mix, self.log_pis[k] + lz[k])
         return mix
 
-    def window_log_likelihood(self, psi, lz):
+    def window_log_likelihood(self, lz):
         """(n,) log L of the rows from their evidences lz (tuple of (n, rows) per hypothesis)."""
         if self.persistent:
             return hypothesis_persistence.marginal_log_likelihood(np.stack(lz, axis=1), self.log_pis)
         total = self.row_mixture(*lz).sum(axis=1)
         return np.where(np.isnan(total), -np.inf, total)
 
-    def cumulative_log_likelihood(self, psi, lz):
+    def cumulative_log_likelihood(self, lz):
         """(n, rows) log L of the first 1, 2, ... rows; lz (n, H, rows)."""
         if self.persistent:
             return hypothesis_persistence.marginal_cumulative(lz, self.log_pis)
         mix = self.row_mixture(*[lz[:, k] for k in range(lz.shape[1])])
         return np.cumsum(np.where(np.isnan(mix), -np.inf, mix), axis=1)
 
-    def row_states(self, psi, lz):
+    def row_states(self, lz):
         """(n, rows, H) each row's hypothesis probabilities given every row and the draw."""
         if self.persistent:
             return hypothesis_persistence.marginal_state_probabilities(np.stack(lz, axis=1), self.log_pis)
@@ -337,7 +337,7 @@ class WindowTarget:
 
     def __call__(self, psi):
         lz = self.row_evidences(psi)
-        total = self.window_log_likelihood(psi, lz)
+        total = self.window_log_likelihood(lz)
         return np.where(np.isnan(total), -np.inf, total), {f"lz{k}": v for k, v in enumerate(lz)}
 
 
