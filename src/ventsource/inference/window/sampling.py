@@ -39,7 +39,7 @@ from ventsource.inference.likelihood import Likelihood
 from ventsource.inference.hypotheses.model_choice import predictive_check
 from ventsource.inference.row.smc_measurement import model_averaged_quantiles
 from ventsource.inference.window.progress import WindowProgress, window_costs
-from ventsource.inference.window.source_check import _shared_source_log10_bf, independent_log_z, persistence_summary
+from ventsource.inference.window.source_check import independent_log_z, persistence_summary, shared_source_log10_bf
 from ventsource.inference.window.target import So2FreeWindowTarget, WindowTarget
 from ventsource.chemistry.species import INDEX
 
@@ -159,10 +159,10 @@ def infer_window(measurements, prior, forward=None, seed=0, progress=None, **opt
     log_z, log_z_err = res.log_z_mean_error
     bf = np.nan   # one row: "one source against each row its own" compares the row with itself
     if len(measurements) > 1:
-        R, N, d = res.theta.shape
+        R, N = res.theta.shape[:2]
         lz = np.stack([res.aux[f"lz{k}"].reshape(R * N, -1) for k in range(target.n_hypotheses)], axis=1)
-        log_z_check = independent_log_z(target, log_z, res.theta.reshape(R * N, d), lz, np.full(R * N, -np.log(R * N)))
-        bf = _shared_source_log10_bf(target, log_z_check, np.random.default_rng(seeds[2]), opt["n_source_check"])
+        log_z_check = independent_log_z(target, log_z, lz, np.full(R * N, -np.log(R * N)))
+        bf = shared_source_log10_bf(target, log_z_check, np.random.default_rng(seeds[2]), opt["n_source_check"])
     bar.rows_done()
     split_bf, split_err, check_cpu = np.nan, np.nan, 0.0
     if split_ran:

@@ -16,8 +16,8 @@ from ventsource.inference.engines.run_rhat import between_run_rhat
 from ventsource.inference.window.sampling import (WINDOW_DEFAULTS, WindowError, WindowResult, _likelihoods,
                                                   split_log10_bf,
                                                   _log_evidence, _row_results, _shared_information,
-                                                  _shared_source_log10_bf, _window_flags, independent_log_z,
-                                                  split_points)
+                                                  _window_flags, split_points)
+from ventsource.inference.window.source_check import independent_log_z, shared_source_log10_bf
 from ventsource.inference.window.target import WindowTarget
 
 
@@ -31,15 +31,15 @@ def source_checks(prior, forward, likelihoods, pi0, log_z, seed, between=None, d
     """(log10 BF one source vs each row its own, log10 BF one source vs a change within
     the window, its error, whether the second check ran): infer_window's checks;
     between: called after each of the second check's runs; draws: the population's
-    (theta (R N, d), lz (R N, H, rows), log weights (R, N)), needed with persistent
-    hypotheses (sampling.independent_log_z)."""
+    (lz (R N, H, rows), log weights (R, N)), needed with persistent hypotheses
+    (source_check.independent_log_z)."""
     opt = dict(WINDOW_DEFAULTS, **options)
     target = WindowTarget(prior, forward, likelihoods, pi0)
     seeds = [int(x) for x in np.random.SeedSequence(seed).generate_state(2)]
     if draws is not None:
-        theta, lz, log_w = draws
-        log_z = independent_log_z(target, log_z, theta, lz, np.asarray(log_w).reshape(-1) - np.log(log_w.shape[0]))
-    bf = _shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[0]), opt["n_source_check"])
+        lz, log_w = draws
+        log_z = independent_log_z(target, log_z, lz, np.asarray(log_w).reshape(-1) - np.log(log_w.shape[0]))
+    bf = shared_source_log10_bf(target, log_z, np.random.default_rng(seeds[0]), opt["n_source_check"])
     split_ran = bool(opt["split_check"] and len(likelihoods) >= opt["split_min_rows"])
     split_bf, split_err = np.nan, np.nan
     if split_ran:

@@ -27,7 +27,7 @@ def persistence_summary(target, res):
     return {"mean": float(np.sum(w * rho) / w.sum()), "q05": q[0], "median": q[1], "q95": q[2]}
 
 
-def independent_log_z(target, log_z, theta, lz, log_w):
+def independent_log_z(target, log_z, lz, log_w):
     """log Z of the window with each row's hypothesis drawn on its own, from a run with
     persistent hypotheses: Z_ind = Z E_post[L_ind / L] over the run's weighted draws
     (importance sampling; the persistence's prior integrates to 1). The check "one source
@@ -44,7 +44,7 @@ def independent_log_z(target, log_z, theta, lz, log_w):
     return float(log_z + special.logsumexp(ratio + log_w))
 
 
-def _shared_source_log10_bf(target, log_z_window, rng, n):
+def shared_source_log10_bf(target, log_z_window, rng, n):
     """log10 [Z(one source) / prod_i Z_i(own source)], Z_i by prior Monte Carlo over psi."""
     psi = target.shared_prior.sample(rng, n)
     mix = target.row_mixture(*target.row_evidences(psi))

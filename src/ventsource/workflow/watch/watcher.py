@@ -290,7 +290,7 @@ class Watcher:
                 warnings.simplefilter("ignore")
                 checks = source_checks(c.spec, self.forward, liks, c.pi0, float(np.mean(self.pop.log_z)),
                                        [c.seed, st["rows_taken"], 5], between=self._read,
-                                       draws=(self.pop.theta, self.pop.lz, self.pop.log_w))
+                                       draws=(self.pop.lz, self.pop.log_w))
             st["window"]["checks"] = [None if not np.isfinite(x) else float(x) for x in checks[:3]] + [checks[3]]
             if checks[0] < 0.0 or checks[1] < -2.0:   # infer_window's mixed_sources rule
                 events = ("change_of_source",)
